@@ -1,0 +1,151 @@
+"""The command line: parses arguments, calls the public API, writes files.  Nothing else lives here.
+
+Exit codes (DESIGN.md): 0 success; 2 bad input (message names the file, key and problem); 1 a requested
+accuracy not reached (message says what was reached).
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+
+from derive import __version__
+from derive.errors import AccuracyError, InputError
+
+
+def _overrides(pairs) -> dict[str, float]:
+    result = {}
+    for item in pairs or []:
+        name, sep, value = item.partition("=")
+        if not sep or not name.strip():
+            raise InputError(f"--set expects NAME=VALUE, got {item!r}", key="--set")
+        try:
+            result[name.strip()] = float(value)
+        except ValueError:
+            raise InputError(f"--set {name}: {value!r} is not a number", key="--set") from None
+    return result
+
+
+def _load(args):
+    from derive import load
+
+    return load(args.spec, _overrides(args.set))
+
+
+def _emit_json(data) -> None:
+    from derive.report.json_output import dumps
+
+    sys.stdout.write(dumps(data) + "\n")
+
+
+def _write(path: str, text) -> None:
+    from derive.report.json_output import write_atomic
+
+    write_atomic(path, text)
+    print(f"wrote {path}", file=sys.stderr)
+
+
+def _selected_regions(spacetime, name):
+    if name is None:
+        return list(spacetime.regions)
+    if name not in spacetime.regions:
+        from derive.spec.loader import suggest
+
+        close = suggest(name, spacetime.regions)
+        hint = f"; did you mean '{close}'?" if close else f" (regions: {', '.join(spacetime.regions)})"
+        raise InputError(f"no region named '{name}'{hint}", file=spacetime.path, key="--region")
+    return [name]
+
+
+# -- commands ---------------------------------------------------------------------------------------------
+def cmd_check(args) -> int:
+    from derive.report.summary import spec_summary
+
+    spacetime = _load(args)
+    if args.json:
+        from derive.report.summary import spec_json
+
+        _emit_json(spec_json(spacetime))
+    else:
+        print(spec_summary(spacetime))
+    return 0
+
+
+def cmd_geometry(args) -> int:
+    from derive.report.derivation import Derivation
+    from derive.report.json_output import geometry_json
+    from derive.report.latex import geometry_sections
+    from derive.report.summary import geometry_summary
+
+    spacetime = _load(args)
+    names = _selected_regions(spacetime, args.region)
+    if args.latex:
+        derivation = Derivation(spacetime.title)
+        geometry_sections(derivation, spacetime, names)
+        _write(args.latex, derivation.to_latex())
+    if args.json:
+        _emit_json({"regions": {n: geometry_json(spacetime.geometry[n]) for n in names}})
+    else:
+        print(geometry_summary(spacetime, names))
+    return 0
+
+
+def cmd_demo(args) -> int:
+    from derive.demo import run_demo
+
+    return run_demo(out=args.out)
+
+
+# -- parser ---------------------------------------------------------------------------------------------
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(prog="derive", description="From a spacetime spec to what a static "
+                                     "Unruh-DeWitt detector registers there.")
+    parser.add_argument("--version", action="version", version=f"derive {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    sub.required = True
+
+    def spec_command(name, help_text, func):
+        p = sub.add_parser(name, help=help_text, description=help_text)
+        p.add_argument("spec", help="the spec file (TOML, format 1)")
+        p.add_argument("--set", action="append", metavar="NAME=VALUE", help="override a parameter's value")
+        p.set_defaults(func=func)
+        return p
+
+    p = spec_command("check", "validate a spec file and summarise it", cmd_check)
+    p.add_argument("--json", action="store_true", help="print JSON")
+    p = spec_command("geometry", "curvature, stress-energy and energy conditions of each region", cmd_geometry)
+    p.add_argument("--region", help="only this region")
+    p.add_argument("--json", action="store_true", help="print JSON")
+    p.add_argument("--latex", metavar="FILE", help="write the derivation as a LaTeX document")
+
+    # later stages register here (junction, field, kernels, ...)
+
+    p = sub.add_parser("demo", help="run the bundled scenario end to end and explain what it shows")
+    p.add_argument("--out", metavar="DIR", help="also write the files of the run here")
+    p.set_defaults(func=cmd_demo)
+    return parser
+
+
+def main(argv=None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    try:
+        return args.func(args)
+    except InputError as exc:
+        print(f"derive: error: {exc}", file=sys.stderr)
+        return 2
+    except AccuracyError as exc:
+        print(f"derive: accuracy not reached: {exc}", file=sys.stderr)
+        for key, value in exc.reached.items():
+            print(f"  {key}: {value}", file=sys.stderr)
+        return 1
+    except KeyboardInterrupt:
+        print("derive: interrupted; nothing half-written was left behind", file=sys.stderr)
+        return 130
+    except BrokenPipeError:
+        os._exit(0)
+
+
+if __name__ == "__main__":
+    sys.exit(main())

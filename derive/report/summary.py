@@ -1,0 +1,82 @@
+"""Plain-text summaries for the terminal (the JSON and LaTeX outputs carry the full results)."""
+
+from __future__ import annotations
+
+import sympy as sp
+
+
+def _short(expr, width: int = 90) -> str:
+    text = str(expr)
+    return text if len(text) <= width else text[: width - 3] + "..."
+
+
+def spec_json(spacetime) -> dict:
+    return {
+        "title": spacetime.title,
+        "dimension": spacetime.dimension,
+        "coordinates": [c.name for c in spacetime.coordinates],
+        "parameters": {p.name: {"value": p.value, **p.assumptions} for p in spacetime.parameters.values()},
+        "definitions": {str(k): str(v) for k, v in spacetime.definitions.items()},
+        "regions": {name: {"where": r.where_text, "unknowns": [u.name for u in r.unknowns],
+                           "diagonal": r.metric.is_diagonal()} for name, r in spacetime.regions.items()},
+        "interfaces": [{"between": list(i.between), "at": i.text} for i in spacetime.interfaces],
+        "field": None if spacetime.field is None else {"mass": str(spacetime.field.mass),
+                                                       "coupling": str(spacetime.field.coupling)},
+        "detector": None if spacetime.detector is None else {
+            "at": None if spacetime.detector.coordinate is None else
+            f"{spacetime.detector.coordinate} = {spacetime.detector.position}",
+            "state": spacetime.detector.state, "gaps": list(spacetime.detector.gaps),
+            "switching": {k: str(v) for k, v in spacetime.detector.switching.items()}},
+        "compare": None if spacetime.compare is None else {"with": spacetime.compare.with_,
+                                                           "sigmas": spacetime.compare.sigmas},
+        "source_hash": spacetime.source_hash,
+    }
+
+
+def spec_summary(spacetime) -> str:
+    info = spec_json(spacetime)
+    lines = [f"{spacetime.path}: valid spec, format 1", f"  title:       {info['title']}",
+             f"  dimension:   {info['dimension']}  coordinates ({', '.join(info['coordinates'])})"]
+    if info["parameters"]:
+        lines.append("  parameters:  " + ", ".join(
+            f"{k} = {v['value']:g}" if v["value"] is not None else k for k, v in info["parameters"].items()))
+    for name, region in info["regions"].items():
+        extra = f" where {region['where']}" if region["where"] else ""
+        unknowns = f", unknowns {', '.join(region['unknowns'])}" if region["unknowns"] else ""
+        lines.append(f"  region:      {name}{extra}{unknowns}")
+    for interface in info["interfaces"]:
+        lines.append(f"  interface:   {interface['between'][0]} | {interface['between'][1]} at {interface['at']}")
+    if info["field"]:
+        lines.append(f"  field:       mass {info['field']['mass']}, coupling {info['field']['coupling']}")
+    if info["detector"]:
+        d = info["detector"]
+        lines.append(f"  detector:    at {d['at']}, {d['switching'].get('shape')} switching, state {d['state']}, "
+                     f"{len(d['gaps'])} gaps")
+    if info["compare"]:
+        lines.append(f"  compare:     with {info['compare']['with']}")
+    return "\n".join(lines)
+
+
+def geometry_summary(spacetime, names) -> str:
+    lines = [f"{spacetime.title}"]
+    for name in names:
+        geo = spacetime.geometry[name]
+        lines.append(f"\nregion {name} ({geo.dimension} dimensions, coordinates "
+                     f"{', '.join(c.name for c in geo.coordinates)})")
+        lines.append(f"  nonzero Christoffel symbols:     {len(geo.christoffel)}")
+        lines.append(f"  independent nonzero Riemann:     {len(geo.riemann)}")
+        lines.append(f"  Ricci scalar R         = {_short(geo.ricci_scalar)}")
+        lines.append(f"  Kretschmann R_abcd R^abcd = {_short(geo.kretschmann)}")
+        lines.append(f"  Ricci squared R_ab R^ab  = {_short(geo.ricci_squared)}")
+        stress = geo.stress_energy
+        if stress["energy_density"] is not None:
+            lines.append(f"  energy density rho     = {_short(stress['energy_density'])}")
+            for cname, p in stress["pressures"].items():
+                lines.append(f"  pressure p_{cname:<11} = {_short(p)}")
+            for cond, verdict in geo.energy_conditions.items():
+                where = verdict.get("fails_where")
+                tail = f", fails where {where}" if where and where != "everywhere" else ""
+                lines.append(f"  {cond + ' energy condition':<26} {verdict['verdict']} ({verdict['how']}{tail})")
+        elif all(sp.simplify(x) == 0 for x in stress["mixed"]):
+            lines.append("  vacuum: T_ab = 0")
+    return "\n".join(lines)

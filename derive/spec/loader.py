@@ -1,0 +1,469 @@
+"""Read and validate a spec file (format 1, DESIGN.md) into a :class:`~derive.spec.model.Spacetime`.
+
+Every problem is an :class:`~derive.errors.InputError` naming the file, the key and what was expected; an
+unknown key suggests the nearest valid one.  Expressions go through :class:`ExpressionParser` only.
+"""
+
+from __future__ import annotations
+
+import difflib
+import hashlib
+import os
+import tomllib
+from typing import Any, Mapping
+
+import sympy as sp
+
+from derive.errors import ExpressionError, InputError, SpecError
+from derive.spec.expressions import ExpressionParser, is_identifier
+from derive.spec.line_element import differential_name, metric_from_line_element
+from derive.spec.model import (CompareSpec, DetectorSpec, Domain, FieldSpec, Interface, Parameter, Region,
+                               Spacetime)
+
+MAX_SPEC_BYTES = 1_000_000
+ASSUMPTIONS = ("positive", "nonnegative", "negative", "nonpositive", "real", "integer", "nonzero")
+TOP_KEYS = ("format", "title", "parameters", "coordinates", "definitions", "functions", "region",
+            "interface", "field", "detector", "compare", "numerics")
+REGION_KEYS = ("name", "where", "line_element", "metric", "unknowns")
+INTERFACE_KEYS = ("between", "at")
+FIELD_KEYS = ("mass", "coupling")
+DETECTOR_KEYS = ("at", "switching", "gaps", "state", "coupling")
+COMPARE_KEYS = ("with", "sigmas")
+NUMERICS_KEYS = ("tolerance", "l_max", "omega_max", "outer_radius")
+SWITCHING_SHAPES = ("gaussian", "sharp", "bump", "cos2", "sin4", "expression")
+SWITCHING_KEYS = ("shape", "width", "duration", "ramp", "expression", "tail")
+STATES = ("vacuum", "boulware", "hartle-hawking", "unruh")
+
+
+def suggest(name: str, options) -> str | None:
+    """The nearest valid name, case-insensitively, or None."""
+    options = list(options)
+    lowered = {str(o).lower(): o for o in options}
+    close = difflib.get_close_matches(str(name).lower(), list(lowered), n=1, cutoff=0.6)
+    return lowered[close[0]] if close else None
+
+
+class _Reader:
+    """Validation helpers bound to one file."""
+
+    def __init__(self, path: str):
+        self.path = path
+
+    def fail(self, problem: str, key: str | None = None, cls=SpecError):
+        raise cls(problem, file=self.path, key=key)
+
+    def check_keys(self, table: Mapping, allowed, key: str):
+        if not isinstance(table, Mapping):
+            self.fail(f"expected a table, got {type(table).__name__}", key)
+        for k in table:
+            if k not in allowed:
+                close = suggest(k, allowed)
+                hint = f"; did you mean '{close}'?" if close else f" (allowed: {', '.join(allowed)})"
+                self.fail(f"unknown key '{k}'{hint}", f"{key}.{k}" if key else str(k))
+
+    def text(self, value, key: str) -> str:
+        if isinstance(value, bool):
+            self.fail("expected an expression (string or number), got a boolean", key)
+        if isinstance(value, (int, float)):
+            return repr(value)
+        if not isinstance(value, str):
+            self.fail(f"expected an expression (string or number), got {type(value).__name__}", key)
+        return value
+
+    def expression(self, parser: ExpressionParser, value, key: str) -> sp.Expr:
+        try:
+            return parser.parse(self.text(value, key))
+        except ExpressionError as exc:
+            raise exc.located(self.path, key) from None
+
+    def number(self, value, key: str) -> float:
+        if isinstance(value, bool) or not isinstance(value, (int, float)):
+            self.fail(f"expected a number, got {value!r}", key)
+        return float(value)
+
+    def name(self, value, key: str) -> str:
+        if not is_identifier(value):
+            self.fail(f"{value!r} is not a valid name (a letter, then letters, digits or underscores; not a "
+                      "Python keyword, not a reserved function or constant name such as pi, E, I, sin)", key)
+        return value
+
+
+def load(path: str | os.PathLike, overrides: Mapping[str, float] | None = None) -> Spacetime:
+    """Read a spec file.
+
+    Parameters
+    ----------
+    path : path-like
+        The TOML spec file (format 1).
+    overrides : mapping of str to float, optional
+        Parameter values that replace those in the file (``--set NAME=VALUE``).
+    """
+    path = os.fspath(path)
+    reader = _Reader(path)
+    try:
+        size = os.path.getsize(path)
+    except OSError as exc:
+        raise SpecError(f"cannot read the spec file ({exc.strerror})", file=path) from None
+    if size > MAX_SPEC_BYTES:
+        reader.fail(f"spec file is {size} bytes; the limit is {MAX_SPEC_BYTES}")
+    with open(path, "rb") as handle:
+        raw = handle.read()
+    try:
+        data = tomllib.loads(raw.decode("utf-8"))
+    except UnicodeDecodeError:
+        reader.fail("spec file is not UTF-8 text")
+    except tomllib.TOMLDecodeError as exc:
+        reader.fail(f"not valid TOML: {exc}")
+    return from_mapping(data, path=path, overrides=overrides, raw=raw)
+
+
+def from_mapping(data: Mapping[str, Any], path: str = "<spec>", overrides: Mapping[str, float] | None = None,
+                 raw: bytes | None = None) -> Spacetime:
+    """Build a Spacetime from an already parsed TOML mapping (see :func:`load`)."""
+    reader = _Reader(path)
+    reader.check_keys(data, TOP_KEYS, "")
+    if data.get("format") != 1:
+        reader.fail(f"expected format = 1, got {data.get('format')!r}", "format")
+    title = data.get("title", os.path.basename(path))
+    if not isinstance(title, str):
+        reader.fail("expected a string", "title")
+
+    taken: dict[str, str] = {}
+
+    def claim(name: str, key: str):
+        if name in taken:
+            reader.fail(f"name '{name}' is already used by {taken[name]}", key)
+        taken[name] = key
+
+    # parameters ---------------------------------------------------------------------------------
+    parameters: dict[str, Parameter] = {}
+    for name, spec in (data.get("parameters") or {}).items():
+        key = f"parameters.{name}"
+        reader.name(name, key)
+        claim(name, key)
+        if isinstance(spec, (int, float)) and not isinstance(spec, bool):
+            spec = {"value": spec}
+        reader.check_keys(spec, ("value",) + ASSUMPTIONS, key)
+        assumptions = {k: bool(v) for k, v in spec.items() if k in ASSUMPTIONS}
+        for k, v in spec.items():
+            if k in ASSUMPTIONS and not isinstance(v, bool):
+                reader.fail("expected true or false", f"{key}.{k}")
+        if not assumptions:
+            assumptions = {"real": True}
+        value = spec.get("value")
+        if value is not None:
+            value = reader.number(value, f"{key}.value")
+        try:
+            symbol = sp.Symbol(name, **assumptions)
+        except Exception as exc:  # inconsistent assumptions
+            reader.fail(f"inconsistent assumptions: {exc}", key)
+        parameters[name] = Parameter(name, symbol, value, assumptions)
+    for name, value in (overrides or {}).items():
+        if name not in parameters:
+            close = suggest(name, parameters)
+            hint = f"; did you mean '{close}'?" if close else ""
+            raise SpecError(f"--set {name}: no such parameter{hint}", file=path, key=f"parameters.{name}")
+        p = parameters[name]
+        parameters[name] = Parameter(name, p.symbol, float(value), p.assumptions)
+    for p in parameters.values():
+        if p.value is not None:
+            _check_value(reader, p)
+
+    # coordinates --------------------------------------------------------------------------------
+    coord_table = data.get("coordinates")
+    if coord_table is None:
+        reader.fail("missing section [coordinates] with names = [...]", "coordinates")
+    reader.check_keys(coord_table, ("names", "positive"), "coordinates")
+    names = coord_table.get("names")
+    if not isinstance(names, list) or len(names) < 2:
+        reader.fail("expected a list of at least two coordinate names", "coordinates.names")
+    positive = coord_table.get("positive", [])
+    if not isinstance(positive, list) or any(p not in names for p in positive):
+        reader.fail("expected a list of coordinate names", "coordinates.positive")
+    coordinates = []
+    for i, name in enumerate(names):
+        reader.name(name, f"coordinates.names[{i}]")
+        claim(name, f"coordinates.names[{i}]")
+        coordinates.append(sp.Symbol(name, positive=True) if name in positive else sp.Symbol(name, real=True))
+    coordinates = tuple(coordinates)
+
+    symbols: dict[str, sp.Expr] = {p.name: p.symbol for p in parameters.values()}
+    symbols.update({c.name: c for c in coordinates})
+
+    # functions ----------------------------------------------------------------------------------
+    functions: dict[str, object] = {}
+    for name, spec in (data.get("functions") or {}).items():
+        key = f"functions.{name}"
+        reader.name(name, key)
+        claim(name, key)
+        if not isinstance(spec, list) or not all(isinstance(a, str) and a in symbols for a in spec):
+            reader.fail("expected the list of coordinate names the function depends on, e.g. [\"r\"]", key)
+        functions[name] = sp.Function(name, real=True)
+    parser = ExpressionParser(symbols, functions)
+
+    # definitions --------------------------------------------------------------------------------
+    definitions: dict[sp.Symbol, sp.Expr] = {}
+    display_symbols: dict[str, sp.Expr] = dict(symbols)
+    for name, text in (data.get("definitions") or {}).items():
+        key = f"definitions.{name}"
+        reader.name(name, key)
+        claim(name, key)
+        value = reader.expression(ExpressionParser(display_symbols, functions), text, key)
+        value = value.xreplace(definitions)
+        symbol = sp.Symbol(name)
+        definitions[symbol] = value
+        display_symbols[name] = symbol
+
+    def substitute(expr):
+        return expr.xreplace(definitions)
+
+    # regions ------------------------------------------------------------------------------------
+    region_list = data.get("region")
+    if not isinstance(region_list, list) or not region_list:
+        reader.fail("at least one [[region]] with a line_element or a metric is required", "region")
+    regions: dict[str, Region] = {}
+    for i, table in enumerate(region_list):
+        key = f"region[{i}]"
+        reader.check_keys(table, REGION_KEYS, key)
+        name = table.get("name", f"region{i}" if len(region_list) > 1 else "spacetime")
+        if not isinstance(name, str) or not name.strip():
+            reader.fail("expected a non-empty string", f"{key}.name")
+        if name in regions:
+            reader.fail(f"two regions are named '{name}'", f"{key}.name")
+        unknowns = []
+        local = dict(display_symbols)
+        for j, u in enumerate(table.get("unknowns", [])):
+            reader.name(u, f"{key}.unknowns[{j}]")
+            if u in local:
+                reader.fail(f"unknown '{u}' clashes with a name declared elsewhere", f"{key}.unknowns[{j}]")
+            symbol = sp.Symbol(u, positive=True)
+            unknowns.append(symbol)
+            local[u] = symbol
+        has_le, has_matrix = "line_element" in table, "metric" in table
+        if has_le == has_matrix:
+            reader.fail("give exactly one of line_element or metric", key)
+        le_text = None
+        if has_le:
+            le_text = reader.text(table["line_element"], f"{key}.line_element")
+            differentials = []
+            for c in coordinates:
+                dname = differential_name(c)
+                if dname in local:
+                    reader.fail(f"the name '{dname}' is taken, but it is the differential of '{c.name}'",
+                                f"{key}.line_element")
+                differentials.append(sp.Symbol(dname))
+            le_symbols = dict(local)
+            le_symbols.update({d.name: d for d in differentials})
+            expr = reader.expression(ExpressionParser(le_symbols, functions), le_text, f"{key}.line_element")
+            try:
+                display = metric_from_line_element(expr, coordinates, differentials, le_text)
+            except ExpressionError as exc:
+                raise exc.located(path, f"{key}.line_element") from None
+        else:
+            rows = table["metric"]
+            n = len(coordinates)
+            if not isinstance(rows, list) or len(rows) != n or any(not isinstance(r, list) or len(r) != n
+                                                                     for r in rows):
+                reader.fail(f"expected a {n}x{n} list of lists of expressions", f"{key}.metric")
+            region_parser = ExpressionParser(local, functions)
+            display = sp.Matrix(n, n, lambda a, b: reader.expression(region_parser, rows[a][b],
+                                                                       f"{key}.metric[{a}][{b}]"))
+            if display != display.T:
+                diff = [(a, b) for a in range(n) for b in range(a + 1, n) if display[a, b] != display[b, a]]
+                a, b = diff[0]
+                reader.fail(f"metric matrix is not symmetric: [{a}][{b}] = {display[a, b]} but "
+                            f"[{b}][{a}] = {display[b, a]}", f"{key}.metric")
+        metric = display.applyfunc(substitute)
+        _check_not_degenerate(reader, metric, coordinates, f"{key}", name)
+        where_text, where, domains = None, None, ()
+        if "where" in table:
+            where_text = reader.text(table["where"], f"{key}.where")
+            try:
+                where = ExpressionParser(local, functions).parse_relation(where_text)
+            except ExpressionError as exc:
+                raise exc.located(path, f"{key}.where") from None
+            where = where.xreplace(definitions)
+            domains = _domains(reader, where, coordinates, f"{key}.where")
+        regions[name] = Region(name, metric, display, le_text, where, where_text, domains, tuple(unknowns))
+
+    # interfaces ---------------------------------------------------------------------------------
+    interfaces = []
+    for i, table in enumerate(data.get("interface") or []):
+        key = f"interface[{i}]"
+        reader.check_keys(table, INTERFACE_KEYS, key)
+        between = table.get("between")
+        if (not isinstance(between, list) or len(between) != 2 or not all(isinstance(b, str) for b in between)):
+            reader.fail("expected two region names", f"{key}.between")
+        for j, b in enumerate(between):
+            if b not in regions:
+                close = suggest(b, regions)
+                hint = f"; did you mean '{close}'?" if close else ""
+                reader.fail(f"no region named '{b}'{hint}", f"{key}.between[{j}]")
+        if between[0] == between[1]:
+            reader.fail("an interface joins two different regions", f"{key}.between")
+        coordinate, value, text = _equation(reader, parser, table.get("at"), coordinates, f"{key}.at", definitions)
+        interfaces.append(Interface((between[0], between[1]), coordinate, value, text))
+    if len(regions) > 1 and not interfaces:
+        reader.fail("several regions need [[interface]] entries saying where they meet", "interface")
+
+    field = _field(reader, parser, data.get("field"), len(coordinates), definitions)
+    detector = _detector(reader, parser, data.get("detector"), coordinates, definitions)
+    compare = None
+    if "compare" in data:
+        table = data["compare"]
+        reader.check_keys(table, COMPARE_KEYS, "compare")
+        with_ = table.get("with")
+        if not isinstance(with_, str) or not with_:
+            reader.fail('expected "minkowski" or the path of another spec file', "compare.with")
+        if with_ != "minkowski":
+            with_ = os.path.normpath(os.path.join(os.path.dirname(os.path.abspath(path)), with_))
+            if not os.path.isfile(with_):
+                reader.fail(f"no spec file at {with_}", "compare.with")
+        sigmas = reader.number(table.get("sigmas", 3.0), "compare.sigmas")
+        if sigmas <= 0:
+            reader.fail("expected a positive number of standard deviations", "compare.sigmas")
+        compare = CompareSpec(with_, sigmas)
+    numerics = {}
+    if "numerics" in data:
+        reader.check_keys(data["numerics"], NUMERICS_KEYS, "numerics")
+        for k, v in data["numerics"].items():
+            numerics[k] = reader.number(v, f"numerics.{k}")
+        if "tolerance" in numerics and not (0 < numerics["tolerance"] < 1):
+            reader.fail("expected a relative tolerance between 0 and 1", "numerics.tolerance")
+
+    digest = hashlib.sha256()
+    digest.update(raw if raw is not None else repr(sorted(data.items(), key=str)).encode())
+    digest.update(repr(sorted((overrides or {}).items())).encode())
+    return Spacetime(path=path, title=title, source_hash=digest.hexdigest(), parameters=parameters,
+                     coordinates=coordinates, definitions=definitions, functions=functions, regions=regions,
+                     interfaces=tuple(interfaces), field=field, detector=detector, compare=compare,
+                     numerics=numerics)
+
+
+def _check_value(reader: _Reader, p: Parameter):
+    import math
+
+    v, a = p.value, p.assumptions
+    key = f"parameters.{p.name}.value"
+    if not math.isfinite(v):
+        reader.fail(f"value {v} is not finite", key)
+    if (a.get("positive") and v <= 0) or (a.get("negative") and v >= 0) or (a.get("nonnegative") and v < 0) \
+            or (a.get("nonpositive") and v > 0) or (a.get("nonzero") and v == 0) \
+            or (a.get("integer") and v != int(v)):
+        shown = ", ".join(k for k, on in a.items() if on)
+        reader.fail(f"value {v} contradicts the assumptions ({shown})", key)
+
+
+def _check_not_degenerate(reader: _Reader, metric: sp.Matrix, coordinates, key: str, name: str):
+    n = metric.shape[0]
+    for i in range(n):
+        if all(metric[i, j] == 0 for j in range(n)):
+            raise InputError(f"region '{name}': the metric is degenerate (no term in d{coordinates[i].name})",
+                             file=reader.path, key=key)
+
+
+def _equation(reader, parser, text, coordinates, key, definitions):
+    if text is None:
+        reader.fail("expected 'coordinate = value', for example \"r = R\"", key)
+    text = reader.text(text, key)
+    try:
+        left, right = parser.parse_equation(text)
+    except ExpressionError as exc:
+        raise exc.located(reader.path, key) from None
+    if left not in coordinates:
+        reader.fail(f"the left side of {text!r} must be a coordinate ({', '.join(c.name for c in coordinates)})",
+                    key)
+    right = right.xreplace(definitions)
+    if right.free_symbols & set(coordinates):
+        reader.fail(f"the right side of {text!r} must not depend on the coordinates", key)
+    return left, right, text
+
+
+def _domains(reader, where, coordinates, key) -> tuple[Domain, ...]:
+    """Turn a conjunction of comparisons into coordinate intervals."""
+    relations = list(where.args) if isinstance(where, sp.And) else [where]
+    bounds: dict[sp.Symbol, dict] = {}
+    for rel in relations:
+        if not isinstance(rel, sp.core.relational.Relational):
+            reader.fail(f"cannot read {rel} as a bound", key)
+        lhs, rhs = rel.lhs, rel.rhs
+        strict = isinstance(rel, (sp.StrictLessThan, sp.StrictGreaterThan))
+        less = isinstance(rel, (sp.StrictLessThan, sp.LessThan))      # lhs < rhs
+        if lhs in coordinates and not (rhs.free_symbols & set(coordinates)):
+            coord, value, is_upper = lhs, rhs, less
+        elif rhs in coordinates and not (lhs.free_symbols & set(coordinates)):
+            coord, value, is_upper = rhs, lhs, not less
+        elif not (rel.free_symbols & set(coordinates)):
+            continue   # a condition on the parameters only
+        else:
+            reader.fail(f"cannot read {rel} as a bound on one coordinate (write e.g. '2*M < r < R')", key)
+        entry = bounds.setdefault(coord, {})
+        side = "upper" if is_upper else "lower"
+        if side in entry:
+            reader.fail(f"two {side} bounds on {coord}", key)
+        entry[side] = (value, not strict)
+    return tuple(Domain(c, b.get("lower", (None,))[0], b.get("upper", (None,))[0],
+                        b.get("lower", (None, False))[1], b.get("upper", (None, False))[1])
+                 for c, b in bounds.items())
+
+
+def _field(reader, parser, table, dimension, definitions):
+    if table is None:
+        return None
+    reader.check_keys(table, FIELD_KEYS, "field")
+    mass = reader.expression(parser, table.get("mass", "0"), "field.mass").xreplace(definitions)
+    coupling_value = table.get("coupling", "0")
+    if coupling_value in ("conformal", "minimal"):
+        coupling = sp.Rational(dimension - 2, 4 * (dimension - 1)) if coupling_value == "conformal" else sp.S(0)
+        text = coupling_value
+    else:
+        coupling = reader.expression(parser, coupling_value, "field.coupling").xreplace(definitions)
+        text = str(coupling_value)
+    for k, v in (("mass", mass), ("coupling", coupling)):
+        if v.is_number and not v.is_real:
+            reader.fail("expected a real value", f"field.{k}")
+    if mass.is_number and mass < 0:
+        reader.fail("the mass must not be negative", "field.mass")
+    return FieldSpec(mass, coupling, text)
+
+
+def _detector(reader, parser, table, coordinates, definitions):
+    if table is None:
+        return None
+    reader.check_keys(table, DETECTOR_KEYS, "detector")
+    coordinate = position = None
+    if "at" in table:
+        coordinate, position, _ = _equation(reader, parser, table["at"], coordinates, "detector.at", definitions)
+    switching = dict(table.get("switching", {"shape": "gaussian", "width": 1.0}))
+    reader.check_keys(switching, SWITCHING_KEYS, "detector.switching")
+    shape = switching.get("shape", "gaussian")
+    if shape not in SWITCHING_SHAPES:
+        close = suggest(shape, SWITCHING_SHAPES)
+        hint = f"; did you mean '{close}'?" if close else f" (one of {', '.join(SWITCHING_SHAPES)})"
+        reader.fail(f"unknown switching shape {shape!r}{hint}", "detector.switching.shape")
+    switching["shape"] = shape
+    for k in ("width", "duration", "ramp", "tail"):
+        if k in switching:
+            value = reader.expression(parser, switching[k], f"detector.switching.{k}").xreplace(definitions)
+            switching[k] = value
+    if shape == "expression":
+        if "expression" not in switching:
+            reader.fail("a switching of shape 'expression' needs expression = \"...\" in tau",
+                        "detector.switching.expression")
+        tau = sp.Symbol("tau", real=True)
+        symbols = dict(parser.symbols)
+        symbols["tau"] = tau
+        switching["expression"] = reader.expression(ExpressionParser(symbols, parser.functions),
+                                                    switching["expression"], "detector.switching.expression")
+    gaps = table.get("gaps", [])
+    if not isinstance(gaps, list) or not all(isinstance(g, (int, float)) and not isinstance(g, bool) for g in gaps):
+        reader.fail("expected a list of numbers", "detector.gaps")
+    state = table.get("state", "vacuum")
+    if state not in STATES:
+        close = suggest(state, STATES)
+        hint = f"; did you mean '{close}'?" if close else f" (one of {', '.join(STATES)})"
+        reader.fail(f"unknown state {state!r}{hint}", "detector.state")
+    coupling = table.get("coupling")
+    if coupling is not None:
+        coupling = reader.number(coupling, "detector.coupling")
+    return DetectorSpec(coordinate, position, switching, tuple(float(g) for g in gaps), state, coupling)

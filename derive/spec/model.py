@@ -1,0 +1,144 @@
+"""The Spacetime: what a spec file describes, as frozen records of sympy objects.
+
+These records are the first stage of the pipeline (DESIGN.md).  They hold no derived quantities; later
+stages (geometry, shells, fields) are reached through :attr:`Spacetime.geometry` and the functions of
+:mod:`derive.api`, computed lazily and cached there.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field as dataclass_field
+from functools import cached_property
+from typing import Mapping
+
+import sympy as sp
+
+
+@dataclass(frozen=True)
+class Parameter:
+    """A named constant of the spacetime: a sympy Symbol with assumptions, and a value for numerics."""
+
+    name: str
+    symbol: sp.Symbol
+    value: float | None
+    assumptions: Mapping[str, bool]
+
+
+@dataclass(frozen=True)
+class Domain:
+    """Bounds of one coordinate inside a region: lower < x < upper (None where unbounded)."""
+
+    coordinate: sp.Symbol
+    lower: sp.Expr | None = None
+    upper: sp.Expr | None = None
+    lower_closed: bool = False
+    upper_closed: bool = False
+
+
+@dataclass(frozen=True)
+class Region:
+    """One region of spacetime with its own metric.
+
+    ``metric`` has the definitions substituted (what is computed with); ``metric_display`` keeps the
+    definitions as names (what is shown).  ``unknowns`` are constants of this region fixed by junction
+    conditions.
+    """
+
+    name: str
+    metric: sp.Matrix
+    metric_display: sp.Matrix
+    line_element_text: str | None
+    where: object | None
+    where_text: str | None
+    domains: tuple[Domain, ...]
+    unknowns: tuple[sp.Symbol, ...]
+
+    def domain_of(self, coordinate: sp.Symbol) -> Domain | None:
+        for domain in self.domains:
+            if domain.coordinate == coordinate:
+                return domain
+        return None
+
+
+@dataclass(frozen=True)
+class Interface:
+    """A static hypersurface coordinate = value between two regions; the normal points from
+    ``between[0]`` to ``between[1]``."""
+
+    between: tuple[str, str]
+    coordinate: sp.Symbol
+    value: sp.Expr
+    text: str
+
+
+@dataclass(frozen=True)
+class FieldSpec:
+    """The scalar field: mass mu and curvature coupling xi (sympy expressions; "conformal" resolved)."""
+
+    mass: sp.Expr
+    coupling: sp.Expr
+    coupling_text: str
+
+
+@dataclass(frozen=True)
+class DetectorSpec:
+    """A static Unruh-DeWitt detector."""
+
+    coordinate: sp.Symbol | None
+    position: sp.Expr | None
+    switching: Mapping[str, object]
+    gaps: tuple[float, ...]
+    state: str
+    coupling: float | None
+
+
+@dataclass(frozen=True)
+class CompareSpec:
+    """What the response is compared with: "minkowski" or the path of another spec."""
+
+    with_: str
+    sigmas: float
+
+
+@dataclass(frozen=True)
+class Spacetime:
+    """Everything a spec file says, parsed and validated."""
+
+    path: str
+    title: str
+    source_hash: str
+    parameters: Mapping[str, Parameter]
+    coordinates: tuple[sp.Symbol, ...]
+    definitions: Mapping[sp.Symbol, sp.Expr]
+    functions: Mapping[str, object]
+    regions: Mapping[str, Region]
+    interfaces: tuple[Interface, ...]
+    field: FieldSpec | None = None
+    detector: DetectorSpec | None = None
+    compare: CompareSpec | None = None
+    numerics: Mapping[str, float] = dataclass_field(default_factory=dict)
+
+    @property
+    def dimension(self) -> int:
+        return len(self.coordinates)
+
+    @property
+    def parameter_values(self) -> dict[sp.Symbol, float]:
+        """{symbol: value} for every parameter that has a numeric value."""
+        return {p.symbol: p.value for p in self.parameters.values() if p.value is not None}
+
+    def symbol(self, name: str) -> sp.Symbol:
+        """The sympy symbol of a parameter or coordinate, by name."""
+        if name in self.parameters:
+            return self.parameters[name].symbol
+        for c in self.coordinates:
+            if c.name == name:
+                return c
+        raise KeyError(name)
+
+    @cached_property
+    def geometry(self):
+        """{region name: RegionGeometry}, each computed lazily on first use of a quantity."""
+        from derive.geometry.region import RegionGeometry
+
+        return {name: RegionGeometry(self, region) for name, region in self.regions.items()}
