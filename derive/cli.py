@@ -91,6 +91,52 @@ def cmd_geometry(args) -> int:
     return 0
 
 
+def _derivation_with(spacetime, *stages):
+    from derive.report.derivation import Derivation
+    from derive.report.latex import field_sections, geometry_sections, junction_sections
+
+    derivation = Derivation(spacetime.title)
+    builders = {"geometry": geometry_sections, "junction": junction_sections, "field": field_sections}
+    for stage in stages:
+        builders[stage](derivation, spacetime)
+    return derivation
+
+
+def cmd_junction(args) -> int:
+    from derive.report.json_output import junction_json
+    from derive.report.summary import junction_summary
+
+    spacetime = _load(args)
+    if not spacetime.interfaces:
+        raise InputError("the spec has no [[interface]]: nothing to glue", file=spacetime.path, key="interface")
+    data = {"interfaces": [junction_json(shell) for shell in spacetime.shells]}
+    if args.latex:
+        _write(args.latex, _derivation_with(spacetime, "geometry", "junction").to_latex())
+    if args.json:
+        _emit_json(data)
+    else:
+        print(junction_summary(spacetime))
+    return 0
+
+
+def cmd_field(args) -> int:
+    from derive.report.json_output import field_json
+    from derive.report.summary import field_summary
+
+    spacetime = _load(args)
+    if args.l is not None and args.l < 0:
+        raise InputError("--l must be a non-negative integer", key="--l")
+    data = field_json(spacetime.field_problem, args.l)
+    if args.latex:
+        stages = ("geometry", "junction", "field") if spacetime.interfaces else ("geometry", "field")
+        _write(args.latex, _derivation_with(spacetime, *stages).to_latex())
+    if args.json:
+        _emit_json(data)
+    else:
+        print(field_summary(spacetime, data))
+    return 0
+
+
 def cmd_demo(args) -> int:
     from derive.demo import run_demo
 
@@ -119,7 +165,13 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--json", action="store_true", help="print JSON")
     p.add_argument("--latex", metavar="FILE", help="write the derivation as a LaTeX document")
 
-    # later stages register here (junction, field, kernels, ...)
+    p = spec_command("junction", "Israel junction conditions and surface stress-energy of each shell", cmd_junction)
+    p.add_argument("--json", action="store_true", help="print JSON")
+    p.add_argument("--latex", metavar="FILE", help="write the derivation as a LaTeX document")
+    p = spec_command("field", "radial equations, potentials, tortoise coordinates, ends and matching", cmd_field)
+    p.add_argument("--l", type=int, help="substitute this angular label l")
+    p.add_argument("--json", action="store_true", help="print JSON")
+    p.add_argument("--latex", metavar="FILE", help="write the derivation as a LaTeX document")
 
     p = sub.add_parser("demo", help="run the bundled scenario end to end and explain what it shows")
     p.add_argument("--out", metavar="DIR", help="also write the files of the run here")

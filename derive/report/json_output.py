@@ -75,3 +75,71 @@ def write_atomic(path: str, text: str | bytes) -> None:
         if os.path.exists(tmp):
             os.unlink(tmp)
         raise
+
+
+def _textify(value):
+    """Sympy objects inside nested dicts and lists become strings; numbers and text stay."""
+    if isinstance(value, dict):
+        return {str(k): _textify(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_textify(v) for v in value]
+    if isinstance(value, sp.MatrixBase):
+        return matrix_text(value)
+    if isinstance(value, sp.Basic):
+        return expr_text(value)
+    return value
+
+
+def junction_json(shell) -> dict:
+    """One interface (keys documented in README.md)."""
+    k = shell.extrinsic_curvature
+    return {
+        "between": list(shell.interface.between),
+        "at": shell.interface.text,
+        "solved": {str(u): expr_text(v) for u, v in shell.solved.items()},
+        "intrinsic_coordinates": [c.name for c in shell.tangential],
+        "induced_metric": matrix_text(shell.induced_metric),
+        "normal_points_to_larger": shell.coordinate.name if shell.orientation > 0 else None,
+        "extrinsic_curvature": {"first": matrix_text(k["minus"]), "second": matrix_text(k["plus"]),
+                                "jump": matrix_text(k["jump"]), "trace_jump": expr_text(k["trace_jump"])},
+        "surface_stress": matrix_text(shell.surface_stress),
+        "surface_energy_density": _textify(shell.surface_energy_density),
+        "surface_pressure": _textify(shell.surface_pressure),
+        "surface_pressures": _textify(shell.surface_pressures),
+        "proper_mass": _textify(shell.proper_mass),
+        "ricci_delta": expr_text(shell.ricci_delta),
+        "energy_conditions": shell.energy_conditions,
+    }
+
+
+def field_json(problem, l_value=None) -> dict:
+    """The radial problem of every region and the transfer matrix of every interface."""
+    from derive.fields.radial import L_SYMBOL
+
+    def at_l(expr):
+        return expr.subs(L_SYMBOL, l_value) if l_value is not None and isinstance(expr, sp.Basic) else expr
+
+    def deep(value):
+        if isinstance(value, dict):
+            return {k: deep(v) for k, v in value.items()}
+        if isinstance(value, (list, tuple)):
+            return [deep(v) for v in value]
+        return at_l(value)
+
+    regions = {}
+    for name, region in problem.regions.items():
+        regions[name] = {
+            "f": expr_text(region.f), "h": expr_text(region.h),
+            "transverse": {"n": region.form.n, "k": region.form.k},
+            "eigenvalue": expr_text(at_l(region.eigenvalue)),
+            "ricci_scalar": expr_text(region.ricci_scalar),
+            "dtortoise_dr": expr_text(region.dtortoise_dr),
+            "tortoise": None if region.tortoise is None else expr_text(region.tortoise),
+            "potential": expr_text(at_l(region.potential)),
+            "ends": _textify(deep(region.ends)),
+        }
+    interfaces = [{"between": list(m.between), "at": m.shell.interface.text,
+                   "transfer_matrix": matrix_text(m.transfer_matrix.applyfunc(at_l)),
+                   "derivative_jump": expr_text(m.derivative_jump)} for m in problem.interfaces]
+    return {"l": l_value, "mass": expr_text(problem.spacetime.field.mass),
+            "coupling": expr_text(problem.spacetime.field.coupling), "regions": regions, "interfaces": interfaces}

@@ -164,3 +164,112 @@ def compile_pdf(tex: str, timeout: float = 120.0) -> tuple[bool, str, bytes | No
                 return False, log[-3000:], None
         with open(os.path.join(tmp, "derivation.pdf"), "rb") as handle:
             return True, log[-500:], handle.read()
+
+
+def junction_sections(derivation: Derivation, spacetime) -> None:
+    """A section per interface: induced metrics, normal, K_ab on each side, the jump, S_ab, sigma and p."""
+    for shell in spacetime.shells:
+        first, second = shell.interface.between
+        ys = shell.tangential
+        sec = derivation.add(Section(
+            f"Interface {first} | {second}",
+            f"The hypersurface ${sp.latex(shell.coordinate)} = {sp.latex(shell.position)}$ with intrinsic "
+            f"coordinates $({', '.join(_name(y) for y in ys)})$. The unit normal points from region "
+            f"{escape(first)} to region {escape(second)}; $[X] = X_{{\\rm {escape(second)}}} - "
+            f"X_{{\\rm {escape(first)}}}$."))
+        induced = Section("First junction condition", "Induced metric from each side:")
+        for side in (first, second):
+            induced.equations.append(derivation.equation(
+                rf"h^{{\rm ({escape(side)})}}_{{ij}}", shell.induced_metric_of(side, solved=False), first, second,
+                "h", side))
+        for unknown, value in shell.solved.items():
+            induced.equations.append(derivation.equation(unknown, value, first, second, "solved", unknown))
+        if not shell.solved:
+            induced.text += " They agree as they stand."
+        sec.subsections.append(induced)
+        second_sec = Section("Second junction condition",
+                             r"$K_{ij} = -\Gamma^{x}{}_{ij}\, n_x$ on each side, "
+                             r"$S^i{}_j = -\frac{1}{8\pi}\left([K^i{}_j] - [K]\,\delta^i{}_j\right)$.")
+        k = shell.extrinsic_curvature
+        n_cov = shell.normal_covector(second)[shell.index]
+        second_sec.equations.append(derivation.equation(rf"n_{{{_name(shell.coordinate)}}}", n_cov, first, second,
+                                                        "normal"))
+        second_sec.equations.append(derivation.equation(rf"K^i{{}}_j\big|_{{\rm {escape(first)}}}", k["minus"],
+                                                        first, second, "K", first))
+        second_sec.equations.append(derivation.equation(rf"K^i{{}}_j\big|_{{\rm {escape(second)}}}", k["plus"],
+                                                        first, second, "K", second))
+        second_sec.equations.append(derivation.equation(r"[K^i{}_j]", k["jump"], first, second, "Kjump"))
+        second_sec.equations.append(derivation.equation(r"[K]", k["trace_jump"], first, second, "Ktrace"))
+        second_sec.equations.append(derivation.equation(r"S^i{}_j", shell.surface_stress, first, second, "S"))
+        if shell.surface_energy_density is not None:
+            second_sec.equations.append(derivation.equation(r"\sigma = -S^{t}{}_{t}", shell.surface_energy_density,
+                                                            first, second, "sigma"))
+            second_sec.equations.append(derivation.equation("p", shell.surface_pressure, first, second, "p"))
+        if shell.proper_mass is not None:
+            second_sec.equations.append(derivation.equation(r"m = 4\pi R^2 \sigma", shell.proper_mass, first,
+                                                            second, "m"))
+        second_sec.equations.append(derivation.equation(r"R \supset c\,\delta(\ell),\quad c = -2[K]",
+                                                        shell.ricci_delta, first, second, "Rdelta"))
+        conditions = shell.energy_conditions
+        second_sec.text += " Energy conditions on the shell: " + "; ".join(
+            f"{escape(name)}: {escape(v['verdict'])} ({escape(v['how'])})" for name, v in conditions.items()) + "."
+        sec.subsections.append(second_sec)
+
+
+def field_sections(derivation: Derivation, spacetime) -> None:
+    """The field: separation, radial equation, potential, tortoise coordinate, ends, matching."""
+    from derive.fields.radial import L_SYMBOL, OMEGA
+
+    problem = spacetime.field_problem
+    field = spacetime.field
+    sec = derivation.add(Section(
+        "The scalar field",
+        rf"$(\Box - \mu^2 - \xi R)\phi = 0$ with $\mu = {sp.latex(field.mass)}$, $\xi = {sp.latex(field.coupling)}$. "
+        r"Separation $\phi = e^{-i\omega t}\, Y(\text{angles})\, r^{-n/2} u(r)$ with $\Delta_\Sigma Y = -\lambda Y$; "
+        r"tortoise coordinate $dr_*/dr = 1/F$, $F = \sqrt{f h}$; Schr\"odinger form "
+        r"$d^2u/dr_*^2 + (\omega^2 - V)u = 0$; Klein-Gordon inner product "
+        r"$(\omega+\omega')\int u_\omega u_{\omega'}\, dr_*$."))
+    for name, region in problem.regions.items():
+        sub = Section(f"Region {name}")
+        sub.equations.append(derivation.equation("f", region.f, "field", name, "f"))
+        sub.equations.append(derivation.equation("h", region.h, "field", name, "h"))
+        sub.equations.append(derivation.equation(r"\lambda", region.eigenvalue, "field", name, "lambda"))
+        sub.equations.append(derivation.equation("0", region.radial_equation, "field", name, "radial"))
+        sub.equations.append(derivation.equation(r"\frac{dr_*}{dr}", region.dtortoise_dr, "field", name, "dtortoise"))
+        if region.tortoise is not None:
+            sub.equations.append(derivation.equation(r"r_*", region.tortoise, "field", name, "tortoise"))
+        else:
+            sub.text += r"$r_*$ has no closed form here; it is computed by quadrature. "
+        sub.equations.append(derivation.equation(r"V(r;\omega,l)", region.potential, "field", name, "potential"))
+        for side, end in region.ends.items():
+            text = f"{side.capitalize()} end: {escape(end['kind'])}"
+            if end["kind"] == "interface":
+                text += f" with region {escape(end['region'])}"
+            if end.get("tail"):
+                text += f", {escape(end['tail'])} tail ({escape(end.get('behaviour', ''))})"
+            sub.text += text + ". "
+            if "exponents" in end:
+                sub.equations.append(derivation.equation(
+                    r"s", sp.latex(end["exponents"][0]) + r",\ " + sp.latex(end["exponents"][1]),
+                    "field", name, side, "exponents"))
+            if "surface_gravity" in end:
+                sub.equations.append(derivation.equation(r"\kappa", end["surface_gravity"], "field", name, "kappa"))
+            series = end.get("series") or end.get("series_ingoing")
+            if series:
+                for k, coefficient in enumerate(series[1:], start=1):
+                    sub.equations.append(derivation.equation(f"a_{k}", coefficient, "field", name, side, "a", k))
+            if end.get("tail") and end["tail"] not in ("AdS-like", "growing", "unknown"):
+                sub.equations.append(derivation.equation(
+                    r"V", sp.latex(end["V_infinity"]) + " + " + rf"\frac{{{sp.latex(end['coulomb'])}}}{{r}} + "
+                    rf"\frac{{{sp.latex(end['centrifugal'])}}}{{r^2}} + O(r^{{-3}})", "field", name, "tail",
+                    relation=r"\sim"))
+        sec.subsections.append(sub)
+    for matching in problem.interfaces:
+        first, second = matching.between
+        sub = Section(f"Modes across {first} | {second}",
+                      r"From the weak form of the field equation: $\psi$ is continuous and "
+                      r"$[d\psi/d\ell] = -2\xi[K]\psi$. On the column $(u, du/dr_*)$ from region "
+                      f"{escape(first)} to region {escape(second)}:")
+        sub.equations.append(derivation.equation("T", matching.transfer_matrix, "field", first, second, "T"))
+        sec.subsections.append(sub)
+    del L_SYMBOL, OMEGA

@@ -80,3 +80,48 @@ def geometry_summary(spacetime, names) -> str:
         elif all(sp.simplify(x) == 0 for x in stress["mixed"]):
             lines.append("  vacuum: T_ab = 0")
     return "\n".join(lines)
+
+
+def junction_summary(spacetime) -> str:
+    lines = [spacetime.title]
+    for shell in spacetime.shells:
+        first, second = shell.interface.between
+        lines.append(f"\ninterface {first} | {second} at {shell.interface.text} (normal from {first} to {second})")
+        for unknown, value in shell.solved.items():
+            lines.append(f"  first junction condition: {unknown} = {_short(value)}")
+        if not shell.solved:
+            lines.append("  first junction condition: induced metrics agree")
+        lines.append(f"  [K] = {_short(shell.extrinsic_curvature['trace_jump'])}")
+        if shell.surface_energy_density is not None:
+            lines.append(f"  surface energy density sigma = {_short(shell.surface_energy_density)}")
+            lines.append(f"  surface pressure p           = {_short(shell.surface_pressure)}")
+        if shell.proper_mass is not None:
+            lines.append(f"  proper mass m = 4 pi R^2 sigma = {_short(shell.proper_mass)}")
+        values = spacetime.parameter_values
+        if shell.surface_energy_density is not None:
+            sigma = shell.surface_energy_density.subs(values)
+            p = shell.surface_pressure.subs(values)
+            if sigma.is_number and p.is_number:
+                lines.append(f"  at the spec's values: sigma = {float(sigma):.15g}, p = {float(p):.15g}")
+        for cond, verdict in shell.energy_conditions.items():
+            lines.append(f"  {cond + ' energy condition':<26} {verdict['verdict']} ({verdict['how']})")
+    return "\n".join(lines)
+
+
+def field_summary(spacetime, data) -> str:
+    lines = [f"{spacetime.title}: field with mass {data['mass']}, coupling {data['coupling']}"
+             + (f", l = {data['l']}" if data["l"] is not None else "")]
+    for name, region in data["regions"].items():
+        lines.append(f"\nregion {name}: f = {_short(region['f'], 60)}, h = {_short(region['h'], 60)}")
+        lines.append(f"  dr*/dr = {_short(region['dtortoise_dr'])}")
+        lines.append(f"  r*     = {_short(region['tortoise']) if region['tortoise'] else '(quadrature)'}")
+        lines.append(f"  V      = {_short(region['potential'])}")
+        for side, end in region["ends"].items():
+            detail = end.get("tail") or end.get("region") or ""
+            lines.append(f"  {side} end: {end['kind']} {detail}".rstrip())
+    for interface in data["interfaces"]:
+        first, second = interface["between"]
+        lines.append(f"\nmatching {first} -> {second} at {interface['at']}: (u, du/dr*) transfer matrix")
+        for row in interface["transfer_matrix"]:
+            lines.append("  [" + ",  ".join(_short(x, 70) for x in row) + "]")
+    return "\n".join(lines)

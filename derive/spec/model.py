@@ -142,3 +142,17 @@ class Spacetime:
         from derive.geometry.region import RegionGeometry
 
         return {name: RegionGeometry(self, region) for name, region in self.regions.items()}
+
+    @cached_property
+    def shells(self) -> list:
+        """One :class:`~derive.geometry.shells.Shell` per interface, in spec order."""
+        from derive.geometry.shells import Shell
+
+        return [Shell(self, interface) for interface in self.interfaces]
+
+    @cached_property
+    def field_problem(self):
+        """The :class:`~derive.fields.radial.FieldProblem`: radial equations and matching across shells."""
+        from derive.fields.radial import FieldProblem
+
+        return FieldProblem(self)

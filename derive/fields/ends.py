@@ -1,0 +1,147 @@
+"""The ends of a region's radial problem (PHYSICS.md section 6).
+
+Written as u'' + p u' + q u = 0 in r, with p = (F^2)'/(2 F^2) and q = (omega^2 - V)/F^2, each finite end r0
+is classified and, where it is a regular singular point, its Frobenius exponents (roots of
+s(s-1) + P0 s + Q0 = 0, P0 = lim x p, Q0 = lim x^2 q, x = r - r0) and first series coefficients are derived:
+
+* regular centre (r0 = 0, h(0) = 1, f(0) > 0): u ~ r^{l + n/2} (1 + a_1 r + a_2 r^2 + ...);
+* non-degenerate horizon (f = h = 0): u ~ x^{-+ i omega/(2 kappa)} (in/outgoing), kappa = sqrt(f' h')/2;
+* an interface: matched to the next region;
+* infinity: the tail of V is classified (short-range, centrifugal, Coulomb-like, AdS-like) with its leading
+  coefficients V ~ V0 + V1/r + V2/r^2.
+"""
+
+from __future__ import annotations
+
+import sympy as sp
+
+from derive.fields.radial import L_SYMBOL, OMEGA
+
+SERIES_ORDER = 2   # shown and exported; the solver continues the recursion numerically
+
+
+def _limit(expr, x):
+    try:
+        value = sp.limit(expr, x, 0, "+")
+    except Exception:   # sympy could not take the limit: treat as not finite
+        return sp.zoo
+    return sp.simplify(value)
+
+
+def frobenius(p, q, r, r0, exponent, order: int = SERIES_ORDER) -> list:
+    """Coefficients a_0 = 1, a_1, ... of u = x^s sum a_k x^k, x = r - r0, for the given exponent s."""
+    x = sp.Symbol("x", positive=True)
+    P = sp.cancel((x * p).subs(r, r0 + x))
+    Q = sp.cancel((x ** 2 * q).subs(r, r0 + x))
+    Ps = [sp.cancel(c) for c in _taylor(P, x, order + 1)]
+    Qs = [sp.cancel(c) for c in _taylor(Q, x, order + 1)]
+    coefficients = [sp.Integer(1)]
+    s = exponent
+    for k in range(1, order + 1):
+        indicial = (s + k) * (s + k - 1) + Ps[0] * (s + k) + Qs[0]
+        total = sum(coefficients[k - j] * (Ps[j] * (s + k - j) + Qs[j]) for j in range(1, k + 1))
+        indicial = sp.cancel(indicial)
+        if indicial == 0:
+            coefficients.append(sp.nan)   # resonant: a logarithm enters; not needed for the exponents we use
+            break
+        coefficients.append(sp.cancel(-total / indicial))
+    return coefficients
+
+
+def _taylor(expr, x, count):
+    """First ``count`` Taylor coefficients at x = 0 of a function rational in x (power-series division)."""
+    numer, denom = sp.fraction(sp.cancel(expr))
+    N = sp.Poly(numer, x).all_coeffs()[::-1]
+    D = sp.Poly(denom, x).all_coeffs()[::-1]
+    N += [sp.Integer(0)] * count
+    D += [sp.Integer(0)] * count
+    if sp.simplify(D[0]) == 0:
+        raise ValueError("not analytic at the expansion point")
+    c = []
+    for k in range(count):
+        c.append(sp.cancel((N[k] - sum(D[j] * c[k - j] for j in range(1, k + 1))) / D[0]))
+    return c
+
+
+def classify_ends(field) -> dict:
+    r, f, h = field.r, field.f, field.h
+    region = field.region
+    domain = region.domain_of(r)
+    lower = domain.lower if domain is not None and domain.lower is not None else sp.Integer(0)
+    upper = domain.upper if domain is not None else None
+    interfaces = {i.value: i for i in field.spacetime.interfaces if field.name in i.between and i.coordinate == r}
+    F2 = sp.cancel(f * h)
+    V = field.potential
+    p = sp.cancel(sp.diff(F2, r) / (2 * F2))
+    q = sp.cancel((OMEGA ** 2 - V) / F2)
+    return {"lower": _finite_end(field, lower, interfaces, p, q, F2, "lower"),
+            "upper": _infinity(field, V) if upper is None else _finite_end(field, upper, interfaces, p, q, F2, "upper")}
+
+
+def _finite_end(field, r0, interfaces, p, q, F2, side) -> dict:
+    r, f, h = field.r, field.f, field.h
+    if r0 in interfaces:
+        other = [n for n in interfaces[r0].between if n != field.name][0]
+        return {"kind": "interface", "at": r0, "region": other}
+    x = sp.Symbol("x", positive=True)
+    shift = (lambda e: e.subs(r, r0 + x)) if side == "lower" else (lambda e: e.subs(r, r0 - x))
+    f0, h0 = _limit(shift(f), x), _limit(shift(h), x)
+    if f0 == 0 and h0 == 0:
+        fp = _limit(sp.diff(f, r).subs(r, r0 + (x if side == "lower" else -x)), x)
+        hp = _limit(sp.diff(h, r).subs(r, r0 + (x if side == "lower" else -x)), x)
+        kappa = sp.simplify(sp.sqrt(sp.factor(fp * hp)) / 2)
+        if kappa == 0:
+            return {"kind": "degenerate horizon", "at": r0}
+        ingoing = -sp.I * OMEGA / (2 * kappa)
+        end = {"kind": "horizon", "at": r0, "surface_gravity": kappa,
+               "hawking_temperature": sp.simplify(kappa / (2 * sp.pi)),
+               "exponents": [ingoing, -ingoing],
+               "behaviour": "u ~ exp(-+ i omega r*) ~ (r - r_h)^(-+ i omega/(2 kappa))"}
+        if side == "lower":
+            end["series_ingoing"] = frobenius(p, q, r, r0, ingoing)
+        return end
+    if r0 == 0 and side == "lower":
+        if sp.simplify(h0 - 1) == 0 and f0 != 0 and not f0.has(sp.oo, -sp.oo, sp.zoo, sp.nan):
+            P0 = _limit(sp.cancel(x * p.subs(r, x)), x)
+            Q0 = _limit(sp.cancel(x ** 2 * q.subs(r, x)), x)
+            s = sp.Symbol("s")
+            roots = sp.solve(sp.expand(s * (s - 1) + P0 * s + Q0), s)
+            roots = sorted(roots, key=lambda e: -float(e.subs(L_SYMBOL, 1)))
+            regular = sp.simplify(roots[0])
+            return {"kind": "regular centre", "at": 0, "exponents": [sp.simplify(e) for e in roots],
+                    "regular_exponent": regular, "series": frobenius(p, q, r, 0, regular),
+                    "behaviour": "u ~ r^(l + n/2) (1 + a_1 r + ...)"}
+        return {"kind": "singular", "at": 0}
+    return {"kind": "boundary", "at": r0}
+
+
+def _infinity(field, V) -> dict:
+    r, f = field.r, field.f
+    z = sp.Symbol("z", positive=True)
+    f_inf = sp.limit(f, r, sp.oo)
+    if f_inf in (sp.oo, -sp.oo):
+        lead = sp.limit(f / r ** 2, r, sp.oo)
+        return {"kind": "infinity", "tail": "AdS-like" if lead.is_positive else "growing",
+                "f_leading": sp.simplify(lead) * r ** 2,
+                "behaviour": "reflecting conformal boundary at finite r*: the spectrum is discrete"}
+    try:
+        expansion = sp.series(V.subs(r, 1 / z), z, 0, 3).removeO()
+        f_expansion = sp.series(f.subs(r, 1 / z), z, 0, 2).removeO()
+    except Exception:   # sympy could not expand: say so rather than guess
+        return {"kind": "infinity", "tail": "unknown"}
+    V0, V1, V2 = (sp.simplify(expansion.coeff(z, k)) for k in range(3))
+    if V0 != 0:
+        tail = "Coulomb-like (massive)" if V1 != 0 else "massive, short-range"
+    elif V1 != 0:
+        tail = "Coulomb-like"
+    elif V2 != 0:
+        tail = "centrifugal"
+    else:
+        tail = "short-range"
+    return {"kind": "infinity", "tail": tail, "V_infinity": V0, "coulomb": V1, "centrifugal": V2,
+            "f_expansion": sp.simplify(f_expansion.subs(z, 1 / r)),
+            "behaviour": {"short-range": "free waves exp(+- i omega r*)",
+                          "centrifugal": "Riccati-Bessel functions of omega r*",
+                          "Coulomb-like": "Coulomb wave functions",
+                          "Coulomb-like (massive)": "Coulomb wave functions; evanescent below the mass",
+                          "massive, short-range": "free waves in sqrt(omega^2 - V0); evanescent below"}[tail]}

@@ -1,0 +1,88 @@
+"""Modes across a thin shell, from the weak (distributional) form of the Klein-Gordon equation.
+
+Multiply (Box - mu^2 - xi R) phi = 0 by sqrt(-g) and integrate in r across the shell at r = R.  Only two terms
+survive as the interval shrinks (PHYSICS.md section 5):
+
+* the radial flux term d_r(sqrt(-g) g^rr d_r psi) integrates to the jump of P psi_r, P = W h, W = sqrt(f/h) r^n;
+* the delta part of the Ricci scalar, R = -2 [K] delta(l), with delta(l) = sqrt(h) delta(r - R), gives
+  -2 xi [K] w psi with w = W sqrt(h) = sqrt(f) r^n (continuous when f is).
+
+Integrating in the direction of increasing r, with s = +1 when the second region of ``between`` lies at
+larger r: psi is continuous and (P psi_r)(second) = (P psi_r)(first) - 2 s xi [K] w psi.
+(Orientation: [K] is unchanged when the normal and the sides are both swapped, so -2[K]delta is too.)
+With psi = r^{-n/2} u and u_r = u'/F (u' = du/dr*), this is solved by sympy for u' on the second side, giving
+the transfer matrix on the column (u, du/dr*).  PHYSICS.md's [d psi/dl] = -2 xi [K] psi is the check.
+"""
+
+from __future__ import annotations
+
+from functools import cached_property
+
+import sympy as sp
+
+from derive.errors import JunctionError
+
+
+class Matching:
+    """The transfer matrix across one interface, from ``between[0]`` to ``between[1]``."""
+
+    def __init__(self, problem, shell):
+        self.problem = problem
+        self.shell = shell
+        self.between = shell.interface.between
+
+    def _side(self, name):
+        return self.problem.regions[name]
+
+    @cached_property
+    def pieces(self) -> dict:
+        """P, w, F and the orientation on each side at the shell."""
+        first, second = (self._side(n) for n in self.between)
+        if first.r != self.shell.coordinate:
+            raise JunctionError(f"the interface {self.shell.interface.text} is not at constant {first.r}; modes are "
+                                "matched across shells at constant radius only", file=self.problem.spacetime.path)
+        R = self.shell.position
+        out = {}
+        for label, side in (("first", first), ("second", second)):
+            n = side.form.n
+            W = sp.sqrt(side.f / side.h) * side.r ** n
+            out[label] = {
+                "P": sp.simplify((W * side.h).subs(side.r, R)),
+                "w": sp.simplify((W * sp.sqrt(side.h)).subs(side.r, R)),
+                "F": sp.simplify(side.F.subs(side.r, R)),
+                "n": n,
+            }
+        if sp.simplify(out["first"]["w"] - out["second"]["w"]) != 0:
+            raise JunctionError(f"at {self.shell.interface.text} the weight sqrt(f) r^n of the delta term differs "
+                                "between the sides (g_tt is not continuous)", file=self.problem.spacetime.path)
+        out["orientation"] = self.shell.orientation
+        return out
+
+    @cached_property
+    def transfer_matrix(self) -> sp.Matrix:
+        """T with (u, du/dr*)_second = T (u, du/dr*)_first, as a sympy Matrix in l, omega and the parameters."""
+        p = self.pieces
+        R = self.shell.position
+        n = p["first"]["n"]
+        xi = self.problem.spacetime.field.coupling
+        jump_k = self.shell.extrinsic_curvature["trace_jump"]
+        u, du1, du2 = sp.symbols("u du1 du2")
+
+        def flux(side, du):   # P psi_r with psi_r = r^{-n/2} (du/F - n u /(2 r))
+            return p[side]["P"] * R ** sp.Rational(-n, 2) * (du / p[side]["F"] - n * u / (2 * R))
+
+        psi = R ** sp.Rational(-n, 2) * u
+        equation = sp.Eq(flux("second", du2), flux("first", du1) - 2 * p["orientation"] * xi * jump_k * p["first"]["w"] * psi)
+        solution = sp.solve(equation, du2, dict=True)
+        if len(solution) != 1:
+            raise JunctionError(f"could not solve the matching condition at {self.shell.interface.text}",
+                                file=self.problem.spacetime.path)
+        du_second = sp.expand(solution[0][du2])
+        row = [sp.simplify(du_second.coeff(u)), sp.simplify(du_second.coeff(du1))]
+        return sp.Matrix([[1, 0], row])
+
+    @cached_property
+    def derivative_jump(self):
+        """[d psi/dl]/psi implied by the transfer matrix (PHYSICS.md section 5: -2 xi [K])."""
+        xi = self.problem.spacetime.field.coupling
+        return sp.simplify(-2 * xi * self.shell.extrinsic_curvature["trace_jump"])

@@ -1,0 +1,241 @@
+"""The Klein-Gordon field on a static region, reduced to a radial Schrodinger problem.
+
+Field equation (PHYSICS.md section 4): (Box - mu^2 - xi R) phi = 0.  For ds^2 = -f dt^2 + dr^2/h + r^2 dSigma^2
+separate phi = e^{-i omega t} Y r^{-n/2} u(r), with Delta_Sigma Y = -lambda Y.  The code *derives* the
+Schrodinger form from the metric rather than copying a formula:
+
+1. the radial part of Box is (1/W) d/dr (W h dpsi/dr) with W = sqrt(-g)/sqrt(det gamma) = sqrt(f/h) r^n,
+   so (Box - mu^2 - xi R) phi = 0 becomes  h psi'' + h (log(W h))' psi' + (omega^2/f - lambda/r^2 - mu^2 - xi R) psi = 0;
+2. psi = r^{-n/2} u is substituted and the equation multiplied by f;
+3. with d/dr* = F d/dr, F = sqrt(f h), the part F^2 u'' + F F' u' is exactly d^2u/dr*^2, and what is left must be
+   (omega^2 - V) u with no derivative of u; the code checks this and reads off V.
+
+The result is checked in the tests against PHYSICS.md's V = f (lambda/r^2 + mu^2 + xi R) + (n/2) F F'/r
++ (n/2)(n/2 - 1) F^2/r^2 and the published potentials (Regge & Wheeler 1957 for Schwarzschild).
+"""
+
+from __future__ import annotations
+
+from functools import cached_property
+
+import sympy as sp
+
+from derive.errors import GeometryError
+from derive.geometry.static_form import static_form
+
+#: Symbols the field stage introduces (they stay symbols in potentials and matrices).
+L_SYMBOL = sp.Symbol("l", nonnegative=True)
+OMEGA = sp.Symbol("omega", positive=True)
+
+
+def _tidy(expr):
+    expr = sp.cancel(expr)
+    if expr.count_ops() > 150:
+        return expr
+    candidates = [expr, sp.factor(expr)]
+    return min(candidates, key=sp.count_ops)
+
+
+def sample_radius(region, radius, values) -> float:
+    """A radius well inside the region (numbers), for sign checks."""
+    from derive.geometry.matter import sample_points
+
+    column = sample_points(region, [radius], values, count=9)[0]
+    return float(column[len(column) // 2])
+
+
+def positive_root(square, radius, region, values):
+    """sqrt(square) as a closed form positive inside the region (perfect squares are taken out)."""
+    candidate = sp.powdenest(sp.sqrt(sp.factor(square)), force=True)
+    # sqrt of a square of a real expression comes back as Abs(...): the sign is fixed below instead
+    candidate = candidate.replace(sp.Abs, lambda arg: arg)
+    candidate = sp.factor(candidate) if candidate.count_ops() < 100 else candidate
+    point = sample_radius(region, radius, values)
+    number = candidate.subs(values).subs(radius, point)
+    if number.is_number and number.is_real and number < 0:
+        candidate = -candidate
+    return candidate
+
+
+def rational_antiderivative(integrand, r, inside: float, values: dict):
+    """int integrand dr for a rational integrand whose denominator has simple roots: polynomial part plus
+    sum over the roots rho of Res(rho) log|r - rho|, the sign inside the log fixed at r = ``inside``.
+    None when the integrand is not of that kind."""
+    if not integrand.is_rational_function(r):
+        return None
+    numer, denom = sp.fraction(sp.cancel(integrand))
+    quotient, remainder = sp.div(sp.Poly(numer, r), sp.Poly(denom, r))
+    result = sp.integrate(quotient.as_expr(), r)
+    if remainder.is_zero:
+        return result
+    roots = sp.roots(sp.Poly(denom, r))
+    if sum(roots.values()) != sp.degree(denom, r) or any(m != 1 for m in roots.values()):
+        return None
+    derivative = sp.diff(denom, r)
+    for root in roots:
+        residue = sp.simplify((remainder.as_expr() / derivative).subs(r, root))
+        argument = r - root
+        try:
+            sign = float(sp.re(sp.N(argument.subs(values).subs(r, inside))))
+        except (TypeError, ValueError):
+            sign = 1.0
+        result += residue * sp.log(argument if sign >= 0 else -argument)
+    return result
+
+
+def derivative_matches(antiderivative, integrand, r, region, values) -> bool:
+    """d(antiderivative)/dr == integrand: exactly when cancel shows it, else at 30 digits at five radii."""
+    import mpmath
+
+    from derive.geometry.matter import sample_points
+
+    difference = sp.diff(antiderivative, r) - integrand
+    if sp.cancel(difference) == 0:
+        return True
+    exact = {k: sp.Rational(repr(float(v))) for k, v in values.items()}   # so that 30 digits mean 30 digits
+    numeric = difference.subs(exact)
+    with mpmath.workdps(30):
+        for point in sample_points(region, [r], values, count=5)[0]:
+            point = sp.Rational(repr(float(point)))
+            scale = abs(sp.N(integrand.subs(exact).subs(r, point), 30)) + 1e-30
+            value = sp.N(numeric.subs(r, point), 30)
+            if not value.is_number or abs(value) > 1e-20 * scale:
+                return False
+    return True
+
+
+class RegionField:
+    """The radial problem in one region (after the first junction conditions are applied)."""
+
+    def __init__(self, spacetime, region_name: str, solved: dict | None = None):
+        self.spacetime = spacetime
+        self.name = region_name
+        self.region = spacetime.regions[region_name]
+        self.solved = dict(solved or {})
+        metric = self.region.metric.subs(self.solved)
+        try:
+            self.form = static_form(metric, spacetime.coordinates, region_name)
+        except GeometryError as exc:
+            raise exc.located(spacetime.path, f"region '{region_name}'") from None
+        if spacetime.field is None:
+            from derive.errors import SpecError
+
+            raise SpecError("no [field] section: mass and coupling are needed", file=spacetime.path, key="field")
+        self.mass = spacetime.field.mass
+        self.coupling = spacetime.field.coupling
+        self.r = self.form.radius
+        self.values = spacetime.parameter_values
+        f, h = self.form.f, self.form.h
+        at = sample_radius(self.region, self.r, self.values)
+        for name, expr in (("f = -g_tt", f), ("h = 1/g_rr", h)):
+            number = expr.subs(self.values).subs(self.r, at)
+            if number.is_number and number.is_real and number <= 0:
+                raise GeometryError(f"region '{region_name}': {name} is not positive at {self.r} = {at:g}, so "
+                                    "the region is not static there", file=spacetime.path,
+                                    key=f"region '{region_name}'")
+
+    # -- pieces --------------------------------------------------------------------------------------
+    @property
+    def f(self):
+        return self.form.f
+
+    @property
+    def h(self):
+        return self.form.h
+
+    @cached_property
+    def F(self):
+        """F = sqrt(f h) = dr/dr*, positive in the region."""
+        if sp.cancel(self.f - self.h) == 0:
+            return positive_root(self.f ** 2, self.r, self.region, self.values)
+        return positive_root(sp.cancel(self.f * self.h), self.r, self.region, self.values)
+
+    @cached_property
+    def ricci_scalar(self):
+        return sp.cancel(self.spacetime.geometry[self.name].ricci_scalar.subs(self.solved))
+
+    @property
+    def eigenvalue(self):
+        return self.form.eigenvalue(L_SYMBOL)
+
+    @cached_property
+    def radial_equation(self) -> sp.Expr:
+        """The radial Klein-Gordon equation for psi(r) (= 0), derived from the metric (step 1 above)."""
+        psi = sp.Function("psi")(self.r)
+        f, h, r, n = self.f, self.h, self.r, self.form.n
+        log_w_prime = (sp.diff(f, r) / f - sp.diff(h, r) / h) / 2 + sp.Integer(n) / r
+        return (h * sp.diff(psi, r, 2) + (sp.diff(h, r) + h * log_w_prime) * sp.diff(psi, r)
+                + (OMEGA ** 2 / f - self.eigenvalue / r ** 2 - self.mass ** 2 - self.coupling * self.ricci_scalar) * psi)
+
+    @cached_property
+    def potential(self) -> sp.Expr:
+        """V(r; omega, l) of d^2u/dr*^2 + (omega^2 - V) u = 0, derived (steps 2 and 3 above)."""
+        r, n = self.r, self.form.n
+        u = sp.Function("u")(r)
+        psi = sp.Function("psi")(r)
+        equation = self.radial_equation.subs(psi, r ** sp.Rational(-n, 2) * u).doit()
+        scaled = sp.expand(self.f * r ** sp.Rational(n, 2) * equation)
+        F2 = sp.cancel(self.f * self.h)
+        schrodinger = F2 * sp.diff(u, r, 2) + sp.diff(F2, r) / 2 * sp.diff(u, r)   # d^2u/dr*^2 = F(F u')'
+        rest = sp.expand(scaled - schrodinger)
+        d1, d2 = sp.diff(u, r), sp.diff(u, r, 2)
+        leftover = [sp.cancel(rest.coeff(d2)), sp.cancel(rest.coeff(d1))]
+        if any(c != 0 for c in leftover):
+            raise GeometryError(f"region '{self.name}': the radial equation did not reduce to Schrodinger form "
+                                f"(left over: {leftover})")
+        coefficient = sp.cancel(rest.subs(u, sp.Symbol("U")) / sp.Symbol("U"))
+        return _tidy(OMEGA ** 2 - coefficient)
+
+    @cached_property
+    def dtortoise_dr(self):
+        return _tidy(1 / self.F)
+
+    @cached_property
+    def tortoise(self):
+        """r*(r) in closed form (up to a constant) when 1/F is rational in r with simple poles, else None
+        (left to quadrature).  Every closed form is checked by differentiating it back."""
+        result = rational_antiderivative(sp.cancel(1 / self.F), self.r,
+                                         sample_radius(self.region, self.r, self.values), self.values)
+        if result is None:
+            return None
+        if not derivative_matches(result, 1 / self.F, self.r, self.region, self.values):
+            return None
+        return result
+
+    @cached_property
+    def ends(self) -> dict:
+        from derive.fields.ends import classify_ends
+
+        return classify_ends(self)
+
+    def inner_product_weight(self):
+        """(phi_1, phi_2) = (omega_1 + omega_2) int u_1 u_2 dr*, dr* = dr/F (PHYSICS.md section 4)."""
+        return self.dtortoise_dr
+
+
+class FieldProblem:
+    """The radial problem of every region and the matching across every interface."""
+
+    def __init__(self, spacetime):
+        self.spacetime = spacetime
+
+    @cached_property
+    def shells(self):
+        return self.spacetime.shells
+
+    @cached_property
+    def solved(self) -> dict:
+        result = {}
+        for shell in self.shells:
+            result.update(shell.solved)
+        return result
+
+    @cached_property
+    def regions(self) -> dict:
+        return {name: RegionField(self.spacetime, name, self.solved) for name in self.spacetime.regions}
+
+    @cached_property
+    def interfaces(self) -> list:
+        from derive.fields.matching import Matching
+
+        return [Matching(self, shell) for shell in self.shells]
