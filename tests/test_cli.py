@@ -88,3 +88,18 @@ def test_console_script_entry_point_runs():
     proc = subprocess.run([sys.executable, "-m", "derive.cli", "check", SCHWARZSCHILD], capture_output=True,
                           text=True, cwd=ROOT, env={**os.environ, "PYTHONPATH": ROOT})
     assert proc.returncode == 0, proc.stderr
+
+
+@pytest.mark.latex
+@pytest.mark.skipif(shutil.which("pdflatex") is None, reason="pdflatex not installed (CI installs it)")
+@pytest.mark.parametrize("example", ["dust_shell", "de_sitter_bubble"])
+def test_full_derivation_with_shells_and_field_compiles(capsys, tmp_path, example):
+    from derive.report.latex import compile_pdf
+
+    target = tmp_path / "derivation.tex"
+    spec = os.path.join(ROOT, "worked", example, "spec.toml")
+    assert run(capsys, "field", spec, "--latex", str(target))[0] == 0
+    text = target.read_text()
+    assert "Second junction condition" in text and "Modes across" in text
+    ok, log, pdf = compile_pdf(text)
+    assert ok, log

@@ -51,6 +51,16 @@ def frobenius(p, q, r, r0, exponent, order: int = SERIES_ORDER) -> list:
 def _taylor(expr, x, count):
     """First ``count`` Taylor coefficients at x = 0 of a function rational in x (power-series division)."""
     numer, denom = sp.fraction(sp.cancel(expr))
+    if not (numer.is_polynomial(x) and denom.is_polynomial(x)):
+        # radicals in x: Taylor coefficients by differentiation (the expression is analytic at x = 0 here)
+        coefficients, term = [], expr
+        for k in range(count):
+            value = sp.cancel(term.subs(x, 0))
+            if value.has(sp.zoo, sp.nan, sp.oo):
+                raise ValueError("not analytic at the expansion point")
+            coefficients.append(value / sp.factorial(k))
+            term = sp.diff(term, x)
+        return coefficients
     N = sp.Poly(numer, x).all_coeffs()[::-1]
     D = sp.Poly(denom, x).all_coeffs()[::-1]
     N += [sp.Integer(0)] * count

@@ -21,6 +21,7 @@ from functools import cached_property
 import sympy as sp
 
 from derive.errors import JunctionError
+from derive.geometry.checks import simplify_checked, vanishes
 
 
 class Matching:
@@ -52,7 +53,7 @@ class Matching:
                 "F": sp.simplify(side.F.subs(side.r, R)),
                 "n": n,
             }
-        if sp.simplify(out["first"]["w"] - out["second"]["w"]) != 0:
+        if not vanishes(out["first"]["w"] - out["second"]["w"], self.problem.spacetime.parameter_values):
             raise JunctionError(f"at {self.shell.interface.text} the weight sqrt(f) r^n of the delta term differs "
                                 "between the sides (g_tt is not continuous)", file=self.problem.spacetime.path)
         out["orientation"] = self.shell.orientation
@@ -78,7 +79,9 @@ class Matching:
             raise JunctionError(f"could not solve the matching condition at {self.shell.interface.text}",
                                 file=self.problem.spacetime.path)
         du_second = sp.expand(solution[0][du2])
-        row = [sp.simplify(du_second.coeff(u)), sp.simplify(du_second.coeff(du1))]
+        values = self.problem.spacetime.parameter_values
+        row = [simplify_checked(sp.simplify(du_second.coeff(u)), values),
+               simplify_checked(sp.simplify(du_second.coeff(du1)), values)]
         return sp.Matrix([[1, 0], row])
 
     @cached_property

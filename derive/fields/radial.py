@@ -21,6 +21,7 @@ from functools import cached_property
 import sympy as sp
 
 from derive.errors import GeometryError
+from derive.geometry.checks import vanishes
 from derive.geometry.static_form import static_form
 
 #: Symbols the field stage introduces (they stay symbols in potentials and matrices).
@@ -159,32 +160,42 @@ class RegionField:
         return self.form.eigenvalue(L_SYMBOL)
 
     @cached_property
-    def radial_equation(self) -> sp.Expr:
-        """The radial Klein-Gordon equation for psi(r) (= 0), derived from the metric (step 1 above)."""
-        psi = sp.Function("psi")(self.r)
+    def radial_coefficients(self) -> tuple:
+        """(A, B, C) of the radial equation A psi'' + B psi' + C psi = 0 (step 1 above)."""
         f, h, r, n = self.f, self.h, self.r, self.form.n
         log_w_prime = (sp.diff(f, r) / f - sp.diff(h, r) / h) / 2 + sp.Integer(n) / r
-        return (h * sp.diff(psi, r, 2) + (sp.diff(h, r) + h * log_w_prime) * sp.diff(psi, r)
-                + (OMEGA ** 2 / f - self.eigenvalue / r ** 2 - self.mass ** 2 - self.coupling * self.ricci_scalar) * psi)
+        A = h
+        B = sp.diff(h, r) + h * log_w_prime
+        C = OMEGA ** 2 / f - self.eigenvalue / r ** 2 - self.mass ** 2 - self.coupling * self.ricci_scalar
+        return A, B, C
+
+    @property
+    def radial_equation(self) -> sp.Expr:
+        """The radial Klein-Gordon equation for psi(r) (= 0), derived from the metric."""
+        psi = sp.Function("psi")(self.r)
+        A, B, C = self.radial_coefficients
+        return A * sp.diff(psi, self.r, 2) + B * sp.diff(psi, self.r) + C * psi
 
     @cached_property
     def potential(self) -> sp.Expr:
-        """V(r; omega, l) of d^2u/dr*^2 + (omega^2 - V) u = 0, derived (steps 2 and 3 above)."""
-        r, n = self.r, self.form.n
-        u = sp.Function("u")(r)
-        psi = sp.Function("psi")(r)
-        equation = self.radial_equation.subs(psi, r ** sp.Rational(-n, 2) * u).doit()
-        scaled = sp.expand(self.f * r ** sp.Rational(n, 2) * equation)
+        """V(r; omega, l) of d^2u/dr*^2 + (omega^2 - V) u = 0, derived (steps 2 and 3 above).
+
+        With psi = r^{-n/2} u:  psi' = r^{-n/2}(u' - n u/(2r)),  psi'' = r^{-n/2}(u'' - n u'/r + n(n+2) u/(4r^2)).
+        Multiplying by f r^{n/2} gives c2 u'' + c1 u' + c0 u = 0; c2 = F^2 and c1 = (F^2)'/2 are checked
+        (exactly, or at 30 digits where radicals defeat cancel), and V = omega^2 - c0."""
+        r, n, f = self.r, sp.Integer(self.form.n), self.f
+        A, B, C = self.radial_coefficients
+        c2 = f * A
+        c1 = f * (B - n * A / r)
+        c0 = f * (C - n * B / (2 * r) + A * n * (n + 2) / (4 * r ** 2))
         F2 = sp.cancel(self.f * self.h)
-        schrodinger = F2 * sp.diff(u, r, 2) + sp.diff(F2, r) / 2 * sp.diff(u, r)   # d^2u/dr*^2 = F(F u')'
-        rest = sp.expand(scaled - schrodinger)
-        d1, d2 = sp.diff(u, r), sp.diff(u, r, 2)
-        leftover = [sp.cancel(rest.coeff(d2)), sp.cancel(rest.coeff(d1))]
-        if any(c != 0 for c in leftover):
-            raise GeometryError(f"region '{self.name}': the radial equation did not reduce to Schrodinger form "
-                                f"(left over: {leftover})")
-        coefficient = sp.cancel(rest.subs(u, sp.Symbol("U")) / sp.Symbol("U"))
-        return _tidy(OMEGA ** 2 - coefficient)
+        points = [{r: sample_radius(self.region, r, self.values) * k} for k in (1, 1.01)]
+        values = {**self.values, OMEGA: 0.7, L_SYMBOL: 2}
+        for label, expr in (("u''", c2 - F2), ("u'", c1 - sp.diff(F2, r) / 2)):
+            if not vanishes(expr, values, points):
+                raise GeometryError(f"region '{self.name}': the radial equation did not reduce to Schrodinger "
+                                    f"form (coefficient of {label} is off by {expr})")
+        return _tidy(OMEGA ** 2 - c0)
 
     @cached_property
     def dtortoise_dr(self):

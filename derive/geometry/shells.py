@@ -20,6 +20,7 @@ from functools import cached_property
 import sympy as sp
 
 from derive.errors import GeometryError, JunctionError
+from derive.geometry.checks import simplify_checked
 from derive.geometry.matter import energy_conditions
 
 
@@ -90,7 +91,7 @@ class Shell:
                     if number.is_number and not (number.is_real and number > 0):
                         ok = False
                 if ok:
-                    solution = {k: _clean(v) for k, v in candidate.items()}
+                    solution = {k: _clean(simplify_checked(v, values)) for k, v in candidate.items()}
                     break
         free = [u for u in self.unknowns if u not in solution]
         remaining = {k: sp.simplify(v.subs(solution)) for k, v in equations.items()}

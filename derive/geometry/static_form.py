@@ -53,8 +53,8 @@ def static_form(metric: sp.Matrix, coordinates, region_name: str = "region") -> 
         raise GeometryError(f"{where}: the metric is not diagonal, so it is not of the static form "
                             "-f dt^2 + dr^2/h + r^2 dSigma^2 (coordinates ordered t, r, angles)")
     t, r, angles = coordinates[0], coordinates[1], tuple(coordinates[2:])
-    f = sp.cancel(-metric[0, 0])
-    h = sp.cancel(1 / metric[1, 1])
+    f = min((-metric[0, 0], sp.cancel(-metric[0, 0])), key=sp.count_ops)
+    h = min((1 / metric[1, 1], sp.cancel(1 / metric[1, 1])), key=sp.count_ops)
     for name, expr in (("g_tt", f), ("g_rr", h)):
         extra = expr.free_symbols & (set(coordinates) - {r})
         if extra:

@@ -1,0 +1,57 @@
+"""Deciding that a symbolic expression vanishes: exactly where sympy can, else at 30 digits.
+
+``vanishes`` first tries ``cancel`` and ``simplify``; when they cannot settle it (radicals with sign
+conditions, for instance) it evaluates the expression with mpmath at 30 significant digits at the spec's
+parameter values and a few other points, and accepts it only if every value is below 1e-20 of the size of the
+terms.  This is a check, not a proof, and the code that relies on it says so.
+"""
+
+from __future__ import annotations
+
+import mpmath
+import sympy as sp
+
+
+def _exact(values: dict) -> dict:
+    return {k: sp.Rational(repr(float(v))) for k, v in values.items()}
+
+
+def vanishes(expr, values: dict, points: list[dict] | None = None, simplify: bool = True) -> bool:
+    """True when ``expr`` is zero exactly, or to 20 digits at the given parameter values and points."""
+    expr = sp.sympify(expr)
+    if expr == 0 or sp.cancel(expr) == 0:
+        return True
+    if simplify and expr.count_ops() < 300 and sp.simplify(expr) == 0:
+        return True
+    base = _exact(values)
+    trials = [dict(base)]
+    for point in points or []:
+        trials.append({**base, **_exact(point)})
+    terms = sp.Add.make_args(sp.expand(expr)) if expr.count_ops() < 300 else (expr,)
+    with mpmath.workdps(30):
+        for trial in trials:
+            value = sp.N(expr.subs(trial), 30)
+            if not value.is_number:
+                return False
+            scale = max([abs(sp.N(t.subs(trial), 30)) for t in terms] + [sp.Float(1e-30)])
+            if abs(value) > 1e-20 * scale:
+                return False
+    return True
+
+
+def simplify_checked(expr, values: dict):
+    """A shorter form of ``expr`` that takes square roots of squares as positive, accepted only if it agrees
+    with ``expr`` at 30 digits at the spec's parameter values (so the sign assumption is checked, not made)."""
+    expr = sp.sympify(expr)
+    radical = (lambda e: e.is_Pow and e.exp.is_Rational and not e.exp.is_Integer)
+    exact = _exact(values)
+
+    def signed(arg):   # |a| -> a or -a, whichever is positive at the spec's values
+        number = sp.N(arg.subs(exact), 30)
+        return -arg if number.is_number and number.is_real and number < 0 else arg
+    candidate = expr.replace(radical, lambda e: sp.factor(e.base) ** e.exp)
+    candidate = sp.powdenest(candidate.replace(sp.Abs, signed), force=True).replace(sp.Abs, signed)
+    candidate = sp.simplify(candidate) if candidate.count_ops() < 200 else candidate
+    if sp.count_ops(candidate) < sp.count_ops(expr) and vanishes(candidate - expr, values, simplify=False):
+        return candidate
+    return expr
