@@ -137,6 +137,30 @@ def cmd_field(args) -> int:
     return 0
 
 
+def cmd_kernels(args) -> int:
+    from derive.codegen.catalog import KernelSet
+    from derive.codegen.export import export, kernel_records
+
+    spacetime = _load(args)
+    kernels = KernelSet(spacetime)
+    if args.out:
+        document = export(kernels, args.out)
+        print(f"wrote {args.out}", file=sys.stderr)
+    else:
+        kernels.verify_all()
+        document = {"kernels": kernel_records(kernels)}
+    if args.json:
+        _emit_json({"kernels": document["kernels"]})
+    else:
+        for k in document["kernels"]:
+            owner = k.get("region") or k.get("interface")
+            print(f"{k['name']:<40} {k['quantity']:<16} {owner:<18} {k['status']:<9} "
+                  f"max rel. error {k['max_relative_error']:.1e} over {k['points']} points")
+            if k["status"] != "verified":
+                print(f"    {k['reason']}")
+    return 0
+
+
 def cmd_demo(args) -> int:
     from derive.demo import run_demo
 
@@ -172,6 +196,10 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--l", type=int, help="substitute this angular label l")
     p.add_argument("--json", action="store_true", help="print JSON")
     p.add_argument("--latex", metavar="FILE", help="write the derivation as a LaTeX document")
+    p = spec_command("kernels", "numeric kernels (numpy and mpmath), verified against 40-digit evaluation",
+                     cmd_kernels)
+    p.add_argument("--out", metavar="DIR", help="write a standalone, importable folder of kernels here")
+    p.add_argument("--json", action="store_true", help="print JSON")
 
     p = sub.add_parser("demo", help="run the bundled scenario end to end and explain what it shows")
     p.add_argument("--out", metavar="DIR", help="also write the files of the run here")

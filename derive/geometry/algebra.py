@@ -96,7 +96,7 @@ class RationalEngine:
         self.coordinates = tuple(coordinates)
         atoms: set = set()
         for expr in expressions:
-            find_atoms(sp.sympify(expr), atoms)
+            find_atoms(sp.S(expr), atoms)
         atoms = self._close(atoms)
         if len(atoms) > MAX_ATOMS:
             raise Unrepresentable(f"{len(atoms)} transcendental atoms")
@@ -105,7 +105,7 @@ class RationalEngine:
         self.symbol_atoms = {s: a for a, s in self.atom_symbols.items()}
         free = set()
         for expr in list(expressions) + ordered:
-            free |= sp.sympify(expr).free_symbols
+            free |= sp.S(expr).free_symbols
         free -= set(self.atom_symbols.values())
         params = sorted(free - set(self.coordinates), key=sp.default_sort_key)
         self.symbols = list(self.coordinates) + params + [self.atom_symbols[a] for a in ordered]
@@ -159,7 +159,7 @@ class RationalEngine:
     # -- conversion ----------------------------------------------------------------------------------
     def to_field(self, expr):
         """Convert a sympy expression into the field."""
-        expr = sp.sympify(expr)
+        expr = sp.S(expr)
         try:
             return self._convert(expr)
         except Unrepresentable:

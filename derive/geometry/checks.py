@@ -18,7 +18,7 @@ def _exact(values: dict) -> dict:
 
 def vanishes(expr, values: dict, points: list[dict] | None = None, simplify: bool = True) -> bool:
     """True when ``expr`` is zero exactly, or to 20 digits at the given parameter values and points."""
-    expr = sp.sympify(expr)
+    expr = sp.S(expr)
     if expr == 0 or sp.cancel(expr) == 0:
         return True
     if simplify and expr.count_ops() < 300 and sp.simplify(expr) == 0:
@@ -42,7 +42,7 @@ def vanishes(expr, values: dict, points: list[dict] | None = None, simplify: boo
 def simplify_checked(expr, values: dict):
     """A shorter form of ``expr`` that takes square roots of squares as positive, accepted only if it agrees
     with ``expr`` at 30 digits at the spec's parameter values (so the sign assumption is checked, not made)."""
-    expr = sp.sympify(expr)
+    expr = sp.S(expr)
     radical = (lambda e: e.is_Pow and e.exp.is_Rational and not e.exp.is_Integer)
     exact = _exact(values)
 

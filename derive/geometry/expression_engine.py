@@ -20,7 +20,7 @@ class ExpressionEngine:
         self.coordinates = tuple(coordinates)
 
     def to_field(self, expr):
-        return sp.sympify(expr)
+        return sp.S(expr)
 
     def to_expr(self, element):
         return element

@@ -26,7 +26,7 @@ from derive.geometry.matter import energy_conditions
 
 def _clean(expr):
     """A short exact form: cancelled and factored, or rationalised and simplified when that is shorter."""
-    expr = sp.cancel(sp.sympify(expr))
+    expr = sp.cancel(sp.S(expr))
     if expr.count_ops() >= 150:
         return expr
     candidates = [sp.factor(expr)]

@@ -33,6 +33,7 @@ NUMERICS_KEYS = ("tolerance", "l_max", "omega_max", "outer_radius")
 SWITCHING_SHAPES = ("gaussian", "sharp", "bump", "cos2", "sin4", "expression")
 SWITCHING_KEYS = ("shape", "width", "duration", "ramp", "expression", "tail")
 STATES = ("vacuum", "boulware", "hartle-hawking", "unruh")
+RESERVED = ("l", "omega", "tau")   # symbols derive introduces itself
 
 
 def suggest(name: str, options) -> str | None:
@@ -128,7 +129,8 @@ def from_mapping(data: Mapping[str, Any], path: str = "<spec>", overrides: Mappi
     if not isinstance(title, str):
         reader.fail("expected a string", "title")
 
-    taken: dict[str, str] = {}
+    taken: dict[str, str] = {name: "derive (the field's labels and the detector's proper time)"
+                             for name in RESERVED}
 
     def claim(name: str, key: str):
         if name in taken:
