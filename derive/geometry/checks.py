@@ -51,7 +51,40 @@ def simplify_checked(expr, values: dict):
         return -arg if number.is_number and number.is_real and number < 0 else arg
     candidate = expr.replace(radical, lambda e: sp.factor(e.base) ** e.exp)
     candidate = sp.powdenest(candidate.replace(sp.Abs, signed), force=True).replace(sp.Abs, signed)
-    candidate = sp.simplify(candidate) if candidate.count_ops() < 200 else candidate
-    if sp.count_ops(candidate) < sp.count_ops(expr) and vanishes(candidate - expr, values, simplify=False):
-        return candidate
-    return expr
+    candidates = [sp.simplify(candidate) if candidate.count_ops() < 200 else candidate]
+    together = sp.factor(sp.together(candidate))
+    candidates += [together, radical_normal_form(together)]
+    best = expr
+    for candidate in candidates:
+        if sp.count_ops(candidate) < sp.count_ops(best) and vanishes(candidate - expr, values, simplify=False):
+            best = candidate
+    return best
+
+
+def radical_normal_form(expr):
+    """With a single square root s = sqrt(X) in ``expr``: write it as (n0 + n1 s)/d with n0, n1, d free of s
+    (rationalise the denominator, reduce s^2 -> X).  Exact; returns ``expr`` unchanged otherwise."""
+    roots = {e for e in expr.atoms(sp.Pow) if e.exp == sp.Rational(1, 2) or e.exp == -sp.Rational(1, 2)}
+    bases = {e.base for e in roots}
+    if len(bases) != 1:
+        return expr
+    X = bases.pop()
+    s = sp.Dummy("s")
+    body = expr.subs({X ** sp.Rational(1, 2): s, X ** -sp.Rational(1, 2): 1 / s})
+    if body.has(X ** sp.Rational(1, 2)):
+        return expr
+    numer, denom = sp.fraction(sp.cancel(body))
+    try:
+        conjugate = sp.Poly(denom, s)
+    except sp.PolynomialError:
+        return expr
+    if conjugate.degree() > 1:
+        return expr
+    d0, d1 = (conjugate.all_coeffs()[::-1] + [0, 0])[:2]
+    numer = sp.expand(numer * (d0 - d1 * s))
+    denom = sp.expand(d0 ** 2 - d1 ** 2 * X)
+    reduced = sp.rem(sp.Poly(numer, s), sp.Poly(s ** 2 - X, s))
+    n0, n1 = (reduced.all_coeffs()[::-1] + [0, 0])[:2]
+    common = sp.gcd_list([sp.S(n0), sp.S(n1), sp.S(denom)]) if n0 != 0 or n1 != 0 else 1
+    n0, n1, denom = (sp.cancel(v / common) for v in (n0, n1, denom))
+    return (sp.factor(n0) + sp.factor(n1) * sp.sqrt(X)) / sp.factor(denom)
