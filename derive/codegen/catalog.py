@@ -65,6 +65,31 @@ def factor_roots(expr, r, roots):
     return split(numer) / split(denom)
 
 
+def rationalise_differences(expr):
+    """A + t with one radical term t (t^2 free of radicals) becomes (A^2 - t^2)/(A - t), the numerator cancelled
+    exactly: sqrt(f) - f for f near 1 (a shell of small mass) then evaluates without losing digits."""
+    def radical(e):
+        return any(not p.exp.is_Integer for p in e.atoms(sp.Pow)) or e.has(sp.sqrt)
+
+    def visit(e):
+        if e.is_Atom:
+            return e
+        e = e.func(*[visit(a) for a in e.args])
+        if not e.is_Add:
+            return e
+        with_root = [t for t in e.args if radical(t)]
+        if len(with_root) != 1:
+            return e
+        t = with_root[0]
+        rest = e - t
+        square = sp.expand(t * t)
+        if rest == 0 or radical(square) or radical(rest):
+            return e
+        numerator = sp.factor(sp.cancel(sp.expand(rest * rest) - square))
+        return numerator / (rest - t)
+    return visit(sp.S(expr))
+
+
 def _identifier(text: str) -> str:
     name = re.sub(r"\W+", "_", text).strip("_")
     if not name or name[0].isdigit():
@@ -230,7 +255,8 @@ class KernelSet:
         reference = reference_values(entry.twin.function, columns, shape)
         result = self._measure(entry.kernel, columns, shape, reference, entry.arguments)
         form = "as derived"
-        rewrites = [("factored", sp.factor), ("cancelled", sp.cancel), ("expanded", sp.expand)]
+        rewrites = [("radical differences rationalised", rationalise_differences), ("factored", sp.factor),
+                    ("cancelled", sp.cancel), ("expanded", sp.expand)]
         roots = self._horizons(entry)
         if roots:
             radius = self._radius()

@@ -1,0 +1,73 @@
+"""From verified kernels to the numeric problem the solver reads (the symbolic-to-numeric boundary).
+
+Regions are put in order from the innermost end outward by following the interfaces; parameters are bound to
+the spec's values.  Only kernels that passed verification are used: ``require_verified`` is called on exactly
+the ones the solver needs, so a flagged kernel the solver does not use (a closed-form tortoise coordinate near
+r = 0, say) does not block it.
+"""
+
+from __future__ import annotations
+
+from derive.errors import AccuracyError, InputError
+from derive.solve.problem import NumericInterface, NumericProblem, NumericRegion
+
+
+def _bind(kernel, values):
+    function = kernel.function
+    return lambda *args: function(*args, *values)
+
+
+def numeric_problem(kernel_set) -> NumericProblem:
+    st = kernel_set.spacetime
+    if st.field is None:
+        raise InputError("no [field] section: the solver needs the field's mass and coupling", file=st.path,
+                         key="field")
+    field = st.field_problem
+    values = tuple(st.parameter_values[p] for p in kernel_set.parameters)
+    needed = []
+    for name in field.regions:
+        for quantity in ("potential", "dtortoise_dr", "metric_f"):
+            needed.append(kernel_set.get(quantity, name))
+    for matching in field.interfaces:
+        needed.append(kernel_set.get("transfer_matrix", f"{matching.between[0]}|{matching.between[1]}"))
+    for entry in needed:
+        if entry.verification is None:
+            kernel_set.verify(entry)
+    bad = [e for e in needed if e.verification.status != "verified"]
+    if bad:
+        raise AccuracyError("the solver refuses unverified kernels: " + ", ".join(e.name for e in bad),
+                            {e.name: e.verification.reason for e in bad})
+
+    regions = {}
+    for name, region in field.regions.items():
+        d = region.region.domain_of(region.r)
+        lower = float(d.lower.subs(st.parameter_values)) if d is not None and d.lower is not None else 0.0
+        upper = float(d.upper.subs(st.parameter_values)) if d is not None and d.upper is not None else None
+        ends = region.ends
+        regions[name] = NumericRegion(
+            name, lower, upper, ends["lower"]["kind"], ends["upper"]["kind"], ends["upper"].get("tail"),
+            _bind(kernel_set.get("potential", name).kernel, values),
+            _bind(kernel_set.get("dtortoise_dr", name).kernel, values),
+            _bind(kernel_set.get("metric_f", name).kernel, values))
+    order = sorted(regions.values(), key=lambda reg: reg.lower)
+    interfaces = []
+    for matching in field.interfaces:
+        first, second = matching.between
+        radius = float(matching.shell.position.subs(st.parameter_values))
+        kernel = _bind(kernel_set.get("transfer_matrix", f"{first}|{second}").kernel, values)
+        if regions[first].lower < regions[second].lower:
+            interfaces.append(NumericInterface(radius, first, second, kernel))
+        else:
+            interfaces.append(NumericInterface(radius, second, first, _inverse(kernel)))
+    mass = float(st.field.mass.subs(st.parameter_values))
+    return NumericProblem(st.title, tuple(order), tuple(interfaces), mass, kernel_set._length_scale())
+
+
+def _inverse(transfer):
+    import numpy as np
+
+    def inverse(l, omega):
+        m = np.asarray(transfer(l, omega), dtype=float)
+        det = m[0, 0] * m[1, 1] - m[0, 1] * m[1, 0]
+        return np.array([[m[1, 1], -m[0, 1]], [-m[1, 0], m[0, 0]]]) / det
+    return inverse

@@ -1,0 +1,142 @@
+"""Spectral density of the field at a regular centre (PHYSICS.md sections 4 and 7).
+
+At r0 = 0 only l = 0 contributes.  The regular solution starts as u = 0, du/dr* = 1 at r = 0, is carried
+outward through every region (propagation.py) and every interface (the transfer matrices), and is normalised
+by its amplitude far away: u -> A sin(omega r* + delta), normalised u = u/(A sqrt(pi omega)) (half line,
+delta-normalised).  Then, with U = du/dr at the centre,
+
+    density(omega) = (1/(4 pi)) |U|^2 = (dr*/dr(0))^2 / (4 pi^2 omega A^2)      (flat space: omega/(4 pi^2)),
+
+per unit omega of the spec's time coordinate.  The amplitude is read from the WKB invariant
+A^2 = u^2 + u'^2/(omega^2 - V) at a far radius and again at four times that radius; their difference is the
+tail error.  Each value carries an error estimate (Richardson correction of the propagation plus the tail).
+
+Supported so far: massless fields, a regular centre at r = 0, asymptotically flat (short-range or centrifugal
+tail); other cases raise ``Unsupported`` with a message.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from derive.solve.propagation import region_propagator
+
+DEFAULT_STEPS = 48
+FAR = 1.0e6          # far radius in units of the problem's length scale
+
+
+class Unsupported(Exception):
+    """A problem the solver does not handle yet (the message says which part)."""
+
+
+@dataclass
+class DensityResult:
+    """Spectral density per unit omega of the spec's time at the centre, with its error estimate."""
+
+    omega: np.ndarray
+    density: np.ndarray
+    error: np.ndarray
+    amplitude: np.ndarray
+    propagation_error: np.ndarray
+    tail_error: np.ndarray
+    tolerance: float
+
+    @property
+    def ok(self) -> bool:
+        return bool(np.all(self.error <= self.tolerance * np.abs(self.density)))
+
+    def message(self) -> str:
+        bad = self.error > self.tolerance * np.abs(self.density)
+        if not np.any(bad):
+            return "ok"
+        worst = int(np.argmax(self.error / np.abs(self.density)))
+        return (f"{int(np.sum(bad))} of {len(self.omega)} frequencies miss the relative tolerance "
+                f"{self.tolerance:.0e}; worst at omega = {self.omega[worst]:.6g} with relative error "
+                f"{self.error[worst] / abs(self.density[worst]):.2e}")
+
+
+def check_supported(problem) -> None:
+    first, last = problem.regions[0], problem.regions[-1]
+    if first.lower_kind != "regular centre" or first.lower != 0.0:
+        raise Unsupported("the spectral density is computed at a regular centre at r = 0 only, so far")
+    if last.upper is not None or last.tail not in ("short-range", "centrifugal"):
+        raise Unsupported("the outermost region must reach infinity with a short-range or centrifugal tail "
+                          "(massless, asymptotically flat), so far")
+    if problem.mass != 0.0:
+        raise Unsupported("massive fields are not handled by the solver yet")
+
+
+def centre_density(problem, omegas, tolerance: float = 1e-10, steps: int = DEFAULT_STEPS,
+                   max_steps: int = 8192) -> DensityResult:
+    """The l = 0 spectral density at r = 0 for every omega (> 0), each with an error estimate.
+
+    The density is computed on grids of N and 2N steps per region; their difference (plus the tail error) is
+    the error estimate, and N is doubled until it meets ``tolerance`` or ``max_steps`` is reached.  The result
+    says whether the tolerance was met (``ok``) and, if not, where it fell short (``message``)."""
+    check_supported(problem)
+    omegas = np.asarray(omegas, dtype=float)
+    if omegas.ndim != 1 or np.any(~np.isfinite(omegas)) or np.any(omegas <= 0):
+        raise ValueError("frequencies must be positive and finite")
+    count = steps
+    coarse = _run(problem, omegas, count)
+    while True:
+        fine = _run(problem, omegas, 2 * count)
+        error = np.abs(fine[0] - coarse[0]) + (fine[2] + rounding_floor(2 * count)) * np.abs(fine[0])
+        result = DensityResult(omegas, fine[0], error, np.sqrt(fine[1]), np.abs(fine[0] - coarse[0]) /
+                               np.abs(fine[0]), fine[2], tolerance)
+        if result.ok or 2 * count >= max_steps:
+            return result
+        count *= 2
+        coarse = fine
+
+
+def rounding_floor(steps: int) -> float:
+    """Relative rounding error of a product of about 2*steps 2x2 matrices per region in double precision:
+    bounded by 8 * steps * eps, and never taken below 1e-12 (what the far-field phase, omega r* ~ 1e8,
+    leaves of the amplitude)."""
+    return max(1e-12, 8 * steps * np.finfo(float).eps)
+
+
+def _run(problem, omegas, steps):
+    """(density, amplitude^2, relative tail error) on a grid of ``steps`` steps per region."""
+    n = len(omegas)
+    state = np.zeros((n, 2))
+    state[:, 1] = 1.0
+    log_scale = np.zeros(n)
+    far = FAR * problem.length_scale
+    interfaces = {i.inner: i for i in problem.interfaces}
+    for region in problem.regions:
+        geometric = region.upper is None
+        upper = far if geometric else region.upper
+        lower = max(region.lower, 1e-12) if geometric else region.lower
+        matrix, scale = region_propagator(region, 0, omegas, lower, upper, steps, geometric)
+        state = np.einsum("nij,nj->ni", matrix, state)
+        size = np.max(np.abs(state), axis=1)
+        state /= size[:, None]
+        log_scale += scale + np.log(size)
+        if region.name in interfaces:
+            transfer = np.broadcast_to(np.asarray(interfaces[region.name].transfer(0, omegas), dtype=float),
+                                       (2, 2, n))
+            state = np.einsum("ijn,nj->ni", transfer, state)
+    last = problem.regions[-1]
+    near = _amplitude2(last, state, omegas, far)
+    matrix, scale = region_propagator(last, 0, omegas, far, 4 * far, max(steps // 8, 8), True)
+    farther = _amplitude2(last, np.einsum("nij,nj->ni", matrix, state), omegas, 4 * far) * np.exp(2 * scale)
+    tail_error = np.abs(farther - near) / farther
+    amplitude2 = farther * np.exp(2 * log_scale)
+    slope = problem.regions[0].dtortoise_dr(np.array([0.0]))[0]
+    density = slope ** 2 / (4 * np.pi ** 2 * omegas * amplitude2)
+    return density, amplitude2, tail_error
+
+
+def _amplitude2(region, state, omegas, radius):
+    V = np.asarray(region.potential(np.array([radius]), 0, 0.0), dtype=float).reshape(-1)[0]
+    q = omegas ** 2 - V
+    return state[:, 0] ** 2 + state[:, 1] ** 2 / q
+
+
+def minkowski_density(omegas) -> np.ndarray:
+    """Flat 3+1, massless: omega/(4 pi^2) (PHYSICS.md section 7; Birrell & Davies 1982, ch. 3)."""
+    return np.asarray(omegas, dtype=float) / (4 * np.pi ** 2)

@@ -1,0 +1,51 @@
+"""The numeric description of a radial problem: what the solver sees (no sympy here or below).
+
+The code generator fills these records from verified kernels (derive/codegen/problem.py); the solver and the
+detector read them.  Every callable takes numpy arrays and broadcasts; parameters are already bound.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Callable
+
+
+@dataclass(frozen=True)
+class NumericRegion:
+    """One region between two radii, in order from the centre outward.
+
+    potential(r, l, omega) -> V;  dtortoise_dr(r) -> 1/F;  metric_f(r) -> f = -g_tt.
+    ``lower_kind`` / ``upper_kind``: "regular centre", "horizon", "interface", "infinity", ...
+    ``tail``: the class of the potential's tail at infinity ("short-range", "centrifugal", ...) or None.
+    """
+
+    name: str
+    lower: float
+    upper: float | None
+    lower_kind: str
+    upper_kind: str
+    tail: str | None
+    potential: Callable
+    dtortoise_dr: Callable
+    metric_f: Callable
+
+
+@dataclass(frozen=True)
+class NumericInterface:
+    """transfer(l, omega) -> array (2, 2, ...) acting on (u, du/dr*) from the inner to the outer region."""
+
+    radius: float
+    inner: str
+    outer: str
+    transfer: Callable
+
+
+@dataclass(frozen=True)
+class NumericProblem:
+    """Regions ordered outward from the innermost end, and the interfaces between them."""
+
+    title: str
+    regions: tuple[NumericRegion, ...]
+    interfaces: tuple[NumericInterface, ...]
+    mass: float
+    length_scale: float

@@ -1,0 +1,126 @@
+"""The radial mode solver at a regular centre (PHYSICS.md sections 4 and 7)."""
+
+import os
+
+import mpmath
+import numpy as np
+import pytest
+
+import derive
+from derive.codegen.catalog import KernelSet
+from derive.codegen.problem import numeric_problem
+from derive.solve.centre import Unsupported, _run, centre_density, minkowski_density
+from derive.solve.propagation import region_propagator
+from test_shells import DUST, two_region_spec
+
+ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+OMEGAS = np.array([0.01, 0.1, 0.5, 1.0, 3.0, 10.0, 30.0, 100.0])
+
+FLAT = """
+format = 1
+title = "Minkowski"
+[parameters]
+L = { value = 1.0, positive = true }
+[coordinates]
+names = ["t", "r", "theta", "phi"]
+positive = ["r"]
+[[region]]
+name = "space"
+where = "0 <= r"
+line_element = "-dt**2 + dr**2 + r**2*(dtheta**2 + sin(theta)**2*dphi**2)"
+[field]
+mass = "0"
+coupling = "0"
+"""
+
+
+def problem_of(path):
+    return numeric_problem(KernelSet(derive.load(path)))
+
+
+def test_flat_space_density(write_spec):
+    # Source: PHYSICS.md section 7; Birrell & Davies, Quantum Fields in Curved Space (1982), ch. 3:
+    # flat 3+1, massless, at the centre the density per unit omega is omega/(4 pi^2).
+    result = centre_density(problem_of(write_spec(FLAT)), OMEGAS)
+    assert result.ok, result.message()
+    np.testing.assert_allclose(result.density, minkowski_density(OMEGAS), rtol=1e-12)
+    assert np.all(result.error <= 1e-10 * result.density)
+
+
+def test_shell_of_vanishing_mass_gives_flat_space(write_spec):
+    # Issue 5 check: a thin shell of vanishing mass gives the flat result; the difference is linear in M
+    # (first-order perturbation theory, common practice).
+    differences = []
+    for mass in (1e-6, 2e-6):
+        spec = two_region_spec("1", "1 - 2*M/r", f"M = {{ value = {mass}, positive = true }}\n"
+                               "R = { value = 1.0, positive = true }")
+        result = centre_density(problem_of(write_spec(spec, f"shell{mass}.toml")), OMEGAS[:6])
+        assert result.ok, result.message()
+        differences.append(result.density / minkowski_density(OMEGAS[:6]) - 1)
+    assert np.max(np.abs(differences[0])) < 1e-4
+    np.testing.assert_allclose(differences[1] / differences[0], 2.0, rtol=1e-3)
+
+
+def test_error_estimates_bound_the_true_error():
+    # The reported error must be at least the difference from a much finer solution (common practice).
+    problem = problem_of(os.path.join(ROOT, "worked", "dust_shell", "spec.toml"))
+    result = centre_density(problem, OMEGAS)
+    assert result.ok, result.message()
+    reference = _run(problem, OMEGAS, 4096)[0]
+    from derive.solve.centre import rounding_floor
+    assert np.all(np.abs(result.density - reference) <= result.error + rounding_floor(4096) * reference)
+
+
+def test_high_frequencies_see_the_interior_clock_rate():
+    # PHYSICS.md section 7: in the detector's proper time the interior is flat; at frequencies far above the
+    # shell's scale the modes cross it unreflected, so the density per unit t tends to omega/(4 pi^2 alpha^2)
+    # with alpha^2 = 1 - 2M/R (here 1/2): the ratio to Minkowski tends to 2, oscillating with decaying amplitude.
+    problem = problem_of(os.path.join(ROOT, "worked", "dust_shell", "spec.toml"))
+    omegas = np.array([300.0, 1000.0, 3000.0])
+    result = centre_density(problem, omegas)
+    ratio = result.density / minkowski_density(omegas)
+    assert np.all(np.abs(ratio - 2.0) < [2e-3, 6e-4, 2e-4])
+
+
+def test_independent_mpmath_solution():
+    # Issue 5 check: an independent solution at 30 digits (mpmath's Taylor-series ODE solver on the mpmath twin
+    # kernels, in r) agrees with the propagator to 1e-10 at a handful of frequencies.
+    st = derive.load(os.path.join(ROOT, "worked", "dust_shell", "spec.toml"))
+    kernels = KernelSet(st)
+    problem = numeric_problem(kernels)
+    values = [st.parameter_values[p] for p in kernels.parameters]
+    twin_v = kernels.get("potential", "outside").twin.function
+    twin_d = kernels.get("dtortoise_dr", "outside").twin.function
+    inside, outside = problem.regions
+    transfer = problem.interfaces[0].transfer
+    r_end = 6.0
+    for omega in (0.7, 2.0, 5.0):
+        # derive: inside exactly, then the interface, then the propagator out to r_end
+        m_in, s_in = region_propagator(inside, 0, np.array([omega]), 0.0, 1.0, 1024, False)
+        state = (m_in[0] * np.exp(s_in[0])) @ np.array([0.0, 1.0])
+        state = np.asarray(transfer(0, np.array([omega])), dtype=float)[:, :, 0] @ state
+        m_out, s_out = region_propagator(outside, 0, np.array([omega]), 1.0, r_end, 1024, False)
+        ours = (m_out[0] * np.exp(s_out[0])) @ state
+        with mpmath.workdps(30):
+            def rhs(r, y, omega=omega):
+                d = twin_d(r, *values)
+                return [y[1] * d, (twin_v(r, 0, omega, *values) - omega ** 2) * y[0] * d]
+            solution = mpmath.odefun(rhs, 1.0, [mpmath.mpf(state[0]), mpmath.mpf(state[1])])
+            reference = np.array([float(x) for x in solution(r_end)])
+        assert np.max(np.abs(ours - reference)) < 1e-10 * np.max(np.abs(reference)), omega
+
+
+def test_cost_per_frequency_does_not_depend_on_omega():
+    # Structural, not timed: the same grid serves every frequency, and the accuracy at omega = 3000 on that
+    # grid is no worse than at omega = 1 (the method's error falls as omega grows).
+    problem = problem_of(os.path.join(ROOT, "worked", "dust_shell", "spec.toml"))
+    omegas = np.array([1.0, 3000.0])
+    coarse, fine = _run(problem, omegas, 64)[0], _run(problem, omegas, 128)[0]
+    change = np.abs(fine - coarse) / fine
+    assert change[1] <= change[0]
+
+
+def test_unsupported_problems_say_what_is_missing():
+    schwarzschild = problem_of(os.path.join(ROOT, "worked", "schwarzschild", "spec.toml"))
+    with pytest.raises(Unsupported, match="regular centre"):
+        centre_density(schwarzschild, OMEGAS)
