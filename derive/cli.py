@@ -161,6 +161,78 @@ def cmd_kernels(args) -> int:
     return 0
 
 
+def _omega_grid(text: str):
+    import numpy as np
+
+    try:
+        if ":" in text:
+            start, stop, count = text.split(":")
+            values = np.linspace(float(start), float(stop), int(count))
+        else:
+            values = np.array([float(x) for x in text.split(",") if x.strip()])
+    except ValueError:
+        raise InputError(f"--omega expects a list '0.1,0.5,1' or FROM:TO:COUNT, got {text!r}",
+                         key="--omega") from None
+    if len(values) == 0 or not np.all(np.isfinite(values)) or np.any(values <= 0):
+        raise InputError(f"--omega needs positive, finite frequencies, got {text!r}", key="--omega")
+    if len(values) > 200_000:
+        raise InputError("--omega: more than 200000 frequencies", key="--omega")
+    return values
+
+
+def _numeric_problem(spacetime):
+    from derive.codegen.catalog import KernelSet
+    from derive.codegen.problem import numeric_problem
+
+    return numeric_problem(KernelSet(spacetime))
+
+
+def _tolerance(args, spacetime, default):
+    value = args.tolerance if args.tolerance is not None else spacetime.numerics.get("tolerance", default)
+    if not (0 < value < 1):
+        raise InputError(f"tolerance must lie between 0 and 1, got {value}", key="--tolerance")
+    return value
+
+
+def cmd_spectrum(args) -> int:
+    from derive.report.tables import write_spectrum_files
+    from derive.solve.api import METHOD, spectrum_at_centre
+    from derive.solve.centre import Unsupported
+
+    spacetime = _load(args)
+    omegas = _omega_grid(args.omega)
+    if args.at is not None and args.at != 0.0:
+        raise InputError(f"--at {args.at}: the solver computes densities at a regular centre (r = 0) only, so far",
+                         key="--at")
+    tolerance = _tolerance(args, spacetime, 1e-10)
+    try:
+        result = spectrum_at_centre(_numeric_problem(spacetime), omegas, args.l, tolerance)
+    except Unsupported as exc:
+        raise InputError(f"derive spectrum cannot solve this spacetime yet: {exc}", file=spacetime.path) from None
+    data = {"l": result["l"], "at": 0.0, "omega": list(map(float, omegas)),
+            "density": list(map(float, result["density"])),
+            "error": {"density": list(map(float, result["error"]))},
+            "tolerance": tolerance, "method": METHOD, "units": "per unit omega of the spec's time coordinate",
+            "minkowski_density": list(map(float, result["minkowski"]))}
+    if args.out:
+        for path in write_spectrum_files(args.out, data, spacetime.title):
+            print(f"wrote {path}", file=sys.stderr)
+    if args.json:
+        _emit_json(data)
+    else:
+        print(f"{spacetime.title}: spectral density at r = 0, l = {result['l']}")
+        print(f"{'omega':>12} {'density':>22} {'error':>10} {'/ Minkowski':>14}")
+        for w, d, e, m in zip(omegas, result["density"], result["error"], result["minkowski"]):
+            ratio = f"{d / m:14.10f}" if m else f"{'':>14}"
+            print(f"{w:12.6g} {d:22.15e} {e:10.1e} {ratio}")
+    if not result["ok"]:
+        from derive.errors import AccuracyError
+
+        raise AccuracyError(result["message"], {"tolerance": tolerance,
+                                                "largest relative error": float(max(result["error"] / result["density"]))})
+    return 0
+
+
 def cmd_demo(args) -> int:
     from derive.demo import run_demo
 
@@ -200,6 +272,15 @@ def build_parser() -> argparse.ArgumentParser:
                      cmd_kernels)
     p.add_argument("--out", metavar="DIR", help="write a standalone, importable folder of kernels here")
     p.add_argument("--json", action="store_true", help="print JSON")
+
+    p = spec_command("spectrum", "spectral density of the field at a static point, with error estimates",
+                     cmd_spectrum)
+    p.add_argument("--l", type=int, default=0, help="angular label (at the centre only l = 0 contributes)")
+    p.add_argument("--omega", required=True, metavar="LIST|FROM:TO:COUNT", help="frequencies (spec time)")
+    p.add_argument("--at", type=float, help="radius of the static point (0: the centre)")
+    p.add_argument("--tolerance", type=float, help="relative tolerance (default: [numerics] or 1e-10)")
+    p.add_argument("--json", action="store_true", help="print JSON")
+    p.add_argument("--out", metavar="DIR", help="write spectrum.csv and spectrum.png here")
 
     p = sub.add_parser("demo", help="run the bundled scenario end to end and explain what it shows")
     p.add_argument("--out", metavar="DIR", help="also write the files of the run here")

@@ -79,17 +79,27 @@ def centre_density(problem, omegas, tolerance: float = 1e-10, steps: int = DEFAU
     omegas = np.asarray(omegas, dtype=float)
     if omegas.ndim != 1 or np.any(~np.isfinite(omegas)) or np.any(omegas <= 0):
         raise ValueError("frequencies must be positive and finite")
+    n = len(omegas)
+    density, error = np.zeros(n), np.full(n, np.inf)
+    amplitude, propagation, tail = np.zeros(n), np.zeros(n), np.zeros(n)
+    active = np.arange(n)
     count = steps
     coarse = _run(problem, omegas, count)
-    while True:
-        fine = _run(problem, omegas, 2 * count)
-        error = np.abs(fine[0] - coarse[0]) + (fine[2] + rounding_floor(2 * count)) * np.abs(fine[0])
-        result = DensityResult(omegas, fine[0], error, np.sqrt(fine[1]), np.abs(fine[0] - coarse[0]) /
-                               np.abs(fine[0]), fine[2], tolerance)
-        if result.ok or 2 * count >= max_steps:
-            return result
+    while len(active):
+        fine = _run(problem, omegas[active], 2 * count)
+        change = np.abs(fine[0] - coarse[0])
+        estimate = change + (fine[2] + rounding_floor(2 * count)) * np.abs(fine[0])
+        density[active], error[active] = fine[0], estimate
+        amplitude[active], propagation[active], tail[active] = np.sqrt(fine[1]), change / np.abs(fine[0]), fine[2]
+        done = estimate <= tolerance * np.abs(fine[0])
+        if 2 * count >= max_steps:
+            break
+        # frequencies that met the tolerance keep their values; the rest go to the next grid
+        keep = ~done
+        active = active[keep]
+        coarse = tuple(part[keep] for part in fine)
         count *= 2
-        coarse = fine
+    return DensityResult(omegas, density, error, amplitude, propagation, tail, tolerance)
 
 
 def rounding_floor(steps: int) -> float:

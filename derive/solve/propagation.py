@@ -91,51 +91,76 @@ def ordered_product(matrices: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return matrices[0], logs[0]
 
 
-def _series(beta2, a, kind):
-    """Small-argument series (in beta^2 = 4 k^2, real) of the step integrals; 10 terms, |beta a| < 0.5."""
-    total = np.zeros(np.broadcast(beta2, a).shape)
-    term_power = np.ones_like(total)
-    factorial = 1.0
-    for n in range(10):
-        if n:
-            term_power = term_power * (-beta2) * a * a
-        if kind == "S1/beta":        # int_0^a x sin(beta x) dx / beta
-            factorial = float(np.prod(np.arange(1, 2 * n + 2)))
-            total = total + term_power * a ** 3 / (factorial * (2 * n + 3))
-        elif kind == "K/beta2":      # int_-a^a (x^2 - a^2/3) cos(beta x) dx / beta^2, zero at beta = 0
-            m = n + 1
-            fact_even = float(np.prod(np.arange(1, 2 * m + 1)))
-            fact_odd = float(np.prod(np.arange(1, 2 * m + 2)))
-            coefficient = 2 / (fact_even * (2 * m + 3)) - (2.0 / 3.0) / fact_odd
-            total = total - term_power * a ** 5 * coefficient
-    return total
+def _trig_pair(k2, x):
+    """c = cos(k x), so = sin(k x)/k for k^2 > 0 (cosh, sinh/gamma for k^2 < 0), real arithmetic, with the
+    series near k x = 0."""
+    z2 = k2 * x * x
+    c = np.empty(np.broadcast(k2, x).shape)
+    so = np.empty_like(c)
+    x = np.broadcast_to(x, c.shape)
+    small = np.abs(z2) < 1e-3
+    pos = (z2 > 0) & ~small
+    neg = (z2 < 0) & ~small
+    if np.any(small):
+        z = z2[small]
+        c[small] = 1 - z / 2 * (1 - z / 12 * (1 - z / 30 * (1 - z / 56)))
+        so[small] = x[small] * (1 - z / 6 * (1 - z / 20 * (1 - z / 42 * (1 - z / 72))))
+    if np.any(pos):
+        k = np.sqrt(k2[pos])
+        kx = k * x[pos]
+        c[pos] = np.cos(kx)
+        so[pos] = np.sin(kx) / k
+    if np.any(neg):
+        g = np.sqrt(-k2[neg])
+        gx = g * x[neg]
+        c[neg] = np.cosh(gx)
+        so[neg] = np.sinh(gx) / g
+    return c, so
+
+
+_S_SERIES = [2.0 / (float(np.prod(np.arange(1, 2 * n + 2))) * (2 * n + 3)) for n in range(9)]
+_K_SERIES = [-4.0 * (2 / (float(np.prod(np.arange(1, 2 * m + 1))) * (2 * m + 3))
+                     - (2.0 / 3.0) / float(np.prod(np.arange(1, 2 * m + 2)))) for m in range(1, 10)]
 
 
 def step_integrals(k2, h):
-    """For a step of length h in r* and k^2 = omega^2 - V0, with a = h/2 and beta = 2k:
-    S = int_0^a x sin(beta x) dx / k   and   Kq = int_-a^a (x^2 - h^2/12) cos(beta x) dx / k^2,
-    by closed forms (trig or hyperbolic) for |beta a| >= 0.5 and series below.  Real for either sign of k^2."""
-    a = h / 2
+    """For a step of length h in r*, k^2 = omega^2 - V0, a = h/2, beta = 2k:
+    S = int_0^a x sin(beta x) dx / k  and  Kq = int_-a^a (x^2 - h^2/12) cos(beta x) dx / k^2,
+    in real arithmetic (trigonometric or hyperbolic closed forms; series in beta^2 a^2 below 0.25)."""
+    a = np.broadcast_to(h / 2, np.broadcast(k2, h).shape)
     beta2 = 4 * k2
-    small = np.abs(beta2) * a * a < 0.25
-    S = np.empty(np.broadcast(k2, h).shape)
-    Kq = np.empty_like(S)
-    a_b = np.broadcast_to(a, S.shape)
-    b2 = np.broadcast_to(beta2, S.shape)
+    u = -beta2 * a * a                      # the series variable (-beta^2 a^2)
+    S = np.empty(a.shape)
+    Kq = np.empty(a.shape)
+    small = np.abs(u) < 0.25
     if np.any(small):
-        S[small] = 2 * _series(b2[small], a_b[small], "S1/beta")
-        Kq[small] = 4 * _series(b2[small], a_b[small], "K/beta2")
-    big = ~small
-    if np.any(big):
-        beta = np.sqrt(b2[big].astype(complex))
-        aa = a_b[big]
-        ba = beta * aa
-        sin, cos = np.sin(ba), np.cos(ba)
-        s1 = (sin - ba * cos) / beta ** 2
-        c2 = aa * aa * sin / beta + 2 * aa * cos / beta ** 2 - 2 * sin / beta ** 3
-        K = 2 * c2 - (aa * aa / 3) * 2 * sin / beta
-        S[big] = (2 * s1 / beta).real
-        Kq[big] = (4 * K / beta ** 2).real
+        us, aa = u[small], a[small]
+        total_s = np.zeros_like(us)
+        for coefficient in reversed(_S_SERIES):
+            total_s = total_s * us + coefficient
+        total_k = np.zeros_like(us)
+        for coefficient in reversed(_K_SERIES):
+            total_k = total_k * us + coefficient
+        S[small] = total_s * aa ** 3
+        Kq[small] = total_k * aa ** 5
+    pos = (beta2 > 0) & ~small
+    if np.any(pos):
+        b, aa = np.sqrt(beta2[pos]), a[pos]
+        z = b * aa
+        sin, cos = np.sin(z), np.cos(z)
+        S[pos] = 2 * (sin - z * cos) / b ** 3
+        c2 = aa * aa * sin / b + 2 * aa * cos / b ** 2 - 2 * sin / b ** 3
+        K = 2 * c2 - (2 * aa * aa / 3) * sin / b
+        Kq[pos] = 4 * K / b ** 2
+    neg = (beta2 < 0) & ~small
+    if np.any(neg):
+        B, aa = np.sqrt(-beta2[neg]), a[neg]
+        z = B * aa
+        sinh, cosh = np.sinh(z), np.cosh(z)
+        S[neg] = 2 * (z * cosh - sinh) / B ** 3
+        c2 = aa * aa * sinh / B - 2 * aa * cosh / B ** 2 + 2 * sinh / B ** 3
+        K = 2 * c2 - (2 * aa * aa / 3) * sinh / B
+        Kq[neg] = -4 * K / B ** 2
     return S, Kq
 
 
@@ -175,31 +200,37 @@ def corrected_matrices(region, l, omegas, grid: Grid) -> np.ndarray:
     V = np.broadcast_to(np.asarray(region.potential(r_points, l, 0.0), dtype=float), r_points.shape)
     xg = gauss * h
     b = (V[:, 2] - V[:, 0]) / (2 * xg)
-    c = (V[:, 2] + V[:, 0] - 2 * V[:, 1]) / (2 * xg * xg)
-    V0 = V[:, 1] + c * h * h / 12
+    c_coef = (V[:, 2] + V[:, 0] - 2 * V[:, 1]) / (2 * xg * xg)
+    V0 = V[:, 1] + c_coef * h * h / 12
     out = []
     for start in range(0, len(omegas), CHUNK):
         w2 = omegas[start:start + CHUNK][None, :] ** 2
         k2 = w2 - V0[:, None]
-        half = step_matrices(k2, (h / 2)[:, None])
+        c, so = _trig_pair(k2, (h / 2)[:, None])
         S, Kq = step_integrals(k2, h[:, None])
-        # int dV sin cos / k = b S (sin cos = sin(2kx)/2); int dV sin^2 = -c K/2; int dV cos^2 = c K/2
-        sc_over_k = b[:, None] * S
-        ss_over_k2 = -c[:, None] * Kq / 2
-        cc = c[:, None] * Kq * k2 / 2
-        A, B, C = -sc_over_k, -ss_over_k2, cc
+        # Omega = [[A, B], [C, -A]]: A = -I_sc/k = -b S, B = -I_ss/k^2 = c Kq/2, C = I_cc = c Kq k^2/2
+        A = -b[:, None] * S
+        B = c_coef[:, None] * Kq / 2
+        C = B * k2
         theta2 = A * A + B * C
-        theta = np.sqrt(theta2.astype(complex))
-        small = np.abs(theta) < 1e-4
-        safe = np.where(small, 1.0, theta)
-        cosh = np.where(small, 1 + theta2 / 2, np.cosh(theta).real)
-        sinhc = np.where(small, 1 + theta2 / 6, (np.sinh(theta) / safe).real)
-        correction = np.empty(k2.shape + (2, 2))
-        correction[..., 0, 0] = cosh + sinhc * A
-        correction[..., 0, 1] = sinhc * B
-        correction[..., 1, 0] = sinhc * C
-        correction[..., 1, 1] = cosh - sinhc * A
-        out.append(half @ correction @ half)
+        big = np.abs(theta2) > 1e-4
+        cosh = 1 + theta2 / 2 * (1 + theta2 / 12 * (1 + theta2 / 30))
+        sinhc = 1 + theta2 / 6 * (1 + theta2 / 20 * (1 + theta2 / 42))
+        if np.any(big):
+            t = np.sqrt(theta2[big].astype(complex))
+            cosh[big] = np.cosh(t).real
+            sinhc[big] = (np.sinh(t) / t).real
+        x00, x01, x10, x11 = cosh + sinhc * A, sinhc * B, sinhc * C, cosh - sinhc * A
+        e10 = -k2 * so                        # E(h/2) = [[c, so], [-k^2 so, c]]
+        # E X E, written out
+        y00, y01 = x00 * c + x01 * e10, x00 * so + x01 * c
+        y10, y11 = x10 * c + x11 * e10, x10 * so + x11 * c
+        m = np.empty(k2.shape + (2, 2))
+        m[..., 0, 0] = c * y00 + so * y10
+        m[..., 0, 1] = c * y01 + so * y11
+        m[..., 1, 0] = e10 * y00 + c * y10
+        m[..., 1, 1] = e10 * y01 + c * y11
+        out.append(m)
     return np.concatenate(out, axis=1)
 
 

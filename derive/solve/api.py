@@ -1,0 +1,24 @@
+"""The solver's entry points for the command line and notebooks (numeric only: no sympy here)."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from derive.solve.centre import centre_density, minkowski_density
+
+METHOD = ("modified Magnus propagation in the tortoise coordinate (exact frozen-potential steps with a "
+          "first-order interaction-picture correction); error from grid doubling, far-radius tail and rounding")
+
+
+def spectrum_at_centre(problem, omegas, l: int = 0, tolerance: float = 1e-10) -> dict:
+    """Spectral density per unit omega at r = 0 for the angular label l (only l = 0 is nonzero there)."""
+    omegas = np.asarray(omegas, dtype=float)
+    if l != 0:
+        zeros = np.zeros_like(omegas)
+        return {"l": l, "at": 0.0, "omega": omegas, "density": zeros, "error": zeros, "ok": True,
+                "message": "modes with l > 0 vanish at the centre (u ~ r^(l+1)): their density there is zero",
+                "minkowski": minkowski_density(omegas) * 0}
+    result = centre_density(problem, omegas, tolerance)
+    return {"l": 0, "at": 0.0, "omega": omegas, "density": result.density, "error": result.error,
+            "ok": result.ok, "message": result.message(), "minkowski": minkowski_density(omegas),
+            "tail_error": result.tail_error, "propagation_error": result.propagation_error}
