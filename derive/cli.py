@@ -233,6 +233,73 @@ def cmd_spectrum(args) -> int:
     return 0
 
 
+def response_json(result) -> dict:
+    """The JSON of `derive response` (keys documented in README.md)."""
+    import numpy as np
+
+    def floats(values):
+        return [None if (v is None or (isinstance(v, float) and not np.isfinite(v))) else float(v)
+                for v in (values if values is not None else [])]
+
+    switching = result["switching"]
+    data = {"gaps": floats(result["gaps"]), "response": floats(result["response"]), "error": floats(result["error"]),
+            "switching": {"shape": switching.shape, "width": switching.width, "tail": switching.tail,
+                          "duration": switching.duration},
+            "state": result["state"], "coupling": result["coupling"], "sigmas": result["sigmas"],
+            "locality": result["locality"], "notes": result["notes"]}
+    if "reference" in result:
+        ref = result["reference"]
+        data["reference"] = {"with": ref["with"], "response": floats(ref["response"]), "error": floats(ref["error"])}
+        data["relative_difference"] = floats(result["relative_difference"])
+        data["relative_difference_error"] = floats(result["relative_difference_error"])
+        trials = result.get("trials_to_distinguish")
+        data["trials_to_distinguish"] = None if trials is None else floats(trials)
+        data["trials_lower_bound"] = floats(result.get("trials_lower_bound"))
+        if "trials_note" in result:
+            data["trials_note"] = result["trials_note"]
+    return data
+
+
+def cmd_response(args) -> int:
+    from derive import load
+    from derive.codegen.problem import numeric_detector
+    from derive.detector.study import study
+    from derive.detector.switching import UnsupportedSwitching
+    from derive.report.tables import write_response_files
+    from derive.solve.centre import Unsupported
+
+    spacetime = _load(args)
+    detector = numeric_detector(spacetime)
+    gaps = None
+    if args.gaps:
+        try:
+            gaps = [float(x) for x in args.gaps.split(",") if x.strip()]
+        except ValueError:
+            raise InputError(f"--gaps expects a comma-separated list of numbers, got {args.gaps!r}",
+                             key="--gaps") from None
+    if not (gaps or detector.gaps):
+        raise InputError("no gaps: give [detector] gaps = [...] or --gaps", file=spacetime.path, key="detector.gaps")
+    tolerance = _tolerance(args, spacetime, 1e-10)
+    reference = None
+    if detector.compare_with not in (None, "minkowski"):
+        reference = _numeric_problem(load(detector.compare_with))
+    try:
+        result = study(_numeric_problem(spacetime), detector, reference, tolerance, gaps)
+    except (Unsupported, UnsupportedSwitching) as exc:
+        raise InputError(f"derive response cannot handle this yet: {exc}", file=spacetime.path) from None
+    data = response_json(result)
+    if args.out:
+        for path in write_response_files(args.out, data, spacetime.title):
+            print(f"wrote {path}", file=sys.stderr)
+    if args.json:
+        _emit_json(data)
+    else:
+        from derive.report.summary import response_summary
+
+        print(response_summary(spacetime.title, data))
+    return 0
+
+
 def cmd_demo(args) -> int:
     from derive.demo import run_demo
 
@@ -281,6 +348,13 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--tolerance", type=float, help="relative tolerance (default: [numerics] or 1e-10)")
     p.add_argument("--json", action="store_true", help="print JSON")
     p.add_argument("--out", metavar="DIR", help="write spectrum.csv and spectrum.png here")
+
+    p = spec_command("response", "response of the static detector, comparison, locality and runs needed",
+                     cmd_response)
+    p.add_argument("--gaps", metavar="LIST", help="gaps Omega (detector's proper time), overriding the spec's")
+    p.add_argument("--tolerance", type=float, help="relative tolerance of the spectral density (default 1e-10)")
+    p.add_argument("--json", action="store_true", help="print JSON")
+    p.add_argument("--out", metavar="DIR", help="write response.csv and response.png here")
 
     p = sub.add_parser("demo", help="run the bundled scenario end to end and explain what it shows")
     p.add_argument("--out", metavar="DIR", help="also write the files of the run here")

@@ -71,3 +71,28 @@ def _inverse(transfer):
         det = m[0, 0] * m[1, 1] - m[0, 1] * m[1, 0]
         return np.array([[m[1, 1], -m[0, 1]], [-m[1, 0], m[0, 0]]]) / det
     return inverse
+
+
+def numeric_detector(spacetime):
+    """The detector and comparison settings as plain numbers."""
+    from derive.solve.problem import NumericDetector
+
+    d = spacetime.detector
+    if d is None:
+        raise InputError("no [detector] section: position, switching and gaps are needed", file=spacetime.path,
+                         key="detector")
+    values = spacetime.parameter_values
+    radius = 0.0 if d.position is None else float(d.position.subs(values))
+    switching = {}
+    for key, value in d.switching.items():
+        if key in ("shape", "expression"):
+            continue
+        number = value.subs(values)
+        if not number.is_number:
+            raise InputError(f"switching {key} = {value} has no numeric value", file=spacetime.path,
+                             key=f"detector.switching.{key}")
+        switching[key] = float(number)
+    compare = spacetime.compare
+    return NumericDetector(radius, d.switching.get("shape", "gaussian"), switching, tuple(d.gaps), d.state,
+                           d.coupling, None if compare is None else compare.with_,
+                           3.0 if compare is None else compare.sigmas)

@@ -125,3 +125,33 @@ def field_summary(spacetime, data) -> str:
         for row in interface["transfer_matrix"]:
             lines.append("  [" + ",  ".join(_short(x, 70) for x in row) + "]")
     return "\n".join(lines)
+
+
+def response_summary(title: str, data: dict) -> str:
+    s = data["switching"]
+    lines = [f"{title}: static detector at r = 0, {s['shape']} switching of width {s['width']:g} "
+             f"(duration {s['duration']:.4g} holding all but {s['tail']:g} of chi^2), {data['state']} state"]
+    header = f"{'gap':>8} {'F':>22} {'error':>9}"
+    reference = data.get("reference")
+    if reference:
+        header += f" {'F_ref':>20} {'rel. difference':>16} {'error':>9} {'runs to tell apart':>20}"
+    lines.append(header)
+    for i, gap in enumerate(data["gaps"]):
+        row = f"{gap:8.4g} {data['response'][i]:22.15e} {data['error'][i]:9.1e}"
+        if reference:
+            trials = (data["trials_to_distinguish"] or [None] * len(data["gaps"]))[i]
+            bound = (data.get("trials_lower_bound") or [None] * len(data["gaps"]))[i]
+            runs = f"{trials:20.4g}" if trials is not None else (f"{'> %.3g' % bound:>20}" if bound is not None
+                                                               else f"{'-':>20}")
+            row += (f" {reference['response'][i]:20.13e} {data['relative_difference'][i]:16.6e} "
+                    f"{data['relative_difference_error'][i]:9.1e} {runs}")
+        lines.append(row)
+    loc = data["locality"]
+    lines.append(f"locality: switching duration {loc['duration']:.4g} vs light round trip {loc['round_trip']:.4g} "
+                 f"-> {'local' if loc['local'] else 'NOT local'}")
+    if reference:
+        lines.append(f"compared with {reference['with']}; runs at {data['sigmas']:g} standard deviations with "
+                     f"coupling lambda = {data['coupling']}")
+    for note in data["notes"]:
+        lines.append("note: " + note)
+    return "\n".join(lines)

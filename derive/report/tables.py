@@ -47,3 +47,41 @@ def write_spectrum_files(out: str, data: dict, title: str) -> list[str]:
     write_atomic(png_path, _png(figure))
     plt.close(figure)
     return [csv_path, png_path]
+
+
+def write_response_files(out: str, data: dict, title: str) -> list[str]:
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    header = ["gap", "response", "error"]
+    columns = [data["gaps"], data["response"], data["error"]]
+    reference = data.get("reference")
+    if reference:
+        header += ["reference_response", "reference_error", "relative_difference", "relative_difference_error",
+                   "trials_to_distinguish", "trials_lower_bound"]
+        columns += [reference["response"], reference["error"], data["relative_difference"],
+                    data["relative_difference_error"],
+                    [x if x is not None else "" for x in data["trials_to_distinguish"] or [None] * len(data["gaps"])],
+                    [x if x is not None else "" for x in data.get("trials_lower_bound") or [None] * len(data["gaps"])]]
+    csv_path = os.path.join(out, "response.csv")
+    write_atomic(csv_path, _csv(header, zip(*columns)))
+    rows = 2 if reference else 1
+    figure, axes = plt.subplots(rows, 1, figsize=(6.4, 3.4 * rows), sharex=True, squeeze=False)
+    axes = axes[:, 0]
+    axes[0].errorbar(data["gaps"], data["response"], yerr=data["error"], fmt="o-", label="this spacetime")
+    if reference:
+        axes[0].plot(data["gaps"], reference["response"], "s--", label=f"reference: {reference['with']}")
+        axes[1].errorbar(data["gaps"], data["relative_difference"], yerr=data["relative_difference_error"], fmt="o-")
+        axes[1].axhline(0.0, color="grey", lw=0.5)
+        axes[1].set_ylabel(r"$(F - F_{\rm ref})/F_{\rm ref}$")
+    axes[0].set_ylabel(r"$F(\Omega)$  ($P = \lambda^2 F$)")
+    axes[0].legend(fontsize=8)
+    axes[-1].set_xlabel(r"gap $\Omega$ (detector's proper time; $G=c=\hbar=1$)")
+    axes[0].set_title(f"{title}: static detector, {data['switching']['shape']} switching, "
+                      f"width {data['switching']['width']:g}, {data['state']} state", fontsize=9)
+    png_path = os.path.join(out, "response.png")
+    write_atomic(png_path, _png(figure))
+    plt.close(figure)
+    return [csv_path, png_path]

@@ -8,8 +8,8 @@ delta-normalised).  Then, with U = du/dr at the centre,
     density(omega) = (1/(4 pi)) |U|^2 = (dr*/dr(0))^2 / (4 pi^2 omega A^2)      (flat space: omega/(4 pi^2)),
 
 per unit omega of the spec's time coordinate.  The amplitude is read from the WKB invariant
-A^2 = u^2 + u'^2/(omega^2 - V) at a far radius and again at four times that radius; their difference is the
-tail error.  Each value carries an error estimate (Richardson correction of the propagation plus the tail).
+A^2 = u^2 + u'^2/(omega^2 - V) at a far radius (10^6 length scales, or 10^3 wavelengths if that is farther)
+and again at four times that radius; their difference is the tail error.  Each value carries an error estimate (Richardson correction of the propagation plus the tail).
 
 Supported so far: massless fields, a regular centre at r = 0, asymptotically flat (short-range or centrifugal
 tail); other cases raise ``Unsupported`` with a message.
@@ -79,6 +79,21 @@ def centre_density(problem, omegas, tolerance: float = 1e-10, steps: int = DEFAU
     omegas = np.asarray(omegas, dtype=float)
     if omegas.ndim != 1 or np.any(~np.isfinite(omegas)) or np.any(omegas <= 0):
         raise ValueError("frequencies must be positive and finite")
+    # frequencies so low that the far radius must grow are solved in their own decades (the far radius of a
+    # batch is set by its lowest frequency)
+    threshold = 1e3 / (FAR * problem.length_scale)
+    low = omegas < threshold
+    if np.any(low) and not np.all(low):
+        decade = np.where(low, np.floor(np.log10(omegas / threshold)), 1.0)
+        parts = {}
+        for value in np.unique(decade):
+            index = np.nonzero(decade == value)[0]
+            parts[value] = (index, centre_density(problem, omegas[index], tolerance, steps, max_steps))
+        merged = DensityResult(omegas, *(np.zeros(len(omegas)) for _ in range(5)), tolerance)
+        for index, part in parts.values():
+            for name in ("density", "error", "amplitude", "propagation_error", "tail_error"):
+                getattr(merged, name)[index] = getattr(part, name)
+        return merged
     n = len(omegas)
     density, error = np.zeros(n), np.full(n, np.inf)
     amplitude, propagation, tail = np.zeros(n), np.zeros(n), np.zeros(n)
@@ -115,7 +130,9 @@ def _run(problem, omegas, steps):
     state = np.zeros((n, 2))
     state[:, 1] = 1.0
     log_scale = np.zeros(n)
-    far = FAR * problem.length_scale
+    # the far radius must lie many wavelengths out for the amplitude invariant; the geometric grid makes
+    # its cost logarithmic in the radius
+    far = max(FAR * problem.length_scale, 1e3 / float(np.min(omegas)))
     interfaces = {i.inner: i for i in problem.interfaces}
     for region in problem.regions:
         geometric = region.upper is None

@@ -49,3 +49,17 @@ class NumericProblem:
     interfaces: tuple[NumericInterface, ...]
     mass: float
     length_scale: float
+
+
+@dataclass(frozen=True)
+class NumericDetector:
+    """The [detector] and [compare] sections as numbers (filled at the symbolic boundary)."""
+
+    radius: float
+    shape: str
+    switching: dict            # numeric values of the switching keys (width, tail, ...)
+    gaps: tuple[float, ...]
+    state: str
+    coupling: float | None
+    compare_with: str | None   # "minkowski", a path, or None
+    sigmas: float

@@ -1,0 +1,115 @@
+"""Detector response at a regular centre (PHYSICS.md sections 7-9; REFERENCES.md "Detectors")."""
+
+import json
+import os
+
+import numpy as np
+import pytest
+from scipy.integrate import quad
+from scipy.special import erfcinv
+
+import derive
+from derive.cli import main
+from derive.codegen.catalog import KernelSet
+from derive.codegen.problem import numeric_detector, numeric_problem
+from derive.detector.response import trials_to_distinguish
+from derive.detector.study import minkowski_gaussian_response, study
+from derive.detector.switching import Switching
+from test_shells import two_region_spec
+from test_solve import FLAT
+
+ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+DETECTOR = """
+[detector]
+at = "r = 0"
+switching = {{ shape = "gaussian", width = "{width}" }}
+gaps = [{gaps}]
+state = "vacuum"
+coupling = 0.01
+[compare]
+with = "minkowski"
+sigmas = 3
+"""
+
+
+def run_study(path):
+    st = derive.load(path)
+    return study(numeric_problem(KernelSet(st)), numeric_detector(st))
+
+
+def test_flat_gaussian_response_from_the_mode_sum(write_spec):
+    # Source: REFERENCES.md "Detectors" (follows from the Minkowski Wightman function, Birrell & Davies 1982,
+    # ch. 3): with sigma = 1, F = 1/(4 pi) at Omega = 0, 0.007088272232636416 at Omega = 1,
+    # 0.2891830640065146 at Omega = -1 (values computed independently three ways).
+    path = write_spec(FLAT + DETECTOR.format(width="1", gaps="-1.0, 0.0, 1.0"))
+    result = run_study(path)
+    expected = np.array([0.2891830640065146, 1 / (4 * np.pi), 0.007088272232636416])
+    np.testing.assert_allclose(result["response"], expected, rtol=1e-12)
+    assert np.all(result["error"] <= 1e-10 * expected)
+    np.testing.assert_allclose(minkowski_gaussian_response([-1.0, 0.0, 1.0], 1.0), expected, rtol=1e-15)
+    # in flat space the relative difference to Minkowski is zero within its error
+    assert np.all(np.abs(result["relative_difference"]) <= result["relative_difference_error"] + 1e-12)
+
+
+def test_small_shell_difference_is_linear_in_its_mass(write_spec):
+    # Issue 6 check: a thin shell of small mass M changes the response by an amount linear in M
+    # (first-order perturbation theory; common practice).
+    differences = []
+    for mass in (1e-5, 2e-5):
+        spec = two_region_spec("1", "1 - 2*M/r", f"M = {{ value = {mass}, positive = true }}\n"
+                               "R = { value = 1.0, positive = true }")
+        spec += DETECTOR.format(width="0.5", gaps="-4.0, 0.0, 4.0")
+        result = run_study(write_spec(spec, f"shell{mass}.toml"))
+        assert np.all(np.abs(result["relative_difference"]) > 10 * result["relative_difference_error"])
+        differences.append(result["relative_difference"])
+    np.testing.assert_allclose(differences[1] / differences[0], 2.0, rtol=2e-4)
+
+
+@pytest.mark.parametrize("k", [0.0, 0.7, 3.0])
+def test_gaussian_transform_against_direct_quadrature(k):
+    # |chi_hat(k)|^2 = 2 pi sigma^2 exp(-sigma^2 k^2) (PHYSICS.md section 8) against scipy's quad of
+    # int chi(tau) e^{-i k tau} dtau (the imaginary part vanishes by symmetry).
+    switching = Switching("gaussian", 0.8)
+    real, _ = quad(lambda t: switching.chi(t) * np.cos(k * t), -np.inf, np.inf, epsabs=1e-14, epsrel=1e-13)
+    assert switching.power(k) == pytest.approx(real ** 2, rel=1e-11)
+    # the effective duration holds all but the tail of chi^2
+    inside, _ = quad(lambda t: switching.chi(t) ** 2, -switching.duration / 2, switching.duration / 2)
+    total = np.sqrt(np.pi) * 0.8
+    assert 1 - inside / total == pytest.approx(switching.tail, rel=1e-3)
+
+
+def test_locality_of_a_centred_detector():
+    # PHYSICS.md section 9: from the centre of a flat interior of radius R the light round trip is 2R in the
+    # interior's proper units; the Gaussian's duration is 2 sigma erfcinv(1e-12).
+    result = run_study(os.path.join(ROOT, "worked", "dust_shell", "spec.toml"))
+    assert result["locality"]["round_trip"] == pytest.approx(2.0, rel=1e-13)
+    assert result["locality"]["duration"] == pytest.approx(2 * 0.2 * erfcinv(1e-12), rel=1e-14)
+    assert result["locality"]["local"] is False   # 2.017 > 2: the worked example is deliberately just non-local
+
+
+def test_trials_formula():
+    # PHYSICS.md section 9 (normal approximation to the binomial; common practice), by hand:
+    p_a, p_b, z = 1.0e-3, 1.1e-3, 3.0
+    expected = z ** 2 * (np.sqrt(p_a * (1 - p_a)) + np.sqrt(p_b * (1 - p_b))) ** 2 / (p_a - p_b) ** 2
+    assert trials_to_distinguish(p_a, p_b, z) == pytest.approx(expected, rel=1e-15)
+
+
+def test_response_command_json_contract(tmp_path, capsys):
+    # Issue 6 contract: {"gaps", "response", "error", "reference": {"with", "response", "error"},
+    # "relative_difference", "locality": {"duration", "round_trip", "local"}, "trials_to_distinguish"}
+    spec = os.path.join(ROOT, "worked", "dust_shell", "spec.toml")
+    assert main(["response", spec, "--json", "--out", str(tmp_path / "out"), "--gaps=-2,0,2"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    for key in ("gaps", "response", "error", "reference", "relative_difference", "locality",
+                "trials_to_distinguish"):
+        assert key in data
+    assert set(data["reference"]) >= {"with", "response", "error"}
+    assert set(data["locality"]) >= {"duration", "round_trip", "local"}
+    assert data["gaps"] == [-2.0, 0.0, 2.0] and len(data["trials_to_distinguish"]) == 3
+    assert (tmp_path / "out" / "response.csv").is_file() and (tmp_path / "out" / "response.png").is_file()
+
+
+def test_unsupported_states_are_refused_with_a_reason(capsys):
+    spec = os.path.join(ROOT, "worked", "schwarzschild", "spec.toml")
+    assert main(["response", spec]) == 2
+    assert "cannot handle this yet" in capsys.readouterr().err
