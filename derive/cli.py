@@ -300,6 +300,19 @@ def cmd_response(args) -> int:
     return 0
 
 
+def cmd_run(args) -> int:
+    from derive.run import run
+
+    spacetime = _load(args)
+    tolerance = _tolerance(args, spacetime, 1e-10)
+    progress = (lambda message: print(message, file=sys.stderr)) if not args.quiet else (lambda message: None)
+    summary = run(spacetime, args.out, tolerance, progress)
+    print(f"wrote {args.out}: " + ", ".join(sorted(os.listdir(args.out))))
+    for stage, reason in summary["skipped"].items():
+        print(f"  skipped {stage}: {reason}")
+    return 0
+
+
 def cmd_demo(args) -> int:
     from derive.demo import run_demo
 
@@ -355,6 +368,11 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--tolerance", type=float, help="relative tolerance of the spectral density (default 1e-10)")
     p.add_argument("--json", action="store_true", help="print JSON")
     p.add_argument("--out", metavar="DIR", help="write response.csv and response.png here")
+
+    p = spec_command("run", "the whole job: derivation, kernels, spectrum, response, summary, provenance", cmd_run)
+    p.add_argument("--out", required=True, metavar="DIR", help="folder to write (replaced atomically)")
+    p.add_argument("--tolerance", type=float, help="relative tolerance of the numerics (default 1e-10)")
+    p.add_argument("--quiet", action="store_true", help="no progress messages")
 
     p = sub.add_parser("demo", help="run the bundled scenario end to end and explain what it shows")
     p.add_argument("--out", metavar="DIR", help="also write the files of the run here")

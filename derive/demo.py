@@ -10,12 +10,53 @@ from __future__ import annotations
 import os
 from importlib import resources
 
+import numpy as np
 import sympy as sp
 
 
 def demo_spec_path() -> str:
     """Path of the bundled demo spec."""
     return str(resources.files("derive.examples").joinpath("charged_shell.toml"))
+
+
+def _runs(result, index):
+    trials = result.get("trials_to_distinguish")
+    if trials is not None and np.isfinite(trials[index]):
+        return f"about {trials[index]:.2g} runs"
+    bound = result.get("trials_lower_bound")
+    if bound is not None and np.isfinite(bound[index]):
+        return f"more than {bound[index]:.2g} runs (the difference is below the numerical error)"
+    return "an unknown number of runs"
+
+
+def _plain_summary(results, alpha, coupling, sigmas) -> str:
+    spec_flat, spec_charge = results["spec"]
+    local_flat, local_charge = results["local"]
+    best = int(np.argmax(np.abs(spec_flat["relative_difference"])))
+    best_charge = int(np.argmax(np.abs(spec_charge["relative_difference"])))
+    local_best = int(np.argmax(np.abs(local_flat["relative_difference"])))
+    lines = [
+        "In plain words:",
+        f"- Inside the shell space is flat and clocks run at {alpha:.4f} of the rate far away; a probe measuring in "
+        "its own proper time cannot see that rate, and the geometry around it is exactly that of empty space.",
+        f"- With the spec's switching (width {spec_flat['switching'].width:g}) the measurement is "
+        f"{'local' if spec_flat['locality']['local'] else 'not local'}: the largest difference from empty space is "
+        f"{spec_flat['relative_difference'][best]:+.3e} (gap {spec_flat['gaps'][best]:g}); at coupling "
+        f"lambda = {coupling} telling them apart at {sigmas:g} standard deviations takes {_runs(spec_flat, best)}.",
+        f"- Charged against uncharged shell of the same mass: relative difference "
+        f"{spec_charge['relative_difference'][best_charge]:+.3e} (gap {spec_charge['gaps'][best_charge]:g}), "
+        f"{_runs(spec_charge, best_charge)}.",
+        f"- With a strictly local switching (width {local_flat['switching'].width:g}, over before light could "
+        f"return from the shell) the difference from empty space falls to "
+        f"{local_flat['relative_difference'][local_best]:+.2e} +- "
+        f"{local_flat['relative_difference_error'][local_best]:.0e} ({_runs(local_flat, local_best)}), but not to "
+        "zero: no signal from the shell is needed, because the field's vacuum inside is the ground state of the "
+        "whole spacetime and differs from the Minkowski vacuum even where the geometry is exactly flat (as in a "
+        "Casimir cavity). What locality removes is only the part carried by signals that return from the shell.",
+        "- Every number above carries its error estimate (modes to about 1e-10, quadrature and tails included); "
+        "only the static vacuum and a detector at the centre are computed by this version.",
+    ]
+    return "\n".join(lines)
 
 
 def _number(expr, values) -> float:
@@ -71,25 +112,39 @@ def run_demo(out: str | None = None) -> int:
     print(f"   {len(kernels.entries)} kernels, status: {', '.join(sorted(statuses))}; largest relative error "
           f"{worst:.1e} over {kernels.entries[0].verification.points} points each")
 
-    print("\nWhat this tells the probe so far: everything up to the mode equations is exact and checked. The "
-          "interior is flat, so a detector inside sees nothing local; the shell and the charge enter only through "
-          "the interior clock rate and the matching of the modes at r = R. The mode solver and the detector "
-          "response (the probabilities and how many runs would tell this shell from an uncharged one) are the "
-          "next stages of derive and are not in this version.")
-    if out:
-        from derive.codegen.export import export
-        from derive.report.derivation import Derivation
-        from derive.report.json_output import write_atomic
-        from derive.report.latex import compile_pdf, field_sections, geometry_sections, junction_sections
+    print("\n5. The modes and what the probe registers")
+    from dataclasses import replace
 
-        derivation = Derivation(spacetime.title)
-        for stage in (geometry_sections, junction_sections, field_sections):
-            stage(derivation, spacetime)
-        tex = derivation.to_latex()
-        write_atomic(os.path.join(out, "derivation.tex"), tex)
-        ok, _, pdf = compile_pdf(tex)
-        if ok:
-            write_atomic(os.path.join(out, "derivation.pdf"), pdf)
-        export(kernels, os.path.join(out, "kernels"))
-        print(f"\nwrote {out}/derivation.tex{' and derivation.pdf' if ok else ''}, and {out}/kernels/")
+    import numpy as np
+
+    from derive.codegen.problem import numeric_detector, numeric_problem
+    from derive.detector.study import study
+
+    problem = numeric_problem(kernels)
+    uncharged = load(demo_spec_path(), overrides={"Q": 0.0})
+    uncharged_problem = numeric_problem(KernelSet(uncharged))
+    detector = numeric_detector(spacetime)
+    alpha = float(np.sqrt(problem.regions[0].metric_f(np.array([0.0]))[0]))
+    results = {}
+    for label, width in (("spec", detector.switching["width"]), ("local", 0.15)):
+        d = replace(detector, switching={**detector.switching, "width": width})
+        results[label] = (study(problem, d), study(problem, replace(d, compare_with="other"), uncharged_problem))
+    for label, (vs_flat, vs_uncharged) in results.items():
+        loc = vs_flat["locality"]
+        print(f"   switching width {vs_flat['switching'].width:g}: lasts {loc['duration']:.3f} (all but 1e-12 of "
+              f"chi^2); light needs {loc['round_trip']:.3f} to reach the shell and return -> "
+              f"{'local' if loc['local'] else 'NOT local'}")
+        print(f"   {'gap':>6} {'F (charged shell)':>20} {'vs empty space':>24} {'vs uncharged shell':>24}")
+        for i, gap in enumerate(vs_flat["gaps"]):
+            print(f"   {gap:6.1f} {vs_flat['response'][i]:13.10f} +- {vs_flat['error'][i]:.0e} "
+                  f"{vs_flat['relative_difference'][i]:+13.3e} +- {vs_flat['relative_difference_error'][i]:.0e} "
+                  f"{vs_uncharged['relative_difference'][i]:+13.3e} +- "
+                  f"{vs_uncharged['relative_difference_error'][i]:.0e}")
+    print()
+    print(_plain_summary(results, alpha, detector.coupling, detector.sigmas))
+    if out:
+        from derive.run import run
+
+        run(spacetime, out, progress=lambda message: None)
+        print(f"\nwrote {out}: " + ", ".join(sorted(os.listdir(out))))
     return 0

@@ -24,7 +24,18 @@ def _png(figure) -> bytes:
     return buffer.getvalue()
 
 
-def write_spectrum_files(out: str, data: dict, title: str) -> list[str]:
+def _save(figure, out: str, stem: str, pdf: bool) -> list[str]:
+    paths = [os.path.join(out, stem + ".png")]
+    write_atomic(paths[0], _png(figure))
+    if pdf:
+        buffer = io.BytesIO()
+        figure.savefig(buffer, format="pdf", bbox_inches="tight")
+        paths.append(os.path.join(out, stem + ".pdf"))
+        write_atomic(paths[1], buffer.getvalue())
+    return paths
+
+
+def write_spectrum_files(out: str, data: dict, title: str, pdf: bool = False) -> list[str]:
     import matplotlib
 
     matplotlib.use("Agg")
@@ -43,13 +54,12 @@ def write_spectrum_files(out: str, data: dict, title: str) -> list[str]:
     axes[1].set_ylabel("ratio to Minkowski")
     axes[1].set_xlabel(r"$\omega$ (spec's time coordinate; $G=c=\hbar=1$)")
     axes[0].set_title(f"{title}: l = {data['l']} at r = {data['at']:g}", fontsize=10)
-    png_path = os.path.join(out, "spectrum.png")
-    write_atomic(png_path, _png(figure))
+    paths = _save(figure, out, "spectrum", pdf)
     plt.close(figure)
-    return [csv_path, png_path]
+    return [csv_path] + paths
 
 
-def write_response_files(out: str, data: dict, title: str) -> list[str]:
+def write_response_files(out: str, data: dict, title: str, pdf: bool = False) -> list[str]:
     import matplotlib
 
     matplotlib.use("Agg")
@@ -81,7 +91,6 @@ def write_response_files(out: str, data: dict, title: str) -> list[str]:
     axes[-1].set_xlabel(r"gap $\Omega$ (detector's proper time; $G=c=\hbar=1$)")
     axes[0].set_title(f"{title}: static detector, {data['switching']['shape']} switching, "
                       f"width {data['switching']['width']:g}, {data['state']} state", fontsize=9)
-    png_path = os.path.join(out, "response.png")
-    write_atomic(png_path, _png(figure))
+    paths = _save(figure, out, "response", pdf)
     plt.close(figure)
-    return [csv_path, png_path]
+    return [csv_path] + paths

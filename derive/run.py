@@ -1,0 +1,191 @@
+"""`derive run`: the whole job for one spec, written atomically into one folder.
+
+DIR receives derivation.tex (and derivation.pdf where pdflatex is found), kernels/ with verification.json,
+spectrum and response tables (CSV) and plots (PNG and PDF), summary.json (key results, each with its error) and
+provenance.json (spec hash, versions, tolerances, timings).  Everything is written into a staging folder beside
+DIR and moved into place at the end: a run that fails or is interrupted leaves an earlier DIR as it was.
+Stages the solver cannot do yet for this spacetime are skipped with the reason recorded in summary.json.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import platform
+import shutil
+import sys
+import tempfile
+import time
+from importlib import metadata
+
+import numpy as np
+import sympy as sp
+
+from derive import __version__
+
+SPECTRUM_GRID = (0.02, 20.0, 200)   # omega in units of 1/length scale
+
+
+def _versions() -> dict:
+    out = {"derive": __version__, "python": platform.python_version()}
+    for name in ("sympy", "mpmath", "numpy", "scipy", "matplotlib"):
+        try:
+            out[name] = metadata.version(name)
+        except metadata.PackageNotFoundError:
+            out[name] = None
+    return out
+
+
+def _number(expr, values):
+    value = sp.S(expr).subs(values)
+    return float(sp.N(value, 17)) if value.is_number and value.is_real else str(expr)
+
+
+def run(spacetime, out: str, tolerance: float = 1e-10, progress=print) -> dict:
+    """Write everything for ``spacetime`` into the folder ``out``; returns the summary."""
+    from derive.codegen.catalog import KernelSet
+    from derive.codegen.export import export
+    from derive.report.derivation import Derivation
+    from derive.report.json_output import write_atomic
+    from derive.report.latex import compile_pdf, field_sections, geometry_sections, junction_sections
+
+    out = os.path.abspath(out)
+    parent = os.path.dirname(out)
+    os.makedirs(parent, exist_ok=True)
+    staging = tempfile.mkdtemp(prefix=".derive-run-", dir=parent)
+    timings, summary = {}, {"spec": spacetime.path, "title": spacetime.title, "skipped": {}}
+    values = spacetime.parameter_values
+    try:
+        start = time.perf_counter()
+        progress("geometry ...")
+        derivation = Derivation(spacetime.title)
+        geometry_sections(derivation, spacetime)
+        summary["regions"] = {name: {"ricci_scalar": str(geo.ricci_scalar), "kretschmann": str(geo.kretschmann),
+                                     "energy_conditions": geo.energy_conditions}
+                              for name, geo in spacetime.geometry.items()}
+        timings["geometry"] = time.perf_counter() - start
+        if spacetime.interfaces:
+            start = time.perf_counter()
+            progress("junction conditions ...")
+            junction_sections(derivation, spacetime)
+            summary["interfaces"] = [{
+                "between": list(shell.interface.between), "at": shell.interface.text,
+                "solved": {str(k): str(v) for k, v in shell.solved.items()},
+                "surface_energy_density": _number(shell.surface_energy_density, values),
+                "surface_pressure": _number(shell.surface_pressure, values),
+                "error": {"surface_energy_density": 0.0, "surface_pressure": 0.0},
+                "exact": "closed forms evaluated at the spec's values in double precision"}
+                for shell in spacetime.shells]
+            timings["junction"] = time.perf_counter() - start
+        kernels = None
+        if spacetime.field is not None:
+            start = time.perf_counter()
+            progress("field equations ...")
+            field_sections(derivation, spacetime)
+            timings["field"] = time.perf_counter() - start
+            start = time.perf_counter()
+            progress("kernels (generated and verified) ...")
+            kernels = KernelSet(spacetime)
+            document = export(kernels, os.path.join(staging, "kernels"))
+            summary["kernels"] = {k["name"]: {"status": k["status"], "max_relative_error": k["max_relative_error"]}
+                                  for k in document["kernels"]}
+            timings["kernels"] = time.perf_counter() - start
+        tex = derivation.to_latex()
+        write_atomic(os.path.join(staging, "derivation.tex"), tex)
+        start = time.perf_counter()
+        ok, log, pdf = compile_pdf(tex)
+        if ok:
+            write_atomic(os.path.join(staging, "derivation.pdf"), pdf)
+        else:
+            summary["skipped"]["derivation.pdf"] = "pdflatex not found" if "not found" in log else "pdflatex failed"
+        timings["latex"] = time.perf_counter() - start
+        if kernels is not None:
+            _numerics(spacetime, kernels, staging, tolerance, summary, timings, progress)
+        provenance = {"spec": spacetime.path, "spec_hash": spacetime.source_hash, "versions": _versions(),
+                      "tolerance": tolerance, "timings_seconds": timings, "command": sys.argv,
+                      "parameters": {p.name: p.value for p in spacetime.parameters.values()},
+                      "written": time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())}
+        write_atomic(os.path.join(staging, "summary.json"), json.dumps(_plain(summary), indent=2))
+        write_atomic(os.path.join(staging, "provenance.json"), json.dumps(_plain(provenance), indent=2))
+        backup = None
+        if os.path.exists(out):
+            backup = tempfile.mkdtemp(prefix=".derive-old-", dir=parent)
+            os.rmdir(backup)
+            os.replace(out, backup)
+        os.replace(staging, out)
+        if backup:
+            shutil.rmtree(backup, ignore_errors=True)
+        return summary
+    except BaseException:
+        shutil.rmtree(staging, ignore_errors=True)
+        raise
+
+
+def _numerics(spacetime, kernels, staging, tolerance, summary, timings, progress):
+    from derive.cli import response_json
+    from derive.codegen.problem import numeric_detector, numeric_problem
+    from derive.detector.study import study
+    from derive.detector.switching import UnsupportedSwitching
+    from derive.report.tables import write_response_files, write_spectrum_files
+    from derive.solve.api import METHOD, spectrum_at_centre
+    from derive.solve.centre import Unsupported
+
+    start = time.perf_counter()
+    problem = numeric_problem(kernels)
+    progress("spectral density ...")
+    low, high, count = SPECTRUM_GRID
+    omegas = np.linspace(low, high, count) / problem.length_scale
+    try:
+        result = spectrum_at_centre(problem, omegas, 0, tolerance)
+    except Unsupported as exc:
+        summary["skipped"]["spectrum"] = str(exc)
+        summary["skipped"]["response"] = str(exc)
+        return
+    data = {"l": 0, "at": 0.0, "omega": omegas.tolist(), "density": result["density"].tolist(),
+            "error": {"density": result["error"].tolist()}, "minkowski_density": result["minkowski"].tolist(),
+            "method": METHOD}
+    write_spectrum_files(staging, data, spacetime.title, pdf=True)
+    worst = float(np.max(result["error"] / result["density"]))
+    summary["spectrum"] = {"at": 0.0, "l": 0, "omega_range": [float(omegas[0]), float(omegas[-1])],
+                           "points": count, "largest_relative_error": worst, "ok": bool(result["ok"])}
+    timings["spectrum"] = time.perf_counter() - start
+    if not result["ok"]:
+        from derive.errors import AccuracyError
+
+        raise AccuracyError(result["message"], {"largest relative error": worst, "tolerance": tolerance})
+    if spacetime.detector is None or not spacetime.detector.gaps:
+        summary["skipped"]["response"] = "no [detector] section with gaps"
+        return
+    start = time.perf_counter()
+    progress("detector response ...")
+    detector = numeric_detector(spacetime)
+    reference = None
+    if detector.compare_with not in (None, "minkowski"):
+        from derive import load
+
+        reference = numeric_problem(type(kernels)(load(detector.compare_with)))
+    try:
+        answer = study(problem, detector, reference, tolerance)
+    except (Unsupported, UnsupportedSwitching) as exc:
+        summary["skipped"]["response"] = str(exc)
+        return
+    data = response_json(answer)
+    write_response_files(staging, data, spacetime.title, pdf=True)
+    summary["response"] = data
+    timings["response"] = time.perf_counter() - start
+
+
+def _plain(value):
+    if isinstance(value, dict):
+        return {str(k): _plain(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_plain(v) for v in value]
+    if isinstance(value, (np.floating, float)):
+        return float(value) if np.isfinite(value) else None
+    if isinstance(value, (np.integer,)):
+        return int(value)
+    if isinstance(value, np.bool_):
+        return bool(value)
+    if isinstance(value, np.ndarray):
+        return _plain(value.tolist())
+    return value

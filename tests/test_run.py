@@ -1,0 +1,63 @@
+"""`derive run` and `derive demo` as a user runs them."""
+
+import json
+import os
+
+import pytest
+
+import derive
+from derive.cli import main
+
+ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+
+
+def test_run_writes_everything(tmp_path, capsys):
+    out = tmp_path / "result"
+    assert main(["run", os.path.join(ROOT, "worked", "charged_shell", "spec.toml"), "--out", str(out),
+                 "--quiet"]) == 0
+    names = set(os.listdir(out))
+    assert {"derivation.tex", "kernels", "summary.json", "provenance.json", "spectrum.csv", "spectrum.png",
+            "spectrum.pdf", "response.csv", "response.png", "response.pdf"} <= names
+    summary = json.loads((out / "summary.json").read_text())
+    assert summary["spectrum"]["ok"] and summary["spectrum"]["largest_relative_error"] < 1e-10
+    response = summary["response"]
+    assert len(response["response"]) == len(response["error"]) == len(response["gaps"])
+    assert all(e < 1e-9 * f for e, f in zip(response["error"], response["response"]))
+    provenance = json.loads((out / "provenance.json").read_text())
+    assert provenance["versions"]["sympy"] and provenance["spec_hash"] == derive.load(
+        os.path.join(ROOT, "worked", "charged_shell", "spec.toml")).source_hash
+    assert (out / "kernels" / "verification.json").is_file()
+
+
+def test_a_failing_run_leaves_the_earlier_folder(tmp_path, monkeypatch):
+    import derive.run as run_module
+
+    out = tmp_path / "result"
+    out.mkdir()
+    (out / "earlier.txt").write_text("keep")
+
+    def interrupted(*args, **kwargs):
+        raise KeyboardInterrupt
+    monkeypatch.setattr(run_module, "_numerics", interrupted)
+    with pytest.raises(KeyboardInterrupt):
+        run_module.run(derive.load(os.path.join(ROOT, "worked", "dust_shell", "spec.toml")), str(out),
+                       progress=lambda message: None)
+    assert (out / "earlier.txt").read_text() == "keep"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["result"]
+
+
+def test_run_skips_what_the_solver_cannot_do_yet(tmp_path, capsys):
+    out = tmp_path / "bh"
+    assert main(["run", os.path.join(ROOT, "worked", "schwarzschild", "spec.toml"), "--out", str(out),
+                 "--quiet"]) == 0
+    summary = json.loads((out / "summary.json").read_text())
+    assert "spectrum" in summary["skipped"] and "regular centre" in summary["skipped"]["spectrum"]
+    assert "skipped spectrum" in capsys.readouterr().out
+
+
+@pytest.mark.slow
+def test_demo_end_to_end(tmp_path, capsys):
+    assert main(["demo", "--out", str(tmp_path / "demo")]) == 0
+    text = capsys.readouterr().out
+    assert "In plain words" in text and "runs" in text
+    assert (tmp_path / "demo" / "response.csv").is_file()
