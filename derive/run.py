@@ -46,7 +46,7 @@ def run(spacetime, out: str, tolerance: float = 1e-10, progress=print) -> dict:
     from derive.codegen.catalog import KernelSet
     from derive.codegen.export import export
     from derive.report.derivation import Derivation
-    from derive.report.json_output import write_atomic
+    from derive.report.json_output import replace_folder, write_atomic
     from derive.report.latex import compile_pdf, field_sections, geometry_sections, junction_sections
 
     out = os.path.abspath(out)
@@ -107,14 +107,7 @@ def run(spacetime, out: str, tolerance: float = 1e-10, progress=print) -> dict:
                       "written": time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())}
         write_atomic(os.path.join(staging, "summary.json"), json.dumps(_plain(summary), indent=2))
         write_atomic(os.path.join(staging, "provenance.json"), json.dumps(_plain(provenance), indent=2))
-        backup = None
-        if os.path.exists(out):
-            backup = tempfile.mkdtemp(prefix=".derive-old-", dir=parent)
-            os.rmdir(backup)
-            os.replace(out, backup)
-        os.replace(staging, out)
-        if backup:
-            shutil.rmtree(backup, ignore_errors=True)
+        replace_folder(staging, out)
         return summary
     except BaseException:
         shutil.rmtree(staging, ignore_errors=True)

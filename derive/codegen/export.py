@@ -14,6 +14,7 @@ import shutil
 import tempfile
 
 from derive import __version__
+from derive.report.json_output import replace_folder
 
 UNITS = {
     "potential": "1/length^2", "dtortoise_dr": "dimensionless", "tortoise": "length",
@@ -72,14 +73,7 @@ def export(kernel_set, out: str) -> dict:
             json.dump(document, handle, indent=2)
         with open(os.path.join(staging, "README.md"), "w", encoding="utf-8") as handle:
             handle.write(_readme(kernel_set, document, os.path.basename(out)))
-        backup = None
-        if os.path.exists(out):
-            backup = tempfile.mkdtemp(prefix=".derive-old-", dir=parent)
-            os.rmdir(backup)
-            os.replace(out, backup)
-        os.replace(staging, out)
-        if backup:
-            shutil.rmtree(backup, ignore_errors=True)
+        replace_folder(staging, out)
         return document
     except BaseException:
         shutil.rmtree(staging, ignore_errors=True)

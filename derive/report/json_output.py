@@ -143,3 +143,19 @@ def field_json(problem, l_value=None) -> dict:
                    "derivative_jump": expr_text(m.derivative_jump)} for m in problem.interfaces]
     return {"l": l_value, "mass": expr_text(problem.spacetime.field.mass),
             "coupling": expr_text(problem.spacetime.field.coupling), "regions": regions, "interfaces": interfaces}
+
+
+def replace_folder(staging: str, out: str) -> None:
+    """Move a fully written staging folder into place as ``out``; an earlier ``out`` is swapped away first and
+    removed only after the new one is in place."""
+    import shutil
+
+    parent = os.path.dirname(os.path.abspath(out))
+    backup = None
+    if os.path.exists(out):
+        backup = tempfile.mkdtemp(prefix=".derive-old-", dir=parent)
+        os.rmdir(backup)
+        os.replace(out, backup)
+    os.replace(staging, out)
+    if backup:
+        shutil.rmtree(backup, ignore_errors=True)
