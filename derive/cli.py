@@ -205,8 +205,11 @@ def cmd_spectrum(args) -> int:
         raise InputError(f"--at {args.at}: the solver computes densities at a regular centre (r = 0) only, so far",
                          key="--at")
     tolerance = _tolerance(args, spacetime, 1e-10)
+    problem = _numeric_problem(spacetime)
+    if problem.regions[0].lower_kind == "horizon":
+        return _scattering_output(args, spacetime, problem, omegas, tolerance)
     try:
-        result = spectrum_at_centre(_numeric_problem(spacetime), omegas, args.l, tolerance)
+        result = spectrum_at_centre(problem, omegas, args.l, tolerance)
     except Unsupported as exc:
         raise InputError(f"derive spectrum cannot solve this spacetime yet: {exc}", file=spacetime.path) from None
     data = {"l": result["l"], "at": 0.0, "omega": list(map(float, omegas)),
@@ -230,6 +233,38 @@ def cmd_spectrum(args) -> int:
 
         raise AccuracyError(result["message"], {"tolerance": tolerance,
                                                 "largest relative error": float(max(result["error"] / result["density"]))})
+    return 0
+
+
+def _scattering_output(args, spacetime, problem, omegas, tolerance) -> int:
+    from derive.errors import AccuracyError
+    from derive.report.tables import write_scattering_files
+    from derive.solve.api import METHOD, scattering
+    from derive.solve.centre import Unsupported
+
+    try:
+        result = scattering(problem, omegas, args.l, tolerance)
+    except Unsupported as exc:
+        raise InputError(f"derive spectrum cannot solve this spacetime yet: {exc}", file=spacetime.path) from None
+    data = {"l": args.l, "omega": list(map(float, omegas)), "transmission": list(map(float, result["transmission"])),
+            "reflection": list(map(float, result["reflection"])), "density": None,
+            "error": {"transmission": list(map(float, result["error"])),
+                      "reflection": list(map(float, result["error"]))},
+            "flux_defect": list(map(float, result["flux_defect"])), "tolerance": tolerance, "method": METHOD,
+            "note": "the spectral density at a point outside a horizon is not computed by this version"}
+    if args.out:
+        for path in write_scattering_files(args.out, data, spacetime.title):
+            print(f"wrote {path}", file=sys.stderr)
+    if args.json:
+        _emit_json(data)
+    else:
+        print(f"{spacetime.title}: scattering of the l = {args.l} field off the horizon")
+        print(f"{'omega':>12} {'|T|^2':>22} {'error':>10} {'|R|^2':>22} {'|R|^2+|T|^2-1':>15}")
+        for w, t, e, r, d in zip(omegas, result["transmission"], result["error"], result["reflection"],
+                                 result["flux_defect"]):
+            print(f"{w:12.6g} {t:22.15e} {e:10.1e} {r:22.15e} {d:15.1e}")
+    if not result["ok"]:
+        raise AccuracyError(result["message"], {"tolerance": tolerance})
     return 0
 
 

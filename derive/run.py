@@ -128,6 +128,11 @@ def _numerics(spacetime, kernels, staging, tolerance, summary, timings, progress
     progress("spectral density ...")
     low, high, count = SPECTRUM_GRID
     omegas = np.linspace(low, high, count) / problem.length_scale
+    if problem.regions[0].lower_kind == "horizon":
+        _greybody(spacetime, problem, omegas, staging, tolerance, summary, timings, start)
+        summary["skipped"]["response"] = ("the detector response outside a horizon (Boulware, Hartle-Hawking, "
+                                          "Unruh states) is not computed by this version")
+        return
     try:
         result = spectrum_at_centre(problem, omegas, 0, tolerance)
     except Unsupported as exc:
@@ -166,6 +171,35 @@ def _numerics(spacetime, kernels, staging, tolerance, summary, timings, progress
     write_response_files(staging, data, spacetime.title, pdf=True)
     summary["response"] = data
     timings["response"] = time.perf_counter() - start
+
+
+def _greybody(spacetime, problem, omegas, staging, tolerance, summary, timings, start):
+    from derive.report.tables import write_scattering_files
+    from derive.solve.api import METHOD, scattering
+    from derive.solve.centre import Unsupported
+
+    try:
+        results = {l: scattering(problem, omegas, l, tolerance) for l in (0, 1, 2)}
+    except Unsupported as exc:
+        summary["skipped"]["spectrum"] = str(exc)
+        return
+    first = results[0]
+    data = {"l": 0, "omega": omegas.tolist(), "transmission": first["transmission"].tolist(),
+            "reflection": first["reflection"].tolist(),
+            "error": {"transmission": first["error"].tolist()}, "flux_defect": first["flux_defect"].tolist(),
+            "method": METHOD}
+    write_scattering_files(staging, data, spacetime.title, pdf=True)
+    summary["spectrum"] = {"kind": "transmission", "omega_range": [float(omegas[0]), float(omegas[-1])],
+                           "points": len(omegas),
+                           "by_l": {str(l): {"largest_relative_error": float(np.max(r["error"] / r["transmission"])),
+                                             "largest_flux_defect": float(np.max(np.abs(r["flux_defect"]))),
+                                             "ok": bool(r["ok"])} for l, r in results.items()}}
+    timings["spectrum"] = time.perf_counter() - start
+    bad = [l for l, r in results.items() if not r["ok"]]
+    if bad:
+        from derive.errors import AccuracyError
+
+        raise AccuracyError(results[bad[0]]["message"], {"l": bad[0], "tolerance": tolerance})
 
 
 def _plain(value):

@@ -144,8 +144,9 @@ class KernelSet:
                         out.append(self._entry(coefficients, (L_SYMBOL, OMEGA) + params, f"centre_series_{tag}",
                                                "centre_series", name, "region", domain))
                     if end["kind"] == "horizon":
-                        out.append(self._entry(end["surface_gravity"], params, f"surface_gravity_{tag}_{side}",
-                                               "surface_gravity", name, "region", domain))
+                        if side == "lower":
+                            out.append(self._entry(end["surface_gravity"], params, f"surface_gravity_{tag}",
+                                                   "surface_gravity", name, "region", domain))
                         if end.get("series_ingoing"):
                             coefficients = [end["exponents"][0]] + list(end["series_ingoing"])
                             out.append(self._entry(coefficients, (L_SYMBOL, OMEGA) + params,

@@ -8,6 +8,8 @@ r = 0, say) does not block it.
 
 from __future__ import annotations
 
+import numpy as np
+
 from derive.errors import AccuracyError, InputError
 from derive.solve.problem import NumericInterface, NumericProblem, NumericRegion
 
@@ -39,6 +41,19 @@ def numeric_problem(kernel_set) -> NumericProblem:
                             {e.name: e.verification.reason for e in bad})
 
     regions = {}
+    series = {}
+    for name, region in field.regions.items():
+        if region.ends["lower"]["kind"] == "horizon":
+            try:
+                entry = kernel_set.get("horizon_series", name)
+                gravity = kernel_set.get("surface_gravity", f"{name}")
+            except KeyError:
+                continue
+            for e in (entry,):
+                if e.verification is None:
+                    kernel_set.verify(e)
+            if entry.verification.status == "verified":
+                series[name] = (_bind(entry.kernel, values), float(np.asarray(gravity.kernel.function(*values))))
     for name, region in field.regions.items():
         d = region.region.domain_of(region.r)
         lower = float(d.lower.subs(st.parameter_values)) if d is not None and d.lower is not None else 0.0
@@ -48,7 +63,8 @@ def numeric_problem(kernel_set) -> NumericProblem:
             name, lower, upper, ends["lower"]["kind"], ends["upper"]["kind"], ends["upper"].get("tail"),
             _bind(kernel_set.get("potential", name).kernel, values),
             _bind(kernel_set.get("dtortoise_dr", name).kernel, values),
-            _bind(kernel_set.get("metric_f", name).kernel, values))
+            _bind(kernel_set.get("metric_f", name).kernel, values),
+            *(series.get(name, (None, None))))
     order = sorted(regions.values(), key=lambda reg: reg.lower)
     interfaces = []
     for matching in field.interfaces:

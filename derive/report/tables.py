@@ -94,3 +94,24 @@ def write_response_files(out: str, data: dict, title: str, pdf: bool = False) ->
     paths = _save(figure, out, "response", pdf)
     plt.close(figure)
     return [csv_path] + paths
+
+
+def write_scattering_files(out: str, data: dict, title: str, pdf: bool = False) -> list[str]:
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    rows = zip(data["omega"], data["transmission"], data["error"]["transmission"], data["reflection"],
+               data["flux_defect"])
+    csv_path = os.path.join(out, "spectrum.csv")
+    write_atomic(csv_path, _csv(["omega", "transmission", "transmission_error", "reflection", "flux_defect"], rows))
+    figure, axis = plt.subplots(figsize=(6.4, 4.0))
+    axis.plot(data["omega"], data["transmission"], label=r"$|T|^2$")
+    axis.plot(data["omega"], data["reflection"], "--", label=r"$|R|^2$")
+    axis.set_xlabel(r"$\omega$ (spec's time coordinate; $G=c=\hbar=1$)")
+    axis.set_title(f"{title}: l = {data['l']}", fontsize=10)
+    axis.legend()
+    paths = _save(figure, out, "spectrum", pdf)
+    plt.close(figure)
+    return [csv_path] + paths

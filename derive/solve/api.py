@@ -22,3 +22,12 @@ def spectrum_at_centre(problem, omegas, l: int = 0, tolerance: float = 1e-10) ->
     return {"l": 0, "at": 0.0, "omega": omegas, "density": result.density, "error": result.error,
             "ok": result.ok, "message": result.message(), "minkowski": minkowski_density(omegas),
             "tail_error": result.tail_error, "propagation_error": result.propagation_error}
+
+
+def scattering(problem, omegas, l: int, tolerance: float = 1e-10) -> dict:
+    """|T|^2 and |R|^2 for a black-hole spacetime (see derive.solve.horizon)."""
+    from derive.solve.horizon import transmission
+
+    result = transmission(problem, l, np.asarray(omegas, dtype=float), tolerance)
+    return {"l": l, "omega": result.omega, "transmission": result.transmission, "reflection": result.reflection,
+            "error": result.error, "flux_defect": result.flux_defect, "ok": result.ok, "message": result.message()}

@@ -28,6 +28,8 @@ class NumericRegion:
     potential: Callable
     dtortoise_dr: Callable
     metric_f: Callable
+    horizon_series: Callable | None = None    # (l, omega) -> [exponent, a_0, a_1, a_2] at a lower horizon
+    surface_gravity: float | None = None
 
 
 @dataclass(frozen=True)
