@@ -21,7 +21,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from derive.solve.propagation import region_propagator
+from derive.solve.propagation import outer_pieces, region_propagator
 
 DEFAULT_STEPS = 48
 FAR = 1.0e6          # far radius in units of the problem's length scale
@@ -135,14 +135,17 @@ def _run(problem, omegas, steps):
     far = max(FAR * problem.length_scale, 1e3 / float(np.min(omegas)))
     interfaces = {i.inner: i for i in problem.interfaces}
     for region in problem.regions:
-        geometric = region.upper is None
-        upper = far if geometric else region.upper
-        lower = max(region.lower, 1e-12) if geometric else region.lower
-        matrix, scale = region_propagator(region, 0, omegas, lower, upper, steps, geometric)
-        state = np.einsum("nij,nj->ni", matrix, state)
-        size = np.max(np.abs(state), axis=1)
-        state /= size[:, None]
-        log_scale += scale + np.log(size)
+        if region.upper is None:
+            pieces = [(a, b, count, True) for a, b, count in
+                      outer_pieces(max(region.lower, 1e-12), far, steps, problem.length_scale)]
+        else:
+            pieces = [(region.lower, region.upper, steps, False)]
+        for lower, upper, count, geometric in pieces:
+            matrix, scale = region_propagator(region, 0, omegas, lower, upper, count, geometric)
+            state = np.einsum("nij,nj->ni", matrix, state)
+            size = np.max(np.abs(state), axis=1)
+            state /= size[:, None]
+            log_scale += scale + np.log(size)
         if region.name in interfaces:
             transfer = np.broadcast_to(np.asarray(interfaces[region.name].transfer(0, omegas), dtype=float),
                                        (2, 2, n))

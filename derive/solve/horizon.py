@@ -19,9 +19,9 @@ from dataclasses import dataclass
 import numpy as np
 
 from derive.solve.centre import FAR, Unsupported, rounding_floor
-from derive.solve.propagation import region_propagator
+from derive.solve.propagation import outer_pieces, region_propagator
 
-START = 1e-4          # x_0 / r_h
+START = 1e-5          # x_0 / r_h
 
 
 @dataclass
@@ -72,9 +72,16 @@ def _start_state(region, l, omegas, x0):
 
 def _run(problem, l, omegas, steps, start, far_factor=1.0):
     horizon = problem.regions[0].lower
-    x0 = start * horizon
+    # the series' coefficients grow like |s|^k (s = -i omega/(2 kappa)): keep |s| x0/r_h small so that the
+    # truncated terms stay below 1e-12; and use the exactly representable x0 = (r_h + x) - r_h, so that the
+    # kernels (which compute r - r_h) and the series see the same point
+    s_max = float(np.max(np.abs(np.asarray(problem.regions[0].horizon_series(l, omegas), dtype=complex)[0])))
+    x0 = start * horizon / max(1.0, s_max)
+    x0 = (horizon + x0) - horizon
     state = _start_state(problem.regions[0], l, omegas, x0)
-    far = max(FAR * problem.length_scale, 1e3 / float(np.min(omegas))) * far_factor
+    # far enough that the centrifugal tail l(l+1)/(omega r)^2 is below 1e-12 of the wave (WKB split error)
+    lowest = float(np.min(omegas))
+    far = max(FAR * problem.length_scale, 1e3 / lowest, 1e6 * np.sqrt(l * (l + 1) + 1.0) / lowest) * far_factor
     log_scale = np.zeros(len(omegas))
     interfaces = {i.inner: i for i in problem.interfaces}
     for index, region in enumerate(problem.regions):
@@ -82,13 +89,17 @@ def _run(problem, l, omegas, steps, start, far_factor=1.0):
         lower = region.lower
         if index == 0:
             middle = min(2 * horizon, region.upper) if region.upper is not None else 2 * horizon
-            pieces.append((horizon, x0, middle - horizon, "horizon"))
+            # a fixed number of steps per e-fold of (r - r_h), so that moving x0 only adds steps
+            efolds = np.log((middle - horizon) / x0)
+            pieces.append((horizon, x0, middle - horizon, "horizon", max(16, int(round(steps * efolds / 9.2)))))
             lower = middle
-        upper = far if region.upper is None else region.upper
-        if upper > lower:
-            pieces.append((0.0, lower, upper, "geometric" if region.upper is None else "uniform"))
-        for shift, a, b, kind in pieces:
-            matrix, scale = _piece(region, l, omegas, shift, a, b, steps, kind)
+        if region.upper is None:
+            for a, b, n in outer_pieces(lower, far, steps, problem.length_scale):
+                pieces.append((0.0, a, b, "geometric", n))
+        elif region.upper > lower:
+            pieces.append((0.0, lower, region.upper, "uniform", steps))
+        for shift, a, b, kind, *count in pieces:
+            matrix, scale = _piece(region, l, omegas, shift, a, b, count[0] if count else steps, kind)
             state = np.einsum("nij,nj->ni", matrix, state)
             size = np.max(np.abs(state), axis=1)
             state = state / size[:, None]
@@ -127,26 +138,36 @@ def _piece(region, l, omegas, shift, a, b, steps, kind):
 
 
 def transmission(problem, l: int, omegas, tolerance: float = 1e-10, steps: int = 64,
-                 max_steps: int = 4096) -> Scattering:
+                 max_steps: int = 16384) -> Scattering:
     """|T|^2 and |R|^2 for the angular label l at every omega (> 0), with error estimates."""
     check_supported(problem)
     omegas = np.asarray(omegas, dtype=float)
     if omegas.ndim != 1 or np.any(~np.isfinite(omegas)) or np.any(omegas <= 0):
         raise ValueError("frequencies must be positive and finite")
+    n = len(omegas)
+    T, R, error = np.zeros(n), np.zeros(n), np.zeros(n)
+    active = np.arange(n)
     count = steps
     coarse = _run(problem, l, omegas, count, START)
-    while True:
-        fine = _run(problem, l, omegas, 2 * count, START)
-        if np.all(np.abs(fine[0] - coarse[0]) <= 0.5 * tolerance * fine[0]) or 2 * count >= max_steps:
-            break
+    while len(active):
+        fine = _run(problem, l, omegas[active], 2 * count, START)
+        done = np.abs(fine[0] - coarse[0]) <= 0.5 * tolerance * fine[0]
+        if 2 * count >= max_steps:
+            done[:] = True
+        if np.any(done):
+            index = active[done]
+            # the value from a grid twice finer again; the start point and the far radius are moved on that
+            # same resolution, so their changes measure series truncation and the tail rather than the grid
+            w = omegas[index]
+            best = _run(problem, l, w, 4 * count, START)
+            moved = _run(problem, l, w, 4 * count, START / 2)
+            farther = _run(problem, l, w, 4 * count, START, far_factor=4.0)
+            T[index], R[index] = best
+            error[index] = (np.abs(best[0] - fine[0][done]) + np.abs(best[0] - moved[0])
+                            + np.abs(best[0] - farther[0]) + rounding_floor(4 * count) * best[0])
+            if 2 * count < max_steps:   # not there yet with every source of error counted: refine further
+                done[np.nonzero(done)[0][error[index] > tolerance * best[0]]] = False
+        active = active[~done]
+        coarse = tuple(part[~done] for part in fine)
         count *= 2
-        coarse = fine
-    # the value from a grid twice finer again; the start point and the far radius are moved on that same
-    # resolution, so their changes measure series truncation and the tail rather than the grid
-    best = _run(problem, l, omegas, 4 * count, START)
-    moved = _run(problem, l, omegas, 4 * count, START / 2)
-    farther = _run(problem, l, omegas, 4 * count, START, far_factor=4.0)
-    T, R = best
-    error = (np.abs(T - fine[0]) + np.abs(T - moved[0]) + np.abs(T - farther[0])
-             + rounding_floor(4 * count) * T)
     return Scattering(omegas, l, T, R, error, T + R - 1.0, tolerance)

@@ -245,3 +245,14 @@ def region_propagator(region, l: int, omegas: np.ndarray, lower: float, upper: f
         results.append(product)
         scales.append(log_scale)
     return np.concatenate(results, axis=0), np.concatenate(scales, axis=0)
+
+
+def outer_pieces(lower: float, far: float, steps: int, scale: float) -> list[tuple[float, float, int]]:
+    """Split [lower, far] of an outermost region into a near piece (up to 10^3 length scales, ``steps`` steps)
+    and a far piece (a quarter as many steps: the potential there is small and smooth), both geometric, so that
+    moving the far radius leaves the near grid unchanged."""
+    middle = min(far, max(lower * 10.0, 1e3 * scale))
+    pieces = [(lower, middle, steps)]
+    if far > middle:
+        pieces.append((middle, far, max(steps // 4, 16)))
+    return pieces
