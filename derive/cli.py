@@ -348,6 +348,20 @@ def cmd_run(args) -> int:
     return 0
 
 
+def cmd_scan(args) -> int:
+    from derive.scan import parse_vary, run_scan
+
+    spacetime = _load(args)
+    vary = parse_vary(args.vary, list(spacetime.parameters))
+    tolerance = _tolerance(args, spacetime, 1e-10)
+    if args.workers is not None and args.workers < 1:
+        raise InputError("--workers must be at least 1", key="--workers")
+    result = run_scan(spacetime, vary, args.out, tolerance, args.executor, args.workers or 0, args.scheduler)
+    print(f"scan of {result['points']} points: {result['computed']} computed now, {result['reused']} already "
+          f"done; wrote {result['csv']}")
+    return 0
+
+
 def cmd_demo(args) -> int:
     from derive.demo import run_demo
 
@@ -408,6 +422,15 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--out", required=True, metavar="DIR", help="folder to write (replaced atomically)")
     p.add_argument("--tolerance", type=float, help="relative tolerance of the numerics (default 1e-10)")
     p.add_argument("--quiet", action="store_true", help="no progress messages")
+
+    p = spec_command("scan", "sweep parameters (resumable; local cores or a dask cluster)", cmd_scan)
+    p.add_argument("--vary", action="append", required=True, metavar="NAME=FROM:TO:COUNT",
+                   help="a parameter and its values (repeat for a grid)")
+    p.add_argument("--out", required=True, metavar="DIR", help="folder of the scan (reused to resume)")
+    p.add_argument("--executor", choices=["local", "dask"], default="local", help="where points run")
+    p.add_argument("--workers", type=int, help="local processes (default: one per core)")
+    p.add_argument("--scheduler", metavar="ADDRESS", help="dask scheduler address, with --executor dask")
+    p.add_argument("--tolerance", type=float, help="relative tolerance of the numerics (default 1e-10)")
 
     p = sub.add_parser("demo", help="run the bundled scenario end to end and explain what it shows")
     p.add_argument("--out", metavar="DIR", help="also write the files of the run here")

@@ -1,0 +1,256 @@
+"""`derive scan`: sweep parameters, resumably, on local cores or a dask cluster.
+
+Each parameter point is computed by :func:`scan_point` (a top-level function, so it pickles to worker
+processes and dask workers) and written atomically to DIR/points/NNNNNN.json as soon as it finishes.  A scan
+that is interrupted (even by kill -9) and started again with the same command skips the points already on
+disk, computes only the rest, and then writes DIR/scan.csv with exactly one row per point (and scan.png).
+DIR/manifest.json records the spec's hash and the sweep; a different spec or sweep in the same DIR is refused
+rather than mixed in.
+"""
+
+from __future__ import annotations
+
+import itertools
+import json
+import os
+import sys
+import uuid
+
+import numpy as np
+
+from derive.errors import InputError
+from derive.report.json_output import write_atomic
+
+
+def parse_vary(items, parameters) -> list[tuple[str, np.ndarray]]:
+    """--vary NAME=FROM:TO:COUNT (or NAME=a,b,c) into [(name, values)]."""
+    out = []
+    for item in items or []:
+        name, sep, rest = item.partition("=")
+        name = name.strip()
+        if not sep or name not in parameters:
+            known = ", ".join(parameters)
+            raise InputError(f"--vary {item!r}: expected NAME=FROM:TO:COUNT with NAME one of {known}", key="--vary")
+        try:
+            if ":" in rest:
+                start, stop, count = rest.split(":")
+                values = np.linspace(float(start), float(stop), int(count))
+            else:
+                values = np.array([float(v) for v in rest.split(",") if v.strip()])
+        except ValueError:
+            raise InputError(f"--vary {item!r}: FROM:TO:COUNT or a comma-separated list of numbers",
+                             key="--vary") from None
+        if len(values) == 0 or not np.all(np.isfinite(values)):
+            raise InputError(f"--vary {item!r}: no finite values", key="--vary")
+        out.append((name, values))
+    if not out:
+        raise InputError("give at least one --vary NAME=FROM:TO:COUNT", key="--vary")
+    if len({n for n, _ in out}) != len(out):
+        raise InputError("each parameter may be varied once", key="--vary")
+    return out
+
+
+def grid_points(vary) -> list[dict]:
+    names = [n for n, _ in vary]
+    return [dict(zip(names, map(float, combo))) for combo in itertools.product(*(v for _, v in vary))]
+
+
+def scan_point(spec_path: str, overrides: dict, tolerance: float) -> dict:
+    """Everything numeric derive can say at one parameter point (each value with its error)."""
+    from derive import load
+    from derive.errors import AccuracyError, DeriveError
+
+    row: dict = {}
+    try:
+        st = load(spec_path, overrides)
+        values = st.parameter_values
+        for index, shell in enumerate(st.shells):
+            for key, expr in (("sigma", shell.surface_energy_density), ("pressure", shell.surface_pressure)):
+                if expr is not None:
+                    number = expr.subs(values)
+                    row[f"shell{index}_{key}"] = float(number) if number.is_number else None
+                    row[f"shell{index}_{key}_error"] = 0.0
+        if st.field is not None and st.detector is not None and st.detector.gaps:
+            from derive.codegen.catalog import KernelSet
+            from derive.codegen.problem import numeric_detector, numeric_problem
+            from derive.detector.study import study
+            from derive.detector.switching import UnsupportedSwitching
+            from derive.solve.centre import Unsupported
+
+            try:
+                detector = numeric_detector(st)
+                reference = None
+                if detector.compare_with not in (None, "minkowski"):
+                    reference = numeric_problem(KernelSet(load(detector.compare_with)))
+                result = study(numeric_problem(KernelSet(st)), detector, reference, tolerance)
+                for i, gap in enumerate(result["gaps"]):
+                    row[f"F[{gap:g}]"] = float(result["response"][i])
+                    row[f"F[{gap:g}]_error"] = float(result["error"][i])
+                    if "relative_difference" in result:
+                        row[f"reldiff[{gap:g}]"] = float(result["relative_difference"][i])
+                        row[f"reldiff[{gap:g}]_error"] = float(result["relative_difference_error"][i])
+                row["local"] = bool(result["locality"]["local"])
+            except (Unsupported, UnsupportedSwitching) as exc:
+                row["response_skipped"] = str(exc)
+        row["status"] = "ok"
+    except AccuracyError as exc:
+        row["status"] = f"accuracy not reached: {exc}"
+    except DeriveError as exc:
+        row["status"] = f"error: {exc}"
+    return row
+
+
+class _Progress:
+    def __init__(self, total: int, done: int, enabled: bool):
+        self.total, self.done, self.enabled = total, done, enabled
+
+    def step(self):
+        self.done += 1
+        if self.enabled:
+            width = 30
+            filled = int(width * self.done / max(self.total, 1))
+            sys.stderr.write(f"\rscan [{'#' * filled}{'.' * (width - filled)}] {self.done}/{self.total}")
+            sys.stderr.flush()
+            if self.done == self.total:
+                sys.stderr.write("\n")
+
+
+def run_scan(spacetime, vary, out: str, tolerance: float = 1e-10, executor: str = "local", workers: int = 0,
+             scheduler: str | None = None, progress: bool | None = None) -> dict:
+    """Compute every missing point and write scan.csv; returns {"points", "computed", "reused", "csv"}."""
+    points = grid_points(vary)
+    points_dir = os.path.join(out, "points")
+    os.makedirs(points_dir, exist_ok=True)
+    manifest = {"spec": os.path.abspath(spacetime.path), "spec_hash": spacetime.source_hash,
+                "vary": {n: list(map(float, v)) for n, v in vary}, "tolerance": tolerance}
+    manifest_path = os.path.join(out, "manifest.json")
+    if os.path.exists(manifest_path):
+        with open(manifest_path) as handle:
+            earlier = json.load(handle)
+        if {k: earlier.get(k) for k in manifest} != manifest:
+            raise InputError(f"{out} holds a different scan (spec or --vary differ); use another --out",
+                             key="--out")
+    else:
+        write_atomic(manifest_path, json.dumps(manifest, indent=2))
+    run_id = uuid.uuid4().hex[:12]
+    missing = [i for i in range(len(points)) if not os.path.exists(_point_file(points_dir, i))]
+    bar = _Progress(len(points), len(points) - len(missing), sys.stderr.isatty() if progress is None else progress)
+
+    def record(index, row):
+        write_atomic(_point_file(points_dir, index),
+                     json.dumps({"index": index, "parameters": points[index], "result": row, "run": run_id}))
+        bar.step()
+
+    base = {n: p.value for n, p in spacetime.parameters.items()}
+    jobs = [(i, {**base, **points[i]}) for i in missing]
+    if executor == "dask":
+        _run_dask(jobs, spacetime.path, tolerance, scheduler, record)
+    else:
+        _run_local(jobs, spacetime.path, tolerance, workers, record)
+    csv_path = _write_csv(out, points, points_dir)
+    _write_plot(out, vary, points, points_dir)
+    return {"points": len(points), "computed": len(missing), "reused": len(points) - len(missing),
+            "csv": csv_path, "run": run_id}
+
+
+def _point_file(points_dir, index) -> str:
+    return os.path.join(points_dir, f"{index:06d}.json")
+
+
+def _run_local(jobs, spec_path, tolerance, workers, record):
+    if workers == 1 or len(jobs) <= 1:
+        for index, overrides in jobs:
+            record(index, scan_point(spec_path, overrides, tolerance))
+        return
+    from concurrent.futures import ProcessPoolExecutor, as_completed
+
+    count = workers or min(len(jobs), os.cpu_count() or 1)
+    with ProcessPoolExecutor(max_workers=count) as pool:
+        futures = {pool.submit(scan_point, spec_path, overrides, tolerance): index for index, overrides in jobs}
+        for future in as_completed(futures):
+            record(futures[future], future.result())
+
+
+def _run_dask(jobs, spec_path, tolerance, scheduler, record):
+    try:
+        from dask.distributed import Client, as_completed
+    except ImportError:
+        raise InputError("--executor dask needs the cluster extra: pip install 'derive[cluster]'",
+                         key="--executor") from None
+    if not scheduler:
+        raise InputError("--executor dask needs --scheduler ADDRESS (host:port of a dask scheduler)",
+                         key="--scheduler")
+    client = Client(scheduler) if isinstance(scheduler, str) else Client(scheduler)
+    try:
+        futures = {client.submit(scan_point, spec_path, overrides, tolerance, pure=False): index
+                   for index, overrides in jobs}
+        for future in as_completed(futures):
+            record(futures[future], future.result())
+    finally:
+        client.close()
+
+
+def _rows(points, points_dir):
+    rows = []
+    for index in range(len(points)):
+        with open(_point_file(points_dir, index)) as handle:
+            rows.append(json.load(handle))
+    return rows
+
+
+def _write_csv(out, points, points_dir) -> str:
+    import csv
+    import io
+
+    rows = _rows(points, points_dir)
+    names = list(points[0])
+    keys = []
+    for row in rows:
+        for key in row["result"]:
+            if key not in keys:
+                keys.append(key)
+    buffer = io.StringIO()
+    writer = csv.writer(buffer)
+    writer.writerow(["index"] + names + keys)
+    for row in rows:
+        writer.writerow([row["index"]] + [repr(row["parameters"][n]) for n in names]
+                        + [_cell(row["result"].get(k)) for k in keys])
+    path = os.path.join(out, "scan.csv")
+    write_atomic(path, buffer.getvalue())
+    return path
+
+
+def _cell(value):
+    if value is None:
+        return ""
+    if isinstance(value, float):
+        return f"{value:.17g}"
+    return value
+
+
+def _write_plot(out, vary, points, points_dir):
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    from derive.report.tables import _png
+
+    rows = _rows(points, points_dir)
+    name = vary[0][0]
+    keys = [k for k in rows[0]["result"] if k.startswith(("reldiff[", "F[")) and not k.endswith("_error")]
+    keys = [k for k in keys if k.startswith("reldiff[")] or keys
+    if not keys:
+        keys = [k for k in rows[0]["result"] if k.endswith(("_sigma", "_pressure"))]
+    figure, axis = plt.subplots(figsize=(6.4, 4.0))
+    x = [row["parameters"][name] for row in rows]
+    for key in keys[:6]:
+        y = [row["result"].get(key) for row in rows]
+        e = [row["result"].get(key + "_error") or 0.0 for row in rows]
+        if all(v is not None for v in y):
+            axis.errorbar(x, y, yerr=e, fmt="o-", ms=3, label=key)
+    axis.set_xlabel(name)
+    axis.legend(fontsize=7)
+    axis.set_title("derive scan", fontsize=10)
+    write_atomic(os.path.join(out, "scan.png"), _png(figure))
+    plt.close(figure)
