@@ -162,22 +162,25 @@ def cmd_kernels(args) -> int:
 
 
 def _omega_grid(text: str):
-    import numpy as np
+    from derive.values import parse_values
 
-    try:
-        if ":" in text:
-            start, stop, count = text.split(":")
-            values = np.linspace(float(start), float(stop), int(count))
-        else:
-            values = np.array([float(x) for x in text.split(",") if x.strip()])
-    except ValueError:
-        raise InputError(f"--omega expects a list '0.1,0.5,1' or FROM:TO:COUNT, got {text!r}",
-                         key="--omega") from None
-    if len(values) == 0 or not np.all(np.isfinite(values)) or np.any(values <= 0):
-        raise InputError(f"--omega needs positive, finite frequencies, got {text!r}", key="--omega")
-    if len(values) > 200_000:
-        raise InputError("--omega: more than 200000 frequencies", key="--omega")
+    values = parse_values(text, "--omega")
+    if (values <= 0).any():
+        raise InputError(f"--omega needs positive frequencies, got {text!r}", key="--omega")
     return values
+
+
+def _deliver(args, data, write_files, title, header, rows):
+    """The common ending of the numeric commands: files with --out, JSON with --json, else a table."""
+    if args.out:
+        for path in write_files(args.out, data, title):
+            print(f"wrote {path}", file=sys.stderr)
+    if args.json:
+        _emit_json(data)
+    else:
+        print(header)
+        for row in rows:
+            print(row)
 
 
 def _numeric_problem(spacetime):
@@ -217,17 +220,11 @@ def cmd_spectrum(args) -> int:
             "error": {"density": list(map(float, result["error"]))},
             "tolerance": tolerance, "method": METHOD, "units": "per unit omega of the spec's time coordinate",
             "minkowski_density": list(map(float, result["minkowski"]))}
-    if args.out:
-        for path in write_spectrum_files(args.out, data, spacetime.title):
-            print(f"wrote {path}", file=sys.stderr)
-    if args.json:
-        _emit_json(data)
-    else:
-        print(f"{spacetime.title}: spectral density at r = 0, l = {result['l']}")
-        print(f"{'omega':>12} {'density':>22} {'error':>10} {'/ Minkowski':>14}")
-        for w, d, e, m in zip(omegas, result["density"], result["error"], result["minkowski"]):
-            ratio = f"{d / m:14.10f}" if m else f"{'':>14}"
-            print(f"{w:12.6g} {d:22.15e} {e:10.1e} {ratio}")
+    rows = (f"{w:12.6g} {d:22.15e} {e:10.1e} " + (f"{d / m:14.10f}" if m else "")
+            for w, d, e, m in zip(omegas, result["density"], result["error"], result["minkowski"]))
+    _deliver(args, data, write_spectrum_files, spacetime.title,
+             f"{spacetime.title}: spectral density at r = 0, l = {result['l']}\n"
+             f"{'omega':>12} {'density':>22} {'error':>10} {'/ Minkowski':>14}", rows)
     if not result["ok"]:
         from derive.errors import AccuracyError
 
@@ -252,17 +249,11 @@ def _scattering_output(args, spacetime, problem, omegas, tolerance) -> int:
                       "reflection": list(map(float, result["error"]))},
             "flux_defect": list(map(float, result["flux_defect"])), "tolerance": tolerance, "method": METHOD,
             "note": "the spectral density at a point outside a horizon is not computed by this version"}
-    if args.out:
-        for path in write_scattering_files(args.out, data, spacetime.title):
-            print(f"wrote {path}", file=sys.stderr)
-    if args.json:
-        _emit_json(data)
-    else:
-        print(f"{spacetime.title}: scattering of the l = {args.l} field off the horizon")
-        print(f"{'omega':>12} {'|T|^2':>22} {'error':>10} {'|R|^2':>22} {'|R|^2+|T|^2-1':>15}")
-        for w, t, e, r, d in zip(omegas, result["transmission"], result["error"], result["reflection"],
-                                 result["flux_defect"]):
-            print(f"{w:12.6g} {t:22.15e} {e:10.1e} {r:22.15e} {d:15.1e}")
+    rows = (f"{w:12.6g} {t:22.15e} {e:10.1e} {r:22.15e} {d:15.1e}" for w, t, e, r, d in
+            zip(omegas, result["transmission"], result["error"], result["reflection"], result["flux_defect"]))
+    _deliver(args, data, write_scattering_files, spacetime.title,
+             f"{spacetime.title}: scattering of the l = {args.l} field off the horizon\n"
+             f"{'omega':>12} {'|T|^2':>22} {'error':>10} {'|R|^2':>22} {'|R|^2+|T|^2-1':>15}", rows)
     if not result["ok"]:
         raise AccuracyError(result["message"], {"tolerance": tolerance})
     return 0

@@ -31,17 +31,9 @@ def parse_vary(items, parameters) -> list[tuple[str, np.ndarray]]:
         if not sep or name not in parameters:
             known = ", ".join(parameters)
             raise InputError(f"--vary {item!r}: expected NAME=FROM:TO:COUNT with NAME one of {known}", key="--vary")
-        try:
-            if ":" in rest:
-                start, stop, count = rest.split(":")
-                values = np.linspace(float(start), float(stop), int(count))
-            else:
-                values = np.array([float(v) for v in rest.split(",") if v.strip()])
-        except ValueError:
-            raise InputError(f"--vary {item!r}: FROM:TO:COUNT or a comma-separated list of numbers",
-                             key="--vary") from None
-        if len(values) == 0 or not np.all(np.isfinite(values)):
-            raise InputError(f"--vary {item!r}: no finite values", key="--vary")
+        from derive.values import parse_values
+
+        values = parse_values(rest, f"--vary {name}")
         out.append((name, values))
     if not out:
         raise InputError("give at least one --vary NAME=FROM:TO:COUNT", key="--vary")
