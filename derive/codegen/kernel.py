@@ -75,7 +75,11 @@ def kernel_directory() -> str:
     if root is None:
         global _TEMPORARY
         if _TEMPORARY is None:
+            import atexit
+            import shutil
+
             _TEMPORARY = tempfile.mkdtemp(prefix="derive-kernels-")
+            atexit.register(shutil.rmtree, _TEMPORARY, True)
         return _TEMPORARY
     path = os.path.join(str(root), "kernels")
     os.makedirs(path, exist_ok=True)

@@ -69,12 +69,8 @@ class Curvature:
             self.backend = "expression"
         self.pairs = pair_index(self.dimension)
 
-    # -- run with a fallback ------------------------------------------------------------------------
     def _d(self, element, k: int):
-        try:
-            return self.engine.diff(element, self.coordinates[k])
-        except Unrepresentable:
-            raise
+        return self.engine.diff(element, self.coordinates[k])
 
     def _nonzero(self, x) -> bool:
         return not (x == 0)
