@@ -151,6 +151,8 @@ def cmd_kernels(args) -> int:
         document = {"kernels": kernel_records(kernels)}
     if args.json:
         _emit_json({"kernels": document["kernels"]})
+    elif not document["kernels"]:
+        print("no kernels: the spec has no [field] and its curvature invariants hold free functions")
     else:
         for k in document["kernels"]:
             owner = k.get("region") or k.get("interface")

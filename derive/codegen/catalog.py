@@ -159,8 +159,8 @@ class KernelSet:
                                        f"transfer_matrix_{_identifier(first)}_{_identifier(second)}",
                                        "transfer_matrix", label, "interface", domain))
         for name, geo in st.geometry.items():
-            if st.field is None and any(a.has(sp.Function) for a in geo.metric):
-                continue
+            if any(a.atoms(sp.core.function.AppliedUndef) for a in geo.metric):
+                continue   # free functions have no numeric value
             k = geo.kretschmann
             if k.atoms(sp.core.function.AppliedUndef) or k.has(sp.Derivative):
                 continue

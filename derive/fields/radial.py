@@ -117,7 +117,8 @@ class RegionField:
         try:
             self.form = static_form(metric, spacetime.coordinates, region_name)
         except GeometryError as exc:
-            raise exc.located(spacetime.path, f"region '{region_name}'") from None
+            index = list(spacetime.regions).index(region_name)
+            raise exc.located(spacetime.path, f"region[{index}]") from None
         if spacetime.field is None:
             from derive.errors import SpecError
 
@@ -133,7 +134,7 @@ class RegionField:
             if number.is_number and number.is_real and number <= 0:
                 raise GeometryError(f"region '{region_name}': {name} is not positive at {self.r} = {at:g}, so "
                                     "the region is not static there", file=spacetime.path,
-                                    key=f"region '{region_name}'")
+                                    key=f"region[{list(spacetime.regions).index(region_name)}]")
 
     # -- pieces --------------------------------------------------------------------------------------
     @property
