@@ -63,7 +63,7 @@ def main():
     t_theirs = (time.perf_counter() - start) / len(sample) * len(omegas)
     their_error = np.max(np.abs(theirs - ours.transmission[::20]) / ours.transmission[::20])
     our_error = np.max(ours.error / ours.transmission)
-    print(f"2000 frequencies, l = 0, 0.01 <= M omega <= 2")
+    print("2000 frequencies, l = 0, 0.01 <= M omega <= 2")
     print(f"  derive:     {t_ours:8.2f} s   (largest estimated relative error {our_error:.1e}; flux defect "
           f"{np.max(np.abs(ours.flux_defect)):.1e})")
     print(f"  solve_ivp:  {t_theirs:8.2f} s   (scaled from {len(sample)} frequencies; largest relative deviation "

@@ -5,7 +5,7 @@ import pytest
 import sympy as sp
 
 import derive
-from conftest import SPHERE, static_spec
+from conftest import static_spec
 
 
 def geometry(write_spec, text, region="region"):

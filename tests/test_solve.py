@@ -11,7 +11,7 @@ from derive.codegen.catalog import KernelSet
 from derive.codegen.problem import numeric_problem
 from derive.solve.centre import Unsupported, _run, centre_density, minkowski_density
 from derive.solve.propagation import region_propagator
-from test_shells import DUST, two_region_spec
+from test_shells import two_region_spec
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 OMEGAS = np.array([0.01, 0.1, 0.5, 1.0, 3.0, 10.0, 30.0, 100.0])
