@@ -206,18 +206,22 @@ def cmd_spectrum(args) -> int:
 
     spacetime = _load(args)
     omegas = _omega_grid(args.omega)
-    if args.at is not None and args.at != 0.0:
-        raise InputError(f"--at {args.at}: the solver computes densities at a regular centre (r = 0) only, so far",
-                         key="--at")
+    if args.at is not None and not args.at >= 0.0:
+        raise InputError(f"--at {args.at}: expected a radius >= 0", key="--at")
     tolerance = _tolerance(args, spacetime, 1e-10)
     problem = _numeric_problem(spacetime)
     if problem.regions[0].lower_kind == "horizon":
         return _scattering_output(args, spacetime, problem, omegas, tolerance)
     try:
-        result = spectrum_at_centre(problem, omegas, args.l, tolerance)
+        if args.at:
+            from derive.solve.api import spectrum_off_centre
+
+            result = spectrum_off_centre(problem, omegas, args.at, tolerance)
+        else:
+            result = spectrum_at_centre(problem, omegas, args.l, tolerance)
     except Unsupported as exc:
         raise InputError(f"derive spectrum cannot solve this spacetime yet: {exc}", file=spacetime.path) from None
-    data = {"l": result["l"], "at": 0.0, "omega": list(map(float, omegas)),
+    data = {"l": result["l"], "at": float(args.at or 0.0), "omega": list(map(float, omegas)),
             "density": list(map(float, result["density"])),
             "error": {"density": list(map(float, result["error"]))},
             "tolerance": tolerance, "method": METHOD, "units": "per unit omega of the spec's time coordinate",
@@ -225,7 +229,8 @@ def cmd_spectrum(args) -> int:
     rows = (f"{w:12.6g} {d:22.15e} {e:10.1e} " + (f"{d / m:14.10f}" if m else "")
             for w, d, e, m in zip(omegas, result["density"], result["error"], result["minkowski"]))
     _deliver(args, data, write_spectrum_files, spacetime.title,
-             f"{spacetime.title}: spectral density at r = 0, l = {result['l']}\n"
+             f"{spacetime.title}: spectral density at r = {args.at or 0:g}, "
+             f"{'l = %d' % result['l'] if result['l'] is not None else 'summed over l'}\n"
              f"{'omega':>12} {'density':>22} {'error':>10} {'/ Minkowski':>14}", rows)
     if not result["ok"]:
         from derive.errors import AccuracyError
@@ -399,7 +404,7 @@ def build_parser() -> argparse.ArgumentParser:
                      cmd_spectrum)
     p.add_argument("--l", type=int, default=0, help="angular label (at the centre only l = 0 contributes)")
     p.add_argument("--omega", required=True, metavar="LIST|FROM:TO:COUNT", help="frequencies (spec time)")
-    p.add_argument("--at", type=float, help="radius of the static point (0: the centre)")
+    p.add_argument("--at", type=float, help="radius of the static point (0: the centre; else summed over l)")
     p.add_argument("--tolerance", type=float, help="relative tolerance (default: [numerics] or 1e-10)")
     p.add_argument("--json", action="store_true", help="print JSON")
     p.add_argument("--out", metavar="DIR", help="write spectrum.csv and spectrum.png here")

@@ -113,3 +113,4 @@ def test_unsupported_states_are_refused_with_a_reason(capsys):
     spec = os.path.join(ROOT, "worked", "schwarzschild", "spec.toml")
     assert main(["response", spec]) == 2
     assert "cannot handle this yet" in capsys.readouterr().err
+

@@ -124,3 +124,28 @@ def test_unsupported_problems_say_what_is_missing():
     schwarzschild = problem_of(os.path.join(ROOT, "worked", "schwarzschild", "spec.toml"))
     with pytest.raises(Unsupported, match="regular centre"):
         centre_density(schwarzschild, OMEGAS)
+
+
+def test_off_centre_flat_density_is_the_centre_density(write_spec):
+    # Source: the addition theorem sum_l (2l+1) j_l(x)^2 = 1 (DLMF 10.60.12; PHYSICS.md section 7): off the
+    # centre of flat space the l-sum must reproduce omega/(4 pi^2).
+    from derive.solve.offcentre import density_off_centre
+
+    problem = problem_of(write_spec(FLAT))
+    omegas = np.array([0.1, 1.0, 5.0, 20.0])
+    for r0 in (0.3, 1.0):
+        result = density_off_centre(problem, omegas, r0)
+        np.testing.assert_allclose(result.density, minkowski_density(omegas), rtol=1e-10)
+        assert np.all(np.abs(result.density - minkowski_density(omegas)) <= result.error)
+
+
+def test_off_centre_density_tends_to_the_centre():
+    # Continuity (common practice): inside the shell the l-summed density at r0 -> 0 tends to the centre value,
+    # the difference falling like (omega r0)^2.
+    from derive.solve.offcentre import density_off_centre
+
+    problem = problem_of(os.path.join(ROOT, "worked", "dust_shell", "spec.toml"))
+    omegas = np.array([0.5, 3.0])
+    centre = centre_density(problem, omegas).density
+    gaps = [np.abs(density_off_centre(problem, omegas, r0).density / centre - 1) for r0 in (0.02, 0.01)]
+    assert np.all(gaps[1] < gaps[0] / 3) and np.all(gaps[1] < 1e-3)

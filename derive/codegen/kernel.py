@@ -155,7 +155,7 @@ def lower(expression, arguments, name: str, quantity: str = "expression", backen
     source = _source(name, quantity, owner, owner_kind, names, backend, expression_text, digest, body)
     directory = directory or kernel_directory()
     path = os.path.join(directory, f"kernel_{name}_{digest}.py")
-    if not (os.path.isfile(path) and open(path, encoding="utf-8").read() == source):
+    if not (os.path.isfile(path) and _read(path) == source):
         fd, tmp = tempfile.mkstemp(dir=directory, prefix=".tmp-", suffix=".py")
         with os.fdopen(fd, "w", encoding="utf-8") as handle:
             handle.write(source)
@@ -206,6 +206,11 @@ def _source(name, quantity, owner, owner_kind, names, backend, expression_text, 
         convert = []
     doc = f'    """{quantity}{where}. Arguments: {arguments or "none"}."""'
     return "\n".join(header + ["", module, "", "", f"def {name}({arguments}):", doc] + convert + body) + "\n"
+
+
+def _read(path: str) -> str:
+    with open(path, encoding="utf-8") as handle:
+        return handle.read()
 
 
 def load_function(path: str, name: str, source: str):

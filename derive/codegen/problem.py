@@ -54,6 +54,17 @@ def numeric_problem(kernel_set) -> NumericProblem:
                     kernel_set.verify(e)
             if entry.verification.status == "verified":
                 series[name] = (_bind(entry.kernel, values), float(np.asarray(gravity.kernel.function(*values))))
+    centre = {}
+    for name, region in field.regions.items():
+        if region.ends["lower"]["kind"] == "regular centre":
+            try:
+                entry = kernel_set.get("centre_series", name)
+            except KeyError:
+                continue
+            if entry.verification is None:
+                kernel_set.verify(entry)
+            if entry.verification.status == "verified":
+                centre[name] = _bind(entry.kernel, values)
     for name, region in field.regions.items():
         d = region.region.domain_of(region.r)
         lower = float(d.lower.subs(st.parameter_values)) if d is not None and d.lower is not None else 0.0
@@ -64,7 +75,7 @@ def numeric_problem(kernel_set) -> NumericProblem:
             _bind(kernel_set.get("potential", name).kernel, values),
             _bind(kernel_set.get("dtortoise_dr", name).kernel, values),
             _bind(kernel_set.get("metric_f", name).kernel, values),
-            *(series.get(name, (None, None))))
+            *(series.get(name, (None, None))), centre.get(name))
     order = sorted(regions.values(), key=lambda reg: reg.lower)
     interfaces = []
     for matching in field.interfaces:

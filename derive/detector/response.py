@@ -88,13 +88,15 @@ def trials_to_distinguish(p_a, p_b, sigmas: float):
         return sigmas ** 2 * spread ** 2 / (p_a - p_b) ** 2
 
 
-def round_trip(problem, sqrt_f0: float) -> float:
-    """Radial light round trip from r = 0 to the first structure (interface or horizon), in the detector's
-    proper time: 2 sqrt(f(0)) int_0^R dr*/dr dr.  Infinite when nothing is there."""
+def round_trip(problem, sqrt_f0: float, r0: float = 0.0) -> float:
+    """Radial light round trip from the detector at r0 out to the first structure (interface or horizon) and
+    back, in the detector's proper time: 2 sqrt(f(r0)) int_{r0}^R dr*/dr dr (the way in, through the centre,
+    is longer).  Infinite when nothing is there."""
     first = problem.regions[0]
     if first.upper is None:
         return float("inf")
     nodes, weights = np.polynomial.legendre.leggauss(60)
-    r = (nodes + 1) * first.upper / 2
-    travel = np.sum(weights * first.dtortoise_dr(r)) * first.upper / 2
+    half = (first.upper - r0) / 2
+    r = r0 + (nodes + 1) * half
+    travel = np.sum(weights * first.dtortoise_dr(r)) * half
     return float(2 * sqrt_f0 * travel)

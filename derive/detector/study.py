@@ -1,7 +1,8 @@
 """A detector's whole answer: its response, the comparison, locality and the runs needed (numeric only).
 
-Supported so far: a static detector at a regular centre (r = 0), Gaussian switching, the vacuum state, a
-massless field in an asymptotically flat spacetime (what derive.solve.centre handles).
+Supported so far: a static detector at the regular centre (r = 0), Gaussian switching, the vacuum state, a
+massless field in an asymptotically flat spacetime.  (Off the centre the density is an l-sum; it is available
+through derive spectrum --at, but a response needs it at about a thousand frequencies, which is too slow yet.)
 """
 
 from __future__ import annotations
@@ -12,7 +13,7 @@ import numpy as np
 from derive.detector.response import response, round_trip, trials_to_distinguish
 from derive.detector.switching import switching_from_spec
 from derive.errors import AccuracyError
-from derive.solve.centre import Unsupported, centre_density
+from derive.solve.centre import Unsupported
 
 PERTURBATIVE_LIMIT = 0.1
 
@@ -29,12 +30,15 @@ def minkowski_gaussian_response(gaps, sigma: float) -> np.ndarray:
     return np.array(out)
 
 
-def proper_density(problem, tolerance):
-    """S(nu) per unit proper frequency at the centre and its error: sqrt(f0) density(sqrt(f0) nu)."""
-    sqrt_f0 = float(np.sqrt(problem.regions[0].metric_f(np.array([0.0]))[0]))
+def proper_density(problem, tolerance, r0: float = 0.0):
+    """S(nu) per unit proper frequency at r0 and its error: sqrt(f(r0)) density(sqrt(f(r0)) nu)."""
+    from derive.solve.api import density_function
+
+    sqrt_f0 = float(np.sqrt(problem.regions[0].metric_f(np.array([r0]))[0]))
+    solve = density_function(problem, r0, tolerance)
 
     def density_at(nu):
-        result = centre_density(problem, sqrt_f0 * np.asarray(nu), tolerance)
+        result = solve(sqrt_f0 * np.asarray(nu))
         if not result.ok:
             raise AccuracyError("the spectral density did not reach its tolerance: " + result.message(),
                                 {"tolerance": tolerance})
@@ -45,12 +49,13 @@ def proper_density(problem, tolerance):
 def detector_response(problem, detector, tolerance: float = 1e-10, gaps=None):
     """F(Omega) with errors for a detector at the centre of ``problem`` (see module docstring)."""
     if detector.radius != 0.0:
-        raise Unsupported("the detector must sit at the regular centre r = 0, so far")
+        raise Unsupported("the detector must sit at the regular centre r = 0, so far (the l-summed spectral "
+                          "density off the centre is available through derive spectrum --at)")
     if detector.state != "vacuum":
         raise Unsupported(f"state {detector.state!r}: only the static vacuum of a regular spacetime, so far")
     switching = switching_from_spec({"shape": detector.shape}, detector.switching)
     gaps = np.asarray(detector.gaps if gaps is None else gaps, dtype=float)
-    density_at, sqrt_f0 = proper_density(problem, tolerance)
+    density_at, sqrt_f0 = proper_density(problem, tolerance, detector.radius)
     return response(gaps, switching, density_at), switching, sqrt_f0
 
 
@@ -74,7 +79,7 @@ def study(problem, detector, reference_problem=None, tolerance: float = 1e-10, g
         out["relative_difference"] = difference
         out["relative_difference_error"] = difference_error
         out.update(_trials(ours.response, ref, ours.error + ref_err, detector))
-    trip = round_trip(problem, sqrt_f0)
+    trip = round_trip(problem, sqrt_f0, detector.radius)
     duration = switching.duration
     out["locality"] = {"duration": duration, "round_trip": trip, "local": bool(duration < trip),
                        "tail": switching.tail}

@@ -53,7 +53,8 @@ def write_spectrum_files(out: str, data: dict, title: str, pdf: bool = False) ->
     axes[1].plot(data["omega"], ratio)
     axes[1].set_ylabel("ratio to Minkowski")
     axes[1].set_xlabel(r"$\omega$ (spec's time coordinate; $G=c=\hbar=1$)")
-    axes[0].set_title(f"{title}: l = {data['l']} at r = {data['at']:g}", fontsize=10)
+    label = f"l = {data['l']}" if data["l"] is not None else "summed over l"
+    axes[0].set_title(f"{title}: {label} at r = {data['at']:g}", fontsize=10)
     paths = _save(figure, out, "spectrum", pdf)
     plt.close(figure)
     return [csv_path] + paths

@@ -30,6 +30,7 @@ class NumericRegion:
     metric_f: Callable
     horizon_series: Callable | None = None    # (l, omega) -> [exponent, a_0, a_1, a_2] at a lower horizon
     surface_gravity: float | None = None
+    centre_series: Callable | None = None     # (l, omega) -> [exponent, a_0, a_1, a_2] at a regular centre
 
 
 @dataclass(frozen=True)
