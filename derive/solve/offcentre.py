@@ -81,7 +81,8 @@ def _term(problem, l, omegas, r0, steps, series, tolerance, max_steps=4096):
     while True:
         fine = _log_u_at(problem, l, omegas, r0, 2 * count, series)
         term = (2 * l + 1) / (4 * np.pi) * np.exp(2 * fine) / (r0 * r0 * np.pi * omegas)
-        relative = np.abs(np.expm1(2 * (fine - coarse)))
+        with np.errstate(over="ignore"):   # a very coarse first grid can be off by orders of magnitude
+            relative = np.abs(np.expm1(2 * (fine - coarse)))
         if np.all(relative <= 0.5 * tolerance) or 2 * count >= max_steps:
             return term, term * (relative + rounding_floor(2 * count))
         count *= 2
