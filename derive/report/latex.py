@@ -218,8 +218,6 @@ def junction_sections(derivation: Derivation, spacetime) -> None:
 
 def field_sections(derivation: Derivation, spacetime) -> None:
     """The field: separation, radial equation, potential, tortoise coordinate, ends, matching."""
-    from derive.fields.radial import L_SYMBOL, OMEGA
-
     problem = spacetime.field_problem
     field = spacetime.field
     sec = derivation.add(Section(
@@ -272,4 +270,3 @@ def field_sections(derivation: Derivation, spacetime) -> None:
                       f"{escape(first)} to region {escape(second)}:")
         sub.equations.append(derivation.equation("T", matching.transfer_matrix, "field", first, second, "T"))
         sec.subsections.append(sub)
-    del L_SYMBOL, OMEGA
