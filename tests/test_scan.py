@@ -10,29 +10,11 @@ import time
 
 import pytest
 
+from conftest import two_region_spec
+
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
-SPEC = """
-format = 1
-title = "shell scan"
-[parameters]
-M = { value = 0.1, positive = true }
-R = { value = 1.0, positive = true }
-[coordinates]
-names = ["t", "r", "theta", "phi"]
-positive = ["r"]
-[[region]]
-name = "inside"
-where = "0 <= r < R"
-line_element = "-alpha**2*dt**2 + dr**2 + r**2*(dtheta**2 + sin(theta)**2*dphi**2)"
-unknowns = ["alpha"]
-[[region]]
-name = "outside"
-where = "r > R"
-line_element = "-(1 - 2*M/r)*dt**2 + dr**2/(1 - 2*M/r) + r**2*(dtheta**2 + sin(theta)**2*dphi**2)"
-[[interface]]
-between = ["inside", "outside"]
-at = "r = R"
-"""
+SPEC = two_region_spec("1", "1 - 2*M/r", "M = { value = 0.1, positive = true }\n"
+                       "R = { value = 1.0, positive = true }").split("[field]")[0]
 
 
 def rows(out):

@@ -8,37 +8,8 @@ import sympy as sp
 import derive
 from derive.cli import main
 from derive.errors import JunctionError
+from conftest import two_region_spec  # noqa: F401  (re-exported for other test modules)
 
-SPHERE = "r**2*(dtheta**2 + sin(theta)**2*dphi**2)"
-
-
-def two_region_spec(inside_f, outside_f, parameters, inside_h=None, unknowns='["alpha"]', alpha=True):
-    inside_h = inside_h or inside_f
-    scale = "alpha**2*" if alpha else ""
-    return f"""
-format = 1
-title = "shell"
-[parameters]
-{parameters}
-[coordinates]
-names = ["t", "r", "theta", "phi"]
-positive = ["r"]
-[[region]]
-name = "inside"
-where = "0 <= r < R"
-line_element = "-{scale}({inside_f})*dt**2 + dr**2/({inside_h}) + {SPHERE}"
-unknowns = {unknowns}
-[[region]]
-name = "outside"
-where = "r > R"
-line_element = "-({outside_f})*dt**2 + dr**2/({outside_f}) + {SPHERE}"
-[[interface]]
-between = ["inside", "outside"]
-at = "r = R"
-[field]
-mass = "0"
-coupling = "0"
-"""
 
 
 DUST = "M = { value = 1.0, positive = true }\nR = { value = 4.0, positive = true }"
