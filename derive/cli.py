@@ -254,13 +254,45 @@ def _scattering_output(args, spacetime, problem, omegas, tolerance) -> int:
             "reflection": list(map(float, result["reflection"])), "density": None,
             "error": {"transmission": list(map(float, result["error"])),
                       "reflection": list(map(float, result["error"]))},
-            "flux_defect": list(map(float, result["flux_defect"])), "tolerance": tolerance, "method": METHOD,
-            "note": "the spectral density at a point outside a horizon is not computed by this version"}
-    rows = (f"{w:12.6g} {t:22.15e} {e:10.1e} {r:22.15e} {d:15.1e}" for w, t, e, r, d in
-            zip(omegas, result["transmission"], result["error"], result["reflection"], result["flux_defect"]))
+            "flux_defect": list(map(float, result["flux_defect"])), "tolerance": tolerance, "method": METHOD}
+    if args.at is None:
+        data["note"] = "give --at R0 (outside the horizon) for the spectral density there"
+    else:
+        from derive.solve.exterior import STATES, exterior_density
+
+        try:
+            outside = exterior_density(problem, omegas, args.at, tolerance, progress=_l_progress())
+        except Unsupported as exc:
+            raise InputError(f"derive spectrum: {exc}", file=spacetime.path, key="--at") from None
+        floats = lambda values: list(map(float, values))
+        data.update({"at": float(args.at), "density": floats(outside.density),
+                     "density_in": floats(outside.inward), "density_up": floats(outside.outward),
+                     "hawking_temperature": outside.temperature, "l_max": outside.l_max,
+                     "units": "per unit omega of the spec's time coordinate; density = Boulware (in + up), "
+                              "summed over l"})
+        data["error"].update({"density": floats(outside.error), "density_in": floats(outside.inward_error),
+                              "density_up": floats(outside.outward_error)})
+        data["states"] = {}
+        for name in STATES:
+            plus, plus_error, minus, minus_error = outside.state(name)
+            data["states"][name] = {"positive": floats(plus), "negative": floats(minus),
+                                    "error": {"positive": floats(plus_error), "negative": floats(minus_error)}}
+        if not outside.ok:
+            _deliver(args, data, write_scattering_files, spacetime.title, "", [])
+            raise AccuracyError(outside.message(), {"tolerance": tolerance})
+    density = data["density"] or [None] * len(omegas)
+    density_error = data["error"].get("density") or [None] * len(omegas)
+    rows = (f"{w:12.6g} {t:22.15e} {e:10.1e} {r:22.15e} {d:15.1e}"
+            + (f" {s:22.15e} {se:10.1e}" if s is not None else "") for w, t, e, r, d, s, se in
+            zip(omegas, result["transmission"], result["error"], result["reflection"], result["flux_defect"],
+                density, density_error))
+    header = f"{'omega':>12} {'|T|^2':>22} {'error':>10} {'|R|^2':>22} {'|R|^2+|T|^2-1':>15}"
+    if data["density"] is not None:
+        header += f" {'density (Boulware)':>22} {'error':>10}"
     _deliver(args, data, write_scattering_files, spacetime.title,
-             f"{spacetime.title}: scattering of the l = {args.l} field off the horizon\n"
-             f"{'omega':>12} {'|T|^2':>22} {'error':>10} {'|R|^2':>22} {'|R|^2+|T|^2-1':>15}", rows)
+             f"{spacetime.title}: scattering of the l = {args.l} field off the horizon"
+             + (f"; spectral density at r = {args.at:g} summed over l" if args.at is not None else "")
+             + "\n" + header, rows)
     if not result["ok"]:
         raise AccuracyError(result["message"], {"tolerance": tolerance})
     return 0
@@ -277,9 +309,14 @@ def response_json(result) -> dict:
     switching = result["switching"]
     data = {"gaps": floats(result["gaps"]), "response": floats(result["response"]), "error": floats(result["error"]),
             "switching": {"shape": switching.shape, "width": switching.width, "tail": switching.tail,
-                          "duration": switching.duration},
-            "state": result["state"], "coupling": result["coupling"], "sigmas": result["sigmas"],
-            "locality": result["locality"], "notes": result["notes"]}
+                          "duration": switching.duration,
+                          "support": None if switching.support is None else list(switching.support)},
+            "state": result["state"], "at": result["at"], "coupling": result["coupling"],
+            "sigmas": result["sigmas"], "locality": result["locality"], "notes": result["notes"]}
+    if "states" in result:
+        data["states"] = {name: {"response": floats(value["response"]), "error": floats(value["error"])}
+                          for name, value in result["states"].items()}
+        data["local_temperature"] = float(result["local_temperature"])
     if "reference" in result:
         ref = result["reference"]
         data["reference"] = {"with": ref["with"], "response": floats(ref["response"]), "error": floats(ref["error"])}
@@ -291,6 +328,16 @@ def response_json(result) -> dict:
         if "trials_note" in result:
             data["trials_note"] = result["trials_note"]
     return data
+
+
+def _l_progress():
+    """A one-line progress report of an l-sum on a terminal (nothing when stderr is not one)."""
+    if not sys.stderr.isatty():
+        return None
+
+    def report(l):
+        print(f"\r  summing over l: l = {l} done", end="", file=sys.stderr, flush=True)
+    return report
 
 
 def cmd_response(args) -> int:
@@ -317,7 +364,7 @@ def cmd_response(args) -> int:
     if detector.compare_with not in (None, "minkowski"):
         reference = _numeric_problem(load(detector.compare_with))
     try:
-        result = study(_numeric_problem(spacetime), detector, reference, tolerance, gaps)
+        result = study(_numeric_problem(spacetime), detector, reference, tolerance, gaps, progress=_l_progress())
     except (Unsupported, UnsupportedSwitching) as exc:
         raise InputError(f"derive response cannot handle this yet: {exc}", file=spacetime.path) from None
     data = response_json(result)

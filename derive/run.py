@@ -115,11 +115,8 @@ def run(spacetime, out: str, tolerance: float = 1e-10, progress=print) -> dict:
 
 
 def _numerics(spacetime, kernels, staging, tolerance, summary, timings, progress):
-    from derive.cli import response_json
-    from derive.codegen.problem import numeric_detector, numeric_problem
-    from derive.detector.study import study
-    from derive.detector.switching import UnsupportedSwitching
-    from derive.report.tables import write_response_files, write_spectrum_files
+    from derive.codegen.problem import numeric_problem
+    from derive.report.tables import write_spectrum_files
     from derive.solve.api import METHOD, spectrum_at_centre
     from derive.solve.centre import Unsupported
 
@@ -130,8 +127,7 @@ def _numerics(spacetime, kernels, staging, tolerance, summary, timings, progress
     omegas = np.linspace(low, high, count) / problem.length_scale
     if problem.regions[0].lower_kind == "horizon":
         _greybody(spacetime, problem, omegas, staging, tolerance, summary, timings, start)
-        summary["skipped"]["response"] = ("the detector response outside a horizon (Boulware, Hartle-Hawking, "
-                                          "Unruh states) is not computed by this version")
+        _response(spacetime, kernels, problem, staging, tolerance, summary, timings, progress)
         return
     try:
         result = spectrum_at_centre(problem, omegas, 0, tolerance)
@@ -151,6 +147,17 @@ def _numerics(spacetime, kernels, staging, tolerance, summary, timings, progress
         from derive.errors import AccuracyError
 
         raise AccuracyError(result["message"], {"largest relative error": worst, "tolerance": tolerance})
+    _response(spacetime, kernels, problem, staging, tolerance, summary, timings, progress)
+
+
+def _response(spacetime, kernels, problem, staging, tolerance, summary, timings, progress):
+    from derive.cli import response_json
+    from derive.codegen.problem import numeric_detector, numeric_problem
+    from derive.detector.study import study
+    from derive.detector.switching import UnsupportedSwitching
+    from derive.report.tables import write_response_files
+    from derive.solve.centre import Unsupported
+
     if spacetime.detector is None or not spacetime.detector.gaps:
         summary["skipped"]["response"] = "no [detector] section with gaps"
         return

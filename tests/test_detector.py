@@ -14,7 +14,7 @@ from derive.codegen.catalog import KernelSet
 from derive.codegen.problem import numeric_detector, numeric_problem
 from derive.detector.response import trials_to_distinguish
 from derive.detector.study import minkowski_gaussian_response, study
-from derive.detector.switching import Switching
+from derive.detector.switching import Switching, switching_from_spec
 from test_shells import two_region_spec
 from test_solve import FLAT
 
@@ -109,8 +109,77 @@ def test_response_command_json_contract(tmp_path, capsys):
     assert (tmp_path / "out" / "response.csv").is_file() and (tmp_path / "out" / "response.png").is_file()
 
 
-def test_unsupported_states_are_refused_with_a_reason(capsys):
-    spec = os.path.join(ROOT, "worked", "schwarzschild", "spec.toml")
-    assert main(["response", spec]) == 2
-    assert "cannot handle this yet" in capsys.readouterr().err
+def test_states_need_the_right_spacetime(capsys, tmp_path):
+    # A thermal state needs a horizon; a regular spacetime says so (exit 2, with the reason).
+    text = open(os.path.join(ROOT, "worked", "dust_shell", "spec.toml")).read().replace(
+        'state = "vacuum"', 'state = "hartle-hawking"')
+    assert 'state = "hartle-hawking"' in text
+    path = tmp_path / "spec.toml"
+    path.write_text(text)
+    assert main(["response", str(path)]) == 2
+    assert "needs a horizon" in capsys.readouterr().err
 
+
+def test_sharp_switching_is_refused_as_divergent(capsys, tmp_path):
+    # Svaiter & Svaiter, Phys. Rev. D 46, 5267 (1992) (from memory): sharp switching gives a logarithmically
+    # UV-divergent response in 3+1; derive refuses with the reason rather than print a cut-off-dependent number.
+    text = open(os.path.join(ROOT, "worked", "dust_shell", "spec.toml")).read()
+    start = text.index("switching =")
+    end = text.index("\n", start)
+    path = tmp_path / "spec.toml"
+    path.write_text(text[:start] + 'switching = { shape = "sharp", duration = "1" }' + text[end:])
+    assert main(["response", str(path)]) == 2
+    assert "diverges logarithmically" in capsys.readouterr().err
+
+
+def _quad_power(switching, k):
+    a, b = switching.support
+    chi = lambda x: float(switching.chi(np.array([x]))[0])
+    re = quad(lambda x: chi(x) * np.cos(k * x), a, b, limit=400, epsabs=1e-15, epsrel=1e-13)[0]
+    im = quad(lambda x: chi(x) * np.sin(k * x), a, b, limit=400, epsabs=1e-15, epsrel=1e-13)[0]
+    return re * re + im * im
+
+
+@pytest.mark.parametrize("shape, values", [("sharp", {"duration": 2.0}), ("bump", {"duration": 3.0}),
+                                           ("cos2", {"duration": 4.0, "ramp": 1.0}),
+                                           ("sin4", {"duration": 4.0, "ramp": 1.5})])
+def test_compact_switching_transforms_against_direct_quadrature(shape, values):
+    # Issue 6 check: each switching's |chi_hat(k)|^2 against scipy's adaptive quadrature (QUADPACK) of
+    # int chi(tau) e^{-i k tau} dtau, and its error bound covers the difference.
+    switching = switching_from_spec({"shape": shape}, values)
+    peak = switching.power(np.array([0.0]))[0]
+    for k in (0.0, 0.7, 3.1, 10.0, 31.0):
+        ours = switching.power(np.array([k]))[0]
+        assert abs(ours - _quad_power(switching, k)) <= 1e-12 * peak + switching.power_error
+    assert switching.support == (-values["duration"] / 2, values["duration"] / 2)
+    assert switching.duration <= values["duration"]
+
+
+def test_switching_shapes_know_their_decay_and_duration():
+    # Integration by parts (common practice): a jump in the m-th derivative of chi gives |chi_hat|^2 ~ k^-2(m+1):
+    # top hat m = 0, cos^2 ramps m = 2, the fourth-order ramps m = 4.  A user expression is classified the same
+    # way: cos^2(pi tau/2) on |tau| < 1 has its first jump in the second derivative.
+    profile = lambda tau: np.cos(np.pi * np.asarray(tau) / 2) ** 2
+    user = switching_from_spec({"shape": "expression"}, {"duration": 2.0}, profile)
+    cos2 = switching_from_spec({"shape": "cos2"}, {"duration": 2.0, "ramp": 1.0})
+    assert user.decay == 6 and cos2.decay == 6
+    # the same function two ways: cos^2 ramps of length 1 on a support of 2 are cos^2(pi tau/2)
+    k = np.array([0.0, 1.3, 7.0])
+    np.testing.assert_allclose(user.power(k), cos2.power(k), rtol=1e-12, atol=1e-14)
+    assert switching_from_spec({"shape": "sin4"}, {"duration": 2.0, "ramp": 0.5}).decay == 10
+    assert switching_from_spec({"shape": "bump"}, {"duration": 2.0}).decay is None
+    # the bump's effective duration holds all but the tail of int chi^2 (checked by quadrature)
+    bump = switching_from_spec({"shape": "bump"}, {"duration": 2.0, "tail": 1e-6})
+    inner = quad(lambda t: float(bump.chi(np.array([t]))[0]) ** 2, -bump.duration / 2, bump.duration / 2)[0]
+    whole = quad(lambda t: float(bump.chi(np.array([t]))[0]) ** 2, -1, 1)[0]
+    assert 1 - inner / whole == pytest.approx(1e-6, rel=0.05)
+
+
+def test_compact_switching_flat_response_from_the_mode_sum(write_spec):
+    # Flat space from the mode sum (centre density) against the same switching with the exact flat density
+    # nu/(4 pi^2) (PHYSICS.md section 7): the solver's density enters, nothing else differs.
+    st = derive.load(write_spec(FLAT + DETECTOR.format(width=1, gaps="-1.0, 0.0, 1.0").replace(
+        'shape = "gaussian", width = "1"', 'shape = "sin4", duration = "3", ramp = "1"')))
+    result = study(numeric_problem(KernelSet(st)), numeric_detector(st), tolerance=1e-10)
+    assert np.all(np.abs(result["relative_difference"]) <= 1e-9)
+    assert np.all(result["error"] < 1e-8 * np.abs(result["response"]))

@@ -3,6 +3,7 @@
 import json
 import os
 
+import numpy as np
 import pytest
 
 import derive
@@ -46,15 +47,29 @@ def test_a_failing_run_leaves_the_earlier_folder(tmp_path, monkeypatch):
     assert sorted(p.name for p in tmp_path.iterdir()) == ["result"]
 
 
-def test_run_skips_what_the_solver_cannot_do_yet(tmp_path, capsys):
+def test_run_on_a_black_hole_writes_greybody_factors_and_the_three_states(tmp_path, capsys):
+    # The worked example with a longer switching and two gaps (fewer frequencies, fewer l): same code path.
+    text = open(os.path.join(ROOT, "worked", "schwarzschild", "spec.toml")).read()
+    text = text.replace('width = "10"', 'width = "40"').replace("gaps = [-0.5, -0.25, 0.0, 0.25, 0.5]",
+                                                             "gaps = [-0.1, 0.1]")
+    assert 'width = "40"' in text and "gaps = [-0.1, 0.1]" in text
+    spec = tmp_path / "spec.toml"
+    spec.write_text(text)
     out = tmp_path / "bh"
-    assert main(["run", os.path.join(ROOT, "worked", "schwarzschild", "spec.toml"), "--out", str(out),
-                 "--quiet"]) == 0
+    assert main(["run", str(spec), "--out", str(out), "--quiet"]) == 0
     summary = json.loads((out / "summary.json").read_text())
     assert summary["spectrum"]["kind"] == "transmission" and summary["spectrum"]["by_l"]["0"]["ok"]
-    assert "response" in summary["skipped"] and "horizon" in summary["skipped"]["response"]
-    assert "skipped response" in capsys.readouterr().out
-    assert (out / "spectrum.csv").is_file()
+    assert "response" not in summary["skipped"]
+    states = summary["response"]["states"]
+    assert set(states) == {"boulware", "hartle-hawking", "unruh"}
+    # a thermal bath excites the detector more than the Boulware state; Unruh (only outgoing flux) lies between
+    for i in range(2):
+        assert (states["boulware"]["response"][i] < states["unruh"]["response"][i]
+                < states["hartle-hawking"]["response"][i])
+    assert summary["response"]["local_temperature"] == pytest.approx(1 / (8 * np.pi * np.sqrt(2 / 3)), rel=1e-12)
+    header = (out / "response.csv").read_text().splitlines()[0]
+    assert "response_unruh" in header
+    assert (out / "spectrum.csv").is_file() and (out / "response.png").is_file()
 
 
 @pytest.mark.slow

@@ -87,7 +87,8 @@ def numeric_problem(kernel_set) -> NumericProblem:
         else:
             interfaces.append(NumericInterface(radius, second, first, _inverse(kernel)))
     mass = float(st.field.mass.subs(st.parameter_values))
-    return NumericProblem(st.title, tuple(order), tuple(interfaces), mass, kernel_set._length_scale())
+    return NumericProblem(st.title, tuple(order), tuple(interfaces), mass, kernel_set._length_scale(),
+                          len(st.coordinates))
 
 
 def _inverse(transfer):
@@ -120,6 +121,35 @@ def numeric_detector(spacetime):
                              key=f"detector.switching.{key}")
         switching[key] = float(number)
     compare = spacetime.compare
+    profile = None
+    if "expression" in d.switching:
+        profile = _switching_profile(spacetime, d.switching["expression"])
     return NumericDetector(radius, d.switching.get("shape", "gaussian"), switching, tuple(d.gaps), d.state,
                            d.coupling, None if compare is None else compare.with_,
-                           3.0 if compare is None else compare.sigmas)
+                           3.0 if compare is None else compare.sigmas, profile)
+
+
+def _switching_profile(spacetime, expression):
+    """A user switching chi(tau) lowered to a numpy kernel (parameters bound), checked against its mpmath twin."""
+    import sympy as sp
+
+    from derive.codegen.kernel import lower
+
+    tau = sp.Symbol("tau", real=True)
+    numeric = expression.subs(spacetime.parameter_values)
+    stray = numeric.free_symbols - {tau}
+    if stray:
+        raise InputError(f"the switching expression depends on {', '.join(map(str, stray))}, not only tau",
+                         file=spacetime.path, key="detector.switching.expression")
+    kernel = lower(numeric, [tau], "switching_profile").kernel.function
+    twin = lower(numeric, [tau], "switching_profile", backend="mpmath").kernel.function
+    import mpmath
+
+    for point in (-0.37, 0.0, 0.21):
+        with mpmath.workdps(30):
+            exact = float(twin(mpmath.mpf(point)))
+        value = float(np.asarray(kernel(np.array([point]))).reshape(-1)[0])
+        if abs(value - exact) > 1e-12 * max(1.0, abs(exact)):
+            raise AccuracyError("the switching expression's kernel disagrees with its mpmath twin",
+                                {"at": point, "numpy": value, "mpmath": exact})
+    return kernel

@@ -46,36 +46,44 @@ def _panels(upper: float, width: float):
     return nodes.ravel(), weights.ravel()
 
 
-def frequency_nodes(gaps, switching: Switching):
-    """The proper frequencies nu at which the density is needed (both quadrature levels)."""
+def frequency_nodes(gaps, switching: Switching, thermal: bool = False):
+    """The proper frequencies nu > 0 at which the density is needed (both quadrature levels).  A thermal state
+    also needs its negative-frequency part, weighted by |chi_hat(Omega - nu)|^2, up to the largest gap."""
     upper = max(0.0, -float(np.min(gaps))) + switching.reach
+    if thermal:
+        upper = max(upper, float(np.max(gaps)) + switching.reach)
     coarse = _panels(upper, switching.panel_width)
     fine = _panels(upper, switching.panel_width / 2)
     return coarse, fine
 
 
-def response(gaps, switching: Switching, density_at) -> Response:
+def response(gaps, switching: Switching, density_at, thermal: bool = False) -> Response:
     """F(Omega) for every gap.
 
     Parameters
     ----------
     gaps : array of Omega (detector's proper time)
     switching : Switching (its |chi_hat(k)|^2)
-    density_at : callable(nu array) -> (S(nu), error of S(nu)), per unit proper frequency
+    density_at : callable(nu array, nu > 0) -> (S(nu), error) per unit proper frequency, or, for a thermal
+        state (``thermal=True``), (S(nu), error, S(-nu), error of S(-nu))
     """
     gaps = np.asarray(gaps, dtype=float)
-    (nu_c, w_c), (nu_f, w_f) = frequency_nodes(gaps, switching)
+    (nu_c, w_c), (nu_f, w_f) = frequency_nodes(gaps, switching, thermal)
     nodes = np.concatenate([nu_c, nu_f])
-    S, S_err = density_at(nodes)
-    S_c, S_f = S[: len(nu_c)], S[len(nu_c):]
-    E_f = S_err[len(nu_c):]
-    weight_c = switching.power(gaps[:, None] + nu_c[None, :])
-    weight_f = switching.power(gaps[:, None] + nu_f[None, :])
-    F_c = weight_c @ (w_c * S_c)
-    F_f = weight_f @ (w_f * S_f)
-    density_error = weight_f @ (w_f * E_f)
-    quadrature_error = np.abs(F_f - F_c)
-    floor = 64 * np.finfo(float).eps * (np.abs(weight_f) @ (w_f * np.abs(S_f)))
+    parts = density_at(nodes)
+    split = len(nu_c)
+    F_c = F_f = density_error = size = mass = 0.0
+    for sign, S, S_err in ((1.0, parts[0], parts[1]),) + (((-1.0, parts[2], parts[3]),) if thermal else ()):
+        weight_c = switching.power(gaps[:, None] + sign * nu_c[None, :])
+        weight_f = switching.power(gaps[:, None] + sign * nu_f[None, :])
+        F_c = F_c + weight_c @ (w_c * S[:split])
+        F_f = F_f + weight_f @ (w_f * S[split:])
+        density_error = density_error + weight_f @ (w_f * S_err[split:])
+        size = size + np.abs(weight_f) @ (w_f * np.abs(S[split:]))
+        mass = mass + float(w_f @ np.abs(S[split:]))
+    # the transform's own error (absolute, on |chi_hat|^2) and the part of the integral beyond the reach
+    quadrature_error = np.abs(F_f - F_c) + switching.power_error * mass + switching.tail_error(gaps)
+    floor = 64 * np.finfo(float).eps * size
     return Response(gaps, F_f, quadrature_error + density_error + floor, quadrature_error, density_error)
 
 
@@ -89,14 +97,23 @@ def trials_to_distinguish(p_a, p_b, sigmas: float):
 
 
 def round_trip(problem, sqrt_f0: float, r0: float = 0.0) -> float:
-    """Radial light round trip from the detector at r0 out to the first structure (interface or horizon) and
-    back, in the detector's proper time: 2 sqrt(f(r0)) int_{r0}^R dr*/dr dr (the way in, through the centre,
-    is longer).  Infinite when nothing is there."""
-    first = problem.regions[0]
-    if first.upper is None:
+    """Radial light round trip from the detector at r0 to the nearest interface (inward or outward) and back,
+    in the detector's proper time: 2 sqrt(f(r0)) |int_{r0}^{R} dr*/dr dr| (for a detector inside a centre
+    region the way in, through the centre, is longer).  A horizon sends nothing back; with no interface the
+    round trip is infinite."""
+    radii = [interface.radius for interface in problem.interfaces]
+    if not radii:
         return float("inf")
     nodes, weights = np.polynomial.legendre.leggauss(60)
-    half = (first.upper - r0) / 2
-    r = r0 + (nodes + 1) * half
-    travel = np.sum(weights * first.dtortoise_dr(r)) * half
-    return float(2 * sqrt_f0 * travel)
+    best = float("inf")
+    for radius in radii:
+        a, b = sorted((r0, radius))
+        travel = 0.0
+        for region in problem.regions:
+            lo = max(a, region.lower)
+            hi = min(b, region.upper if region.upper is not None else b)
+            if hi > lo:
+                half = (hi - lo) / 2
+                travel += float(np.sum(weights * region.dtortoise_dr(lo + (nodes + 1) * half)) * half)
+        best = min(best, travel)
+    return float(2 * sqrt_f0 * best)

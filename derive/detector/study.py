@@ -1,8 +1,8 @@
 """A detector's whole answer: its response, the comparison, locality and the runs needed (numeric only).
 
-Supported so far: a static detector at the regular centre (r = 0), Gaussian switching, the vacuum state, a
-massless field in an asymptotically flat spacetime.  (Off the centre the density is an l-sum; it is available
-through derive spectrum --at, but a response needs it at about a thousand frequencies, which is too slow yet.)
+Supported: a static detector in a massless field, asymptotically flat; at a regular centre (vacuum), off it
+(the l-sum; slow: minutes), or outside a horizon (Boulware, Hartle-Hawking or Unruh state); every switching of
+derive.detector.switching except the sharp one (UV divergent in 3+1).
 """
 
 from __future__ import annotations
@@ -30,11 +30,52 @@ def minkowski_gaussian_response(gaps, sigma: float) -> np.ndarray:
     return np.array(out)
 
 
-def proper_density(problem, tolerance, r0: float = 0.0):
-    """S(nu) per unit proper frequency at r0 and its error: sqrt(f(r0)) density(sqrt(f(r0)) nu)."""
+_EXTERIOR_CACHE: dict = {}
+
+
+def _exterior(problem, omegas, r0, tolerance, progress):
+    """The in and up densities, kept for the last problem and frequency set: the three states of a black hole
+    share them (a thermal state and the Boulware state use the same frequency nodes)."""
+    from derive.solve.exterior import exterior_density
+
+    key = (id(problem), r0, tolerance, omegas.tobytes())
+    if key not in _EXTERIOR_CACHE:
+        _EXTERIOR_CACHE.clear()
+        _EXTERIOR_CACHE[key] = (problem, exterior_density(problem, omegas, r0, tolerance, progress=progress))
+    return _EXTERIOR_CACHE[key][1]
+
+
+def _sqrt_f(problem, r0: float) -> float:
+    region = next(r for r in problem.regions if r.upper is None or r0 < r.upper)
+    return float(np.sqrt(np.asarray(region.metric_f(np.array([r0]))).reshape(-1)[0]))
+
+
+def has_horizon(problem) -> bool:
+    return problem.regions[0].lower_kind == "horizon"
+
+
+def proper_density(problem, tolerance, r0: float = 0.0, state: str = "vacuum", progress=None):
+    """S(nu) per unit proper frequency at r0 and its error: sqrt(f(r0)) density(sqrt(f(r0)) nu).
+
+    Returns (density_at, sqrt_f0, thermal); for a thermal state density_at also gives S(-nu) and its error."""
+    sqrt_f0 = _sqrt_f(problem, r0)
+    if has_horizon(problem):
+        if state == "vacuum":
+            raise Unsupported("outside a horizon 'vacuum' is ambiguous: set [detector] state to 'boulware', "
+                              "'hartle-hawking' or 'unruh'")
+
+        def density_at(nu):
+            result = _exterior(problem, sqrt_f0 * np.asarray(nu), r0, tolerance, progress)
+            if not result.ok:
+                raise AccuracyError("the spectral density did not reach its tolerance: " + result.message(),
+                                    {"tolerance": tolerance})
+            return tuple(sqrt_f0 * part for part in result.state(state))
+        # every state uses the thermal nodes (Boulware's negative part is zero), so that they share one solve
+        return density_at, sqrt_f0, True
+    if state != "vacuum":
+        raise Unsupported(f"state {state!r} needs a horizon; this spacetime has none (use 'vacuum')")
     from derive.solve.api import density_function
 
-    sqrt_f0 = float(np.sqrt(problem.regions[0].metric_f(np.array([r0]))[0]))
     solve = density_function(problem, r0, tolerance)
 
     def density_at(nu):
@@ -43,33 +84,49 @@ def proper_density(problem, tolerance, r0: float = 0.0):
             raise AccuracyError("the spectral density did not reach its tolerance: " + result.message(),
                                 {"tolerance": tolerance})
         return sqrt_f0 * result.density, sqrt_f0 * result.error
-    return density_at, sqrt_f0
+    return density_at, sqrt_f0, False
 
 
-def detector_response(problem, detector, tolerance: float = 1e-10, gaps=None):
-    """F(Omega) with errors for a detector at the centre of ``problem`` (see module docstring)."""
-    if detector.radius != 0.0:
-        raise Unsupported("the detector must sit at the regular centre r = 0, so far (the l-summed spectral "
-                          "density off the centre is available through derive spectrum --at)")
-    if detector.state != "vacuum":
-        raise Unsupported(f"state {detector.state!r}: only the static vacuum of a regular spacetime, so far")
-    switching = switching_from_spec({"shape": detector.shape}, detector.switching)
+def detector_response(problem, detector, tolerance: float = 1e-10, gaps=None, state=None, progress=None):
+    """F(Omega) with errors for a static detector (see module docstring)."""
+    state = detector.state if state is None else state
+    switching = switching_from_spec({"shape": detector.shape}, detector.switching, detector.profile)
+    if switching.decay is not None and switching.decay <= 2:
+        raise Unsupported("with a sharp switching (a jump in chi) |chi_hat|^2 falls only like k^-2, and the "
+                          "response of a detector coupled to a massless field in 3+1 dimensions diverges "
+                          "logarithmically in the ultraviolet (Svaiter & Svaiter, Phys. Rev. D 46, 5267 (1992); "
+                          "from memory): choose a smooth switching (gaussian, bump, cos2, sin4)")
     gaps = np.asarray(detector.gaps if gaps is None else gaps, dtype=float)
-    density_at, sqrt_f0 = proper_density(problem, tolerance, detector.radius)
-    return response(gaps, switching, density_at), switching, sqrt_f0
+    density_at, sqrt_f0, thermal = proper_density(problem, tolerance, detector.radius, state, progress)
+    return response(gaps, switching, density_at, thermal), switching, sqrt_f0
 
 
-def study(problem, detector, reference_problem=None, tolerance: float = 1e-10, gaps=None) -> dict:
-    """Response, comparison with the reference (Minkowski in closed form, or another problem), locality, trials."""
-    ours, switching, sqrt_f0 = detector_response(problem, detector, tolerance, gaps)
+def study(problem, detector, reference_problem=None, tolerance: float = 1e-10, gaps=None, progress=None) -> dict:
+    """Response, comparison with the reference (Minkowski in closed form, or another problem), locality, trials.
+    Outside a horizon the response in all three states comes along (they share one solve) under "states"."""
+    ours, switching, sqrt_f0 = detector_response(problem, detector, tolerance, gaps, progress=progress)
     gaps = ours.gaps
     out = {"gaps": gaps, "response": ours.response, "error": ours.error, "switching": switching,
-           "state": detector.state, "coupling": detector.coupling, "sigmas": detector.sigmas, "notes": []}
+           "state": detector.state, "at": detector.radius, "coupling": detector.coupling,
+           "sigmas": detector.sigmas, "notes": []}
+    if has_horizon(problem):
+        from derive.solve.exterior import STATES
+
+        out["states"] = {}
+        for name in STATES:
+            other = ours if name == detector.state else detector_response(problem, detector, tolerance, gaps,
+                                                                           state=name)[0]
+            out["states"][name] = {"response": other.response, "error": other.error}
+        out["local_temperature"] = (problem.regions[0].surface_gravity / (2 * np.pi)) / sqrt_f0
     with_ = detector.compare_with
     if with_ is not None:
         if with_ == "minkowski":
-            ref = minkowski_gaussian_response(gaps, switching.width)
-            ref_err = 1e-15 * np.abs(ref)
+            if switching.shape == "gaussian":
+                ref = minkowski_gaussian_response(gaps, switching.width)
+                ref_err = 1e-15 * np.abs(ref)
+            else:   # the same quadrature with the exact flat density nu/(4 pi^2) (PHYSICS.md section 7)
+                flat = response(gaps, switching, lambda nu: (nu / (4 * np.pi ** 2), np.zeros_like(nu)))
+                ref, ref_err = flat.response, flat.error
         else:
             reference, _, _ = detector_response(reference_problem, detector, tolerance, gaps)
             ref, ref_err = reference.response, reference.error

@@ -129,7 +129,9 @@ def field_summary(spacetime, data) -> str:
 
 def response_summary(title: str, data: dict) -> str:
     s = data["switching"]
-    lines = [f"{title}: static detector at r = 0, {s['shape']} switching of width {s['width']:g} "
+    size = (f"width {s['width']:g}" if s.get("support") is None
+            else f"support {s['support'][1] - s['support'][0]:g}")
+    lines = [f"{title}: static detector at r = {data.get('at', 0.0):g}, {s['shape']} switching of {size} "
              f"(duration {s['duration']:.4g} holding all but {s['tail']:g} of chi^2), {data['state']} state"]
     header = f"{'gap':>8} {'F':>22} {'error':>9}"
     reference = data.get("reference")
@@ -146,6 +148,11 @@ def response_summary(title: str, data: dict) -> str:
             row += (f" {reference['response'][i]:20.13e} {data['relative_difference'][i]:16.6e} "
                     f"{data['relative_difference_error'][i]:9.1e} {runs}")
         lines.append(row)
+    if "states" in data:
+        lines.append(f"the three states (local Tolman temperature {data['local_temperature']:.6g}):")
+        for name, value in data["states"].items():
+            lines.append(f"  {name:>15}: " + ", ".join(f"{f:.6e} +- {e:.1e}"
+                                                         for f, e in zip(value["response"], value["error"])))
     loc = data["locality"]
     lines.append(f"locality: switching duration {loc['duration']:.4g} vs light round trip {loc['round_trip']:.4g} "
                  f"-> {'local' if loc['local'] else 'NOT local'}")

@@ -76,12 +76,18 @@ def write_response_files(out: str, data: dict, title: str, pdf: bool = False) ->
                     data["relative_difference_error"],
                     [x if x is not None else "" for x in data["trials_to_distinguish"] or [None] * len(data["gaps"])],
                     [x if x is not None else "" for x in data.get("trials_lower_bound") or [None] * len(data["gaps"])]]
+    for name, value in (data.get("states") or {}).items():
+        header += [f"response_{name}", f"error_{name}"]
+        columns += [value["response"], value["error"]]
     csv_path = os.path.join(out, "response.csv")
     write_atomic(csv_path, _csv(header, zip(*columns)))
     rows = 2 if reference else 1
     figure, axes = plt.subplots(rows, 1, figsize=(6.4, 3.4 * rows), sharex=True, squeeze=False)
     axes = axes[:, 0]
     axes[0].errorbar(data["gaps"], data["response"], yerr=data["error"], fmt="o-", label="this spacetime")
+    for name, value in (data.get("states") or {}).items():
+        if name != data["state"]:
+            axes[0].plot(data["gaps"], value["response"], ".:", label=f"{name} state")
     if reference:
         axes[0].plot(data["gaps"], reference["response"], "s--", label=f"reference: {reference['with']}")
         axes[1].errorbar(data["gaps"], data["relative_difference"], yerr=data["relative_difference_error"], fmt="o-")
@@ -91,7 +97,7 @@ def write_response_files(out: str, data: dict, title: str, pdf: bool = False) ->
     axes[0].legend(fontsize=8)
     axes[-1].set_xlabel(r"gap $\Omega$ (detector's proper time; $G=c=\hbar=1$)")
     axes[0].set_title(f"{title}: static detector, {data['switching']['shape']} switching, "
-                      f"width {data['switching']['width']:g}, {data['state']} state", fontsize=9)
+                      f"{data['state']} state", fontsize=9)
     paths = _save(figure, out, "response", pdf)
     plt.close(figure)
     return [csv_path] + paths
@@ -103,10 +109,17 @@ def write_scattering_files(out: str, data: dict, title: str, pdf: bool = False) 
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    rows = zip(data["omega"], data["transmission"], data["error"]["transmission"], data["reflection"],
-               data["flux_defect"])
+    header = ["omega", "transmission", "transmission_error", "reflection", "flux_defect"]
+    columns = [data["omega"], data["transmission"], data["error"]["transmission"], data["reflection"],
+               data["flux_defect"]]
+    if data.get("density") is not None:
+        header += ["density", "density_error", "density_in", "density_up"]
+        columns += [data["density"], data["error"]["density"], data["density_in"], data["density_up"]]
+        for name, value in data["states"].items():
+            header += [f"{name}_positive", f"{name}_negative"]
+            columns += [value["positive"], value["negative"]]
     csv_path = os.path.join(out, "spectrum.csv")
-    write_atomic(csv_path, _csv(["omega", "transmission", "transmission_error", "reflection", "flux_defect"], rows))
+    write_atomic(csv_path, _csv(header, zip(*columns)))
     figure, axis = plt.subplots(figsize=(6.4, 4.0))
     axis.plot(data["omega"], data["transmission"], label=r"$|T|^2$")
     axis.plot(data["omega"], data["reflection"], "--", label=r"$|R|^2$")

@@ -59,6 +59,9 @@ class DensityResult:
 
 def check_supported(problem) -> None:
     first, last = problem.regions[0], problem.regions[-1]
+    if problem.dimension != 4:
+        raise Unsupported(f"spectral densities are implemented in 3+1 dimensions (this spacetime has D = "
+                          f"{problem.dimension}); greybody factors work in any D")
     if first.lower_kind != "regular centre" or first.lower != 0.0:
         raise Unsupported("the spectral density is computed at a regular centre at r = 0 only, so far")
     if last.upper is not None or last.tail not in ("short-range", "centrifugal"):

@@ -52,6 +52,7 @@ class NumericProblem:
     interfaces: tuple[NumericInterface, ...]
     mass: float
     length_scale: float
+    dimension: int = 4          # spacetime dimension D
 
 
 @dataclass(frozen=True)
@@ -66,3 +67,4 @@ class NumericDetector:
     coupling: float | None
     compare_with: str | None   # "minkowski", a path, or None
     sigmas: float
+    profile: Callable | None = None   # chi(tau) for a switching given as an expression (a lowered kernel)
