@@ -183,3 +183,73 @@ def test_compact_switching_flat_response_from_the_mode_sum(write_spec):
     result = study(numeric_problem(KernelSet(st)), numeric_detector(st), tolerance=1e-10)
     assert np.all(np.abs(result["relative_difference"]) <= 1e-9)
     assert np.all(result["error"] < 1e-8 * np.abs(result["response"]))
+
+
+def test_user_expression_switching_through_the_spec(write_spec):
+    # A user chi(tau) from the spec is lowered to a kernel (checked against its mpmath twin) and gives the same
+    # response as the built-in shape it equals: cos^2(pi tau/4) on |tau| < 2 is the cos2 switching with ramps 2.
+    base = FLAT + DETECTOR.format(width=1, gaps="-1.0, 1.0")
+    user = derive.load(write_spec(base.replace('shape = "gaussian", width = "1"',
+                                               'shape = "expression", expression = "cos(pi*tau/4)**2", '
+                                               'duration = "4"'), "user.toml"))
+    builtin = derive.load(write_spec(base.replace('shape = "gaussian", width = "1"',
+                                                  'shape = "cos2", duration = "4", ramp = "2"'), "cos2.toml"))
+    a = study(numeric_problem(KernelSet(user)), numeric_detector(user), tolerance=1e-9)
+    b = study(numeric_problem(KernelSet(builtin)), numeric_detector(builtin), tolerance=1e-9)
+    np.testing.assert_allclose(a["response"], b["response"], rtol=1e-12)
+    assert a["switching"].decay == 6 and np.all(np.abs(a["relative_difference"]) <= a["relative_difference_error"] + 1e-9)
+
+
+def test_off_centre_flat_detector_responds_like_a_centred_one(write_spec):
+    # Issue 6 check: in flat space the l-summed density off the centre is the centre's (addition theorem,
+    # sum_l (2l+1) j_l^2 = 1, DLMF 10.60.12), so a detector at r0 = 0.7 gives the closed-form Gaussian response
+    # (Birrell & Davies 1982, ch. 3; PHYSICS.md section 8) to the tolerance.
+    text = FLAT + DETECTOR.format(width=2, gaps="-1.0, 0.0, 1.0").replace('at = "r = 0"', 'at = "r = 0.7"')
+    result = run_study(write_spec(text))
+    assert np.all(np.abs(result["relative_difference"]) <= 1e-9)
+    assert np.all(result["relative_difference_error"] <= 1e-9)
+
+
+def test_flat_massive_gaussian_response_against_direct_quadrature(write_spec):
+    # F = int_mu^inf dnu sqrt(nu^2 - mu^2)/(4 pi^2) |chi_hat(Omega + nu)|^2 (PHYSICS.md sections 7-8) by scipy's
+    # QUADPACK, independently of derive's mode sum and panels.
+    text = FLAT.replace('mass = "0"', 'mass = "1/2"') + DETECTOR.format(width=1, gaps="-2.0, 0.0, 1.0")
+    result = run_study(write_spec(text))
+    sigma, mu = 1.0, 0.5
+    for gap, ours, error in zip(result["gaps"], result["response"], result["error"]):
+        weight = lambda nu: np.sqrt(nu * nu - mu * mu) / (4 * np.pi ** 2) * 2 * np.pi * sigma ** 2 * np.exp(
+            -(sigma * (gap + nu)) ** 2)
+        reference = quad(weight, mu, mu + 40, epsabs=0, epsrel=1e-13, limit=400, points=[max(mu, -gap)])[0]
+        assert ours == pytest.approx(reference, rel=1e-9)
+        assert error < 1e-8 * ours
+    # the Minkowski reference of a massive field is the massive one: flat space differs from it by nothing
+    assert np.all(np.abs(result["relative_difference"]) <= 1e-9)
+
+
+def test_massive_field_with_bound_states_is_refused(capsys, tmp_path):
+    # A massive field around a gravitating shell has bound states below the mass (the Coulomb-like tail
+    # -M mu^2/r supports hydrogen-like levels); their discrete spectrum is not computed, so no response.
+    text = open(os.path.join(ROOT, "worked", "dust_shell", "spec.toml")).read().replace('mass = "0"', 'mass = "1"')
+    path = tmp_path / "spec.toml"
+    path.write_text(text)
+    assert main(["response", str(path)]) == 2
+    assert "bound states" in capsys.readouterr().err
+
+
+def test_flat_2plus1_gaussian_response(write_spec):
+    # Flat 2+1, massless: S = 1/(4 pi) (PHYSICS.md section 7), so F = int_0^inf S 2 pi sigma^2 e^{-sigma^2 (W+nu)^2}
+    # dnu = (sqrt(pi) sigma/4) erfc(sigma W) (integrated here; checked below by QUADPACK too).
+    from scipy.special import erfc
+
+    text = (FLAT.replace('names = ["t", "r", "theta", "phi"]', 'names = ["t", "r", "phi"]').replace(
+        "r**2*(dtheta**2 + sin(theta)**2*dphi**2)", "r**2*dphi**2") + DETECTOR.format(width=1, gaps="-1.0, 0.0, 2.0"))
+    st = derive.load(write_spec(text))
+    # 1e-9: in 2+1 the density does not vanish at nu -> 0, where the far radius (10^3 wavelengths) is largest
+    result = study(numeric_problem(KernelSet(st)), numeric_detector(st), tolerance=1e-9)
+    sigma = 1.0
+    closed = np.sqrt(np.pi) * sigma / 4 * erfc(sigma * np.array(result["gaps"]))
+    direct = [quad(lambda nu: 2 * np.pi * sigma ** 2 * np.exp(-(sigma * (g + nu)) ** 2) / (4 * np.pi), 0, np.inf,
+                   epsrel=1e-13)[0] for g in result["gaps"]]
+    np.testing.assert_allclose(closed, direct, rtol=1e-12)
+    np.testing.assert_allclose(result["response"], closed, rtol=1e-9)
+    assert np.all(np.abs(result["relative_difference"]) <= 1e-9)

@@ -149,3 +149,30 @@ def test_off_centre_density_tends_to_the_centre():
     centre = centre_density(problem, omegas).density
     gaps = [np.abs(density_off_centre(problem, omegas, r0).density / centre - 1) for r0 in (0.02, 0.01)]
     assert np.all(gaps[1] < gaps[0] / 3) and np.all(gaps[1] < 1e-3)
+
+
+def test_flat_massive_density_at_and_off_the_centre(write_spec):
+    # PHYSICS.md section 7 (Birrell & Davies 1982, ch. 3): flat 3+1, mass mu: S = sqrt(omega^2 - mu^2)/(4 pi^2)
+    # above the mass and no continuum below it; the l-sum off the centre gives the same (addition theorem).
+    from derive.solve.offcentre import density_off_centre
+
+    problem = problem_of(write_spec(FLAT.replace('mass = "0"', 'mass = "1/2"')))
+    omegas = np.array([0.3, 0.5001, 0.6, 1.0, 3.0, 10.0])
+    exact = np.sqrt(np.maximum(omegas ** 2 - 0.25, 0.0)) / (4 * np.pi ** 2)
+    for result in (centre_density(problem, omegas), density_off_centre(problem, omegas, 0.8)):
+        assert result.ok, result.message()
+        assert result.density[0] == 0.0
+        np.testing.assert_allclose(result.density[1:], exact[1:], rtol=1e-10)
+
+
+def test_flat_2plus1_density_at_the_centre(write_spec):
+    # PHYSICS.md section 7: flat 2+1, massless: S = 1/(4 pi) at every frequency (the m = 0 mode, u = r^(1/2) J0).
+    text = FLAT.replace('names = ["t", "r", "theta", "phi"]', 'names = ["t", "r", "phi"]').replace(
+        "r**2*(dtheta**2 + sin(theta)**2*dphi**2)", "r**2*dphi**2")
+    assert 'names = ["t", "r", "phi"]' in text and "r**2*dphi**2" in text
+    problem = problem_of(write_spec(text))
+    assert problem.dimension == 3
+    omegas = np.array([0.01, 0.3, 1.0, 10.0, 100.0])
+    result = centre_density(problem, omegas)
+    assert result.ok, result.message()
+    np.testing.assert_allclose(result.density * 4 * np.pi, 1.0, rtol=1e-10)

@@ -3,6 +3,7 @@
 import json
 import os
 
+import numpy as np
 import pytest
 import sympy as sp
 
@@ -86,3 +87,20 @@ def test_tangherlini_example():
     assert st.geometry["outside"].ricci == sp.zeros(5, 5)
     end = st.field_problem.regions["outside"].ends["lower"]
     assert end["kind"] == "horizon" and at_values(st, end["surface_gravity"]) == pytest.approx(1.0, rel=1e-14)
+
+
+@pytest.mark.slow
+def test_schwarzschild_example_response_in_three_states(capsys):
+    # The README's key figures for worked/schwarzschild (derive's own results, stated there to 4 digits), and
+    # the physics they must show: the Boulware value at zero gap is near the local vacuum 1/(4 pi) (equivalence
+    # principle, common practice), and Boulware < Unruh < Hartle-Hawking (thermal factors, PHYSICS.md sec. 7).
+    assert main(["response", spec("schwarzschild"), "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    zero = data["gaps"].index(0.0)
+    states = {name: value["response"][zero] for name, value in data["states"].items()}
+    assert states["boulware"] == pytest.approx(0.08307, abs=1e-5)
+    assert states["unruh"] == pytest.approx(0.09314, abs=1e-5)
+    assert states["hartle-hawking"] == pytest.approx(0.15727, abs=1e-5)
+    assert abs(states["boulware"] * 4 * np.pi - 1) < 0.05
+    assert data["local_temperature"] == pytest.approx(1 / (8 * np.pi * np.sqrt(1 - 2 / 6)), rel=1e-12)
+    assert all(e < 1e-8 * abs(f) for f, e in zip(data["response"], data["error"]))

@@ -33,31 +33,33 @@ class Response:
     density_error: np.ndarray
 
 
-def _panels(upper: float, width: float):
-    """Panels of the given width, the first one graded geometrically toward nu = 0 (the density can be
-    non-analytic there, e.g. nu^3 log nu from a long-range exterior, which would slow Gauss-Legendre down)."""
-    count = max(int(np.ceil(upper / width)), 1)
-    edges = np.linspace(0.0, upper, count + 1)
-    graded = edges[1] * 2.0 ** -np.arange(12, 0, -1)
-    edges = np.concatenate([[0.0], graded, edges[1:]])
+def _panels(upper: float, width: float, start: float = 0.0):
+    """Panels of the given width from ``start`` (0, or the continuum threshold of a massive field), the first
+    one graded geometrically toward it (the density can be non-analytic there: nu^3 log nu from a long-range
+    exterior, sqrt(nu - mu) at a threshold, which would slow Gauss-Legendre down)."""
+    upper = max(upper, start + width)
+    count = max(int(np.ceil((upper - start) / width)), 1)
+    edges = np.linspace(start, upper, count + 1)
+    graded = start + (edges[1] - start) * 2.0 ** -np.arange(12, 0, -1)
+    edges = np.concatenate([[start], graded, edges[1:]])
     a, b = edges[:-1], edges[1:]
     nodes = ((a + b)[:, None] + (b - a)[:, None] * NODES[None, :]) / 2
     weights = ((b - a)[:, None] / 2) * WEIGHTS[None, :]
     return nodes.ravel(), weights.ravel()
 
 
-def frequency_nodes(gaps, switching: Switching, thermal: bool = False):
-    """The proper frequencies nu > 0 at which the density is needed (both quadrature levels).  A thermal state
-    also needs its negative-frequency part, weighted by |chi_hat(Omega - nu)|^2, up to the largest gap."""
+def frequency_nodes(gaps, switching: Switching, thermal: bool = False, threshold: float = 0.0):
+    """The proper frequencies nu > threshold at which the density is needed (both quadrature levels).  A thermal
+    state also needs its negative-frequency part, weighted by |chi_hat(Omega - nu)|^2, up to the largest gap."""
     upper = max(0.0, -float(np.min(gaps))) + switching.reach
     if thermal:
         upper = max(upper, float(np.max(gaps)) + switching.reach)
-    coarse = _panels(upper, switching.panel_width)
-    fine = _panels(upper, switching.panel_width / 2)
+    coarse = _panels(upper, switching.panel_width, threshold)
+    fine = _panels(upper, switching.panel_width / 2, threshold)
     return coarse, fine
 
 
-def response(gaps, switching: Switching, density_at, thermal: bool = False) -> Response:
+def response(gaps, switching: Switching, density_at, thermal: bool = False, threshold: float = 0.0) -> Response:
     """F(Omega) for every gap.
 
     Parameters
@@ -68,7 +70,7 @@ def response(gaps, switching: Switching, density_at, thermal: bool = False) -> R
         state (``thermal=True``), (S(nu), error, S(-nu), error of S(-nu))
     """
     gaps = np.asarray(gaps, dtype=float)
-    (nu_c, w_c), (nu_f, w_f) = frequency_nodes(gaps, switching, thermal)
+    (nu_c, w_c), (nu_f, w_f) = frequency_nodes(gaps, switching, thermal, threshold)
     nodes = np.concatenate([nu_c, nu_f])
     parts = density_at(nodes)
     split = len(nu_c)

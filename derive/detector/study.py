@@ -45,6 +45,16 @@ def _exterior(problem, omegas, r0, tolerance, progress):
     return _EXTERIOR_CACHE[key][1]
 
 
+def flat_density(dimension: int, mu: float):
+    """Minkowski's spectral density per unit proper frequency (PHYSICS.md section 7): sqrt(nu^2 - mu^2)/(4 pi^2)
+    in 3+1 and 1/(4 pi) above the mass in 2+1 (Birrell & Davies 1982, ch. 3)."""
+    if dimension == 4:
+        return lambda nu: (np.sqrt(np.maximum(nu * nu - mu * mu, 0.0)) / (4 * np.pi ** 2), np.zeros_like(nu))
+    if dimension == 3:
+        return lambda nu: (np.where(nu > mu, 1 / (4 * np.pi), 0.0), np.zeros_like(nu))
+    raise Unsupported(f"no Minkowski reference in D = {dimension} yet (3+1 and 2+1 only): compare with a spec")
+
+
 def _sqrt_f(problem, r0: float) -> float:
     region = next(r for r in problem.regions if r.upper is None or r0 < r.upper)
     return float(np.sqrt(np.asarray(region.metric_f(np.array([r0]))).reshape(-1)[0]))
@@ -75,6 +85,12 @@ def proper_density(problem, tolerance, r0: float = 0.0, state: str = "vacuum", p
     if state != "vacuum":
         raise Unsupported(f"state {state!r} needs a horizon; this spacetime has none (use 'vacuum')")
     from derive.solve.api import density_function
+    from derive.solve.centre import bound_states_possible
+
+    if bound_states_possible(problem):
+        raise Unsupported("a massive field here can have bound states below the mass (V dips below mu^2, e.g. "
+                          "the Coulomb-like tail of a gravitating body): their discrete spectrum is not computed "
+                          "yet, so a response would be incomplete; derive spectrum gives the continuum density")
 
     solve = density_function(problem, r0, tolerance)
 
@@ -98,7 +114,10 @@ def detector_response(problem, detector, tolerance: float = 1e-10, gaps=None, st
                           "from memory): choose a smooth switching (gaussian, bump, cos2, sin4)")
     gaps = np.asarray(detector.gaps if gaps is None else gaps, dtype=float)
     density_at, sqrt_f0, thermal = proper_density(problem, tolerance, detector.radius, state, progress)
-    return response(gaps, switching, density_at, thermal), switching, sqrt_f0
+    from derive.solve.centre import continuum_threshold
+
+    threshold = 0.0 if has_horizon(problem) else continuum_threshold(problem) / sqrt_f0
+    return response(gaps, switching, density_at, thermal, threshold), switching, sqrt_f0
 
 
 def study(problem, detector, reference_problem=None, tolerance: float = 1e-10, gaps=None, progress=None) -> dict:
@@ -121,11 +140,12 @@ def study(problem, detector, reference_problem=None, tolerance: float = 1e-10, g
     with_ = detector.compare_with
     if with_ is not None:
         if with_ == "minkowski":
-            if switching.shape == "gaussian":
+            mu = problem.mass
+            if switching.shape == "gaussian" and mu == 0.0 and problem.dimension == 4:
                 ref = minkowski_gaussian_response(gaps, switching.width)
                 ref_err = 1e-15 * np.abs(ref)
-            else:   # the same quadrature with the exact flat density nu/(4 pi^2) (PHYSICS.md section 7)
-                flat = response(gaps, switching, lambda nu: (nu / (4 * np.pi ** 2), np.zeros_like(nu)))
+            else:   # the same quadrature with the exact flat density (PHYSICS.md section 7)
+                flat = response(gaps, switching, flat_density(problem.dimension, mu), threshold=mu)
                 ref, ref_err = flat.response, flat.error
         else:
             reference, _, _ = detector_response(reference_problem, detector, tolerance, gaps)

@@ -159,7 +159,9 @@ class CompactSwitching(Switching):
 
     @property
     def panel_width(self) -> float:
-        return 0.5 / self.support_length
+        # |chi_hat|^2 oscillates with period about 2 pi/T: 12 Gauss nodes on panels of 2/T resolve it (the
+        # response compares panels of this width and half of it)
+        return 2.0 / self.support_length
 
     @property
     def duration(self) -> float:

@@ -11,8 +11,9 @@ per unit omega of the spec's time coordinate.  The amplitude is read from the WK
 A^2 = u^2 + u'^2/(omega^2 - V) at a far radius (10^6 length scales, or 10^3 wavelengths if that is farther)
 and again at four times that radius; their difference is the tail error.  Each value carries an error estimate (Richardson correction of the propagation plus the tail).
 
-Supported so far: massless fields, a regular centre at r = 0, asymptotically flat (short-range or centrifugal
-tail); other cases raise ``Unsupported`` with a message.
+Supported: a regular centre at r = 0, asymptotically flat; massless or massive (the continuum above the mass:
+k = sqrt(omega^2 - mu^2) replaces omega in the normalisation; below it the density of scattering states is zero).
+Other cases raise ``Unsupported`` with a message.
 """
 
 from __future__ import annotations
@@ -57,18 +58,51 @@ class DensityResult:
                 f"{self.error[worst] / abs(self.density[worst]):.2e}")
 
 
-def check_supported(problem) -> None:
+def merge(omegas, tolerance, parts) -> DensityResult:
+    """One result from (indices, DensityResult) parts over subsets of ``omegas``; the rest stays zero (no
+    continuum there)."""
+    merged = DensityResult(omegas, *(np.zeros(len(omegas)) for _ in range(5)), tolerance)
+    for index, part in parts:
+        for name in ("density", "error", "amplitude", "propagation_error", "tail_error"):
+            getattr(merged, name)[index] = getattr(part, name)
+    return merged
+
+
+def check_supported(problem, any_dimension: bool = False) -> None:
     first, last = problem.regions[0], problem.regions[-1]
-    if problem.dimension != 4:
-        raise Unsupported(f"spectral densities are implemented in 3+1 dimensions (this spacetime has D = "
-                          f"{problem.dimension}); greybody factors work in any D")
+    if problem.dimension != 4 and not any_dimension:
+        raise Unsupported(f"l-summed spectral densities are implemented in 3+1 dimensions (this spacetime has "
+                          f"D = {problem.dimension}); the density at a centre and greybody factors work in any D")
     if first.lower_kind != "regular centre" or first.lower != 0.0:
         raise Unsupported("the spectral density is computed at a regular centre at r = 0 only, so far")
-    if last.upper is not None or last.tail not in ("short-range", "centrifugal"):
-        raise Unsupported("the outermost region must reach infinity with a short-range or centrifugal tail "
-                          "(massless, asymptotically flat), so far")
-    if problem.mass != 0.0:
-        raise Unsupported("massive fields are not handled by the solver yet")
+    if last.upper is not None or last.tail not in TAILS:
+        raise Unsupported("the outermost region must reach infinity (asymptotically flat), so far")
+
+
+TAILS = ("short-range", "centrifugal", "massive, short-range", "Coulomb-like (massive)")
+
+
+def bound_states_possible(problem) -> bool:
+    """Whether a massive field may have bound states (omega below the mass): V(r, l = 0) dips below its value
+    at infinity somewhere (sampled on every region; a Coulomb-like attractive tail always does)."""
+    threshold2 = continuum_threshold(problem) ** 2
+    if threshold2 == 0.0:
+        return False
+    for region in problem.regions:
+        upper = region.upper if region.upper is not None else 1e6 * problem.length_scale
+        lower = region.lower if region.lower > 0 else 1e-6 * problem.length_scale
+        r = np.geomspace(lower, upper, 2001)[1:-1]
+        V = np.asarray(region.potential(r, 0, 0.0), dtype=float) * np.ones_like(r)
+        if np.any(V < threshold2 * (1 - 1e-12)):
+            return True
+    return False
+
+
+def continuum_threshold(problem) -> float:
+    """The lowest frequency of the continuum: sqrt(V(infinity)), the field's mass times the lapse there."""
+    last = problem.regions[-1]
+    far = FAR * 1e6 * problem.length_scale
+    return float(np.sqrt(max(0.0, float(np.asarray(last.potential(np.array([far]), 0, 0.0)).reshape(-1)[0]))))
 
 
 def centre_density(problem, omegas, tolerance: float = 1e-10, steps: int = DEFAULT_STEPS,
@@ -78,25 +112,30 @@ def centre_density(problem, omegas, tolerance: float = 1e-10, steps: int = DEFAU
     The density is computed on grids of N and 2N steps per region; their difference (plus the tail error) is
     the error estimate, and N is doubled until it meets ``tolerance`` or ``max_steps`` is reached.  The result
     says whether the tolerance was met (``ok``) and, if not, where it fell short (``message``)."""
-    check_supported(problem)
+    check_supported(problem, any_dimension=True)
+    if problem.dimension != 4 and problem.regions[0].centre_series is None:
+        raise Unsupported("the centre's series kernel is needed to start the solution in D != 4")
     omegas = np.asarray(omegas, dtype=float)
     if omegas.ndim != 1 or np.any(~np.isfinite(omegas)) or np.any(omegas <= 0):
         raise ValueError("frequencies must be positive and finite")
+    threshold = continuum_threshold(problem)
+    if threshold > 0 and np.any(omegas <= threshold):
+        # below the mass there is no continuum: the density of scattering states is zero there (bound states,
+        # where the spacetime has them, are discrete and not part of this density)
+        above = np.nonzero(omegas > threshold)[0]
+        parts = [(above, centre_density(problem, omegas[above], tolerance, steps, max_steps))] if len(above) else []
+        return merge(omegas, tolerance, parts)
     # frequencies so low that the far radius must grow are solved in their own decades (the far radius of a
     # batch is set by its lowest frequency)
     threshold = 1e3 / (FAR * problem.length_scale)
     low = omegas < threshold
     if np.any(low) and not np.all(low):
         decade = np.where(low, np.floor(np.log10(omegas / threshold)), 1.0)
-        parts = {}
+        parts = []
         for value in np.unique(decade):
             index = np.nonzero(decade == value)[0]
-            parts[value] = (index, centre_density(problem, omegas[index], tolerance, steps, max_steps))
-        merged = DensityResult(omegas, *(np.zeros(len(omegas)) for _ in range(5)), tolerance)
-        for index, part in parts.values():
-            for name in ("density", "error", "amplitude", "propagation_error", "tail_error"):
-                getattr(merged, name)[index] = getattr(part, name)
-        return merged
+            parts.append((index, centre_density(problem, omegas[index], tolerance, steps, max_steps)))
+        return merge(omegas, tolerance, parts)
     n = len(omegas)
     density, error = np.zeros(n), np.full(n, np.inf)
     amplitude, propagation, tail = np.zeros(n), np.zeros(n), np.zeros(n)
@@ -130,19 +169,32 @@ def rounding_floor(steps: int) -> float:
 def _run(problem, omegas, steps):
     """(density, amplitude^2, relative tail error) on a grid of ``steps`` steps per region."""
     n = len(omegas)
+    first = problem.regions[0]
     state = np.zeros((n, 2))
     state[:, 1] = 1.0
     log_scale = np.zeros(n)
+    start = 0.0
+    if problem.dimension != 4:
+        # u = r^s (1 + a_1 r + a_2 r^2), s = (D-2)/2: psi = r^-s u -> 1 at the centre; start on the series
+        start = min(1e-4 * problem.length_scale, 1e-4 / float(np.max(omegas)))
+        s, a0, a1, a2 = (np.broadcast_to(np.asarray(c, dtype=float), omegas.shape)
+                         for c in np.asarray(first.centre_series(0, omegas), dtype=float)[:4])
+        F = 1.0 / float(np.asarray(first.dtortoise_dr(np.array([start]))).reshape(-1)[0])
+        poly = (a0 + a1 * start + a2 * start * start) / a0
+        state = np.stack([poly, F * (s / start * poly + (a1 + 2 * a2 * start) / a0)], axis=1)
+        log_scale = s * np.log(start)
     # the far radius must lie many wavelengths out for the amplitude invariant; the geometric grid makes
     # its cost logarithmic in the radius
-    far = max(FAR * problem.length_scale, 1e3 / float(np.min(omegas)))
+    threshold = continuum_threshold(problem)
+    far = max(FAR * problem.length_scale, 1e3 / float(np.min(np.sqrt(omegas ** 2 - threshold ** 2))))
     interfaces = {i.inner: i for i in problem.interfaces}
     for region in problem.regions:
+        lower = max(region.lower, start)
         if region.upper is None:
             pieces = [(a, b, count, True) for a, b, count in
-                      outer_pieces(max(region.lower, 1e-12), far, steps, problem.length_scale)]
+                      outer_pieces(max(lower, 1e-12), far, steps, problem.length_scale)]
         else:
-            pieces = [(region.lower, region.upper, steps, False)]
+            pieces = [(lower, region.upper, steps, False)]
         for lower, upper, count, geometric in pieces:
             matrix, scale = region_propagator(region, 0, omegas, lower, upper, count, geometric)
             state = np.einsum("nij,nj->ni", matrix, state)
@@ -159,15 +211,30 @@ def _run(problem, omegas, steps):
     farther = _amplitude2(last, np.einsum("nij,nj->ni", matrix, state), omegas, 4 * far) * np.exp(2 * scale)
     tail_error = np.abs(farther - near) / farther
     amplitude2 = farther * np.exp(2 * log_scale)
-    slope = problem.regions[0].dtortoise_dr(np.array([0.0]))[0]
-    density = slope ** 2 / (4 * np.pi ** 2 * omegas * amplitude2)
+    if problem.dimension == 4:   # u = 0, du/dr* = 1 at the centre: psi(0) = du/dr = dr*/dr
+        centre_value = problem.regions[0].dtortoise_dr(np.array([0.0]))[0]
+    else:                        # psi(0) = 1 (the series' normalisation)
+        centre_value = 1.0
+    # |psi(0)|^2 |Y_0|^2 / (pi a^2 k), |Y_0|^2 = 1/(area of the unit (D-2)-sphere)
+    density = centre_value ** 2 / (sphere_area(problem.dimension - 2) * np.pi * amplitude2)
     return density, amplitude2, tail_error
 
 
+def sphere_area(n: int) -> float:
+    """Area of the unit n-sphere, 2 pi^((n+1)/2)/Gamma((n+1)/2): 2 pi (n = 1), 4 pi (n = 2)."""
+    from math import gamma
+
+    return 2 * np.pi ** ((n + 1) / 2) / gamma((n + 1) / 2)
+
+
 def _amplitude2(region, state, omegas, radius):
+    """a^2 k with a^2 = u^2 + u'^2/k^2 the WKB amplitude invariant and k^2 = omega^2 - V the local wave number:
+    the flux, which far away is k_inf A^2 for u -> A sin(k_inf r* + delta).  The half-line normalisation is then
+    1/sqrt(pi k_inf) (delta(omega - omega') in the Klein-Gordon product, dk/domega = omega/k), so the density is
+    (dr*/dr at 0)^2/(4 pi^2 a^2 k); massless, k_inf = omega."""
     V = np.asarray(region.potential(np.array([radius]), 0, 0.0), dtype=float).reshape(-1)[0]
     q = omegas ** 2 - V
-    return state[:, 0] ** 2 + state[:, 1] ** 2 / q
+    return (state[:, 0] ** 2 + state[:, 1] ** 2 / q) * np.sqrt(q)
 
 
 def minkowski_density(omegas) -> np.ndarray:

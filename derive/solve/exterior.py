@@ -168,8 +168,9 @@ def exterior_density(problem, omegas, r0: float, tolerance: float = 1e-10, progr
     inward, outward, e_in, e_out = (np.zeros(n) for _ in range(4))
     quiet = 0
     for l in range(MAX_L + 1):
-        # each term to a quarter of the tolerance (of itself, or of the sum so far): several l contribute
-        t_in, t_out, te_in, te_out = mode_term(problem, l, omegas, r0, tolerance / 4, floor=inward + outward)
+        # each term to a share of the tolerance (of itself, or of the sum so far): about reach + 1 terms count
+        t_in, t_out, te_in, te_out = mode_term(problem, l, omegas, r0, tolerance / (4 + reach),
+                                               floor=inward + outward)
         inward += t_in
         outward += t_out
         e_in += te_in

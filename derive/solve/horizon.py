@@ -61,7 +61,8 @@ def check_supported(problem) -> None:
         raise Unsupported("the outermost region must reach infinity with a short-range or centrifugal tail "
                           "(massless, asymptotically flat), so far")
     if problem.mass != 0.0:
-        raise Unsupported("massive fields are not handled by the solver yet")
+        raise Unsupported("massive fields outside a horizon (Coulomb-like tail, up modes evanescent below the "
+                          "mass) are not handled yet; with a regular centre they are")
 
 
 def _start_state(region, l, omegas, x0):

@@ -1,111 +1,170 @@
 """Spectral density at a static point off the centre: the l-sum (PHYSICS.md section 7).
 
-    density(omega; r0) = sum_l (2l+1)/(4 pi) |U_l|^2,   U_l = u_l(r0)/(r0 A_l sqrt(pi omega)),
+    density(omega; r0) = sum_l (2l+1)/(4 pi) |U_l|^2,   U_l = u_l(r0)/(r0 A_l sqrt(pi k)),
+    k = sqrt(omega^2 - mu^2) (omega when massless),
 
 with u_l the regular solution (u ~ r^{l+1} at the centre, started on the derived Frobenius series at a small
 radius), A_l its amplitude far away.  Logarithmic scales are carried throughout (u ~ r^{l+1} underflows for
-large l).  Each l is refined by grid doubling; the sum stops when the terms have fallen below a hundredth of the
-tolerance for three successive l beyond omega r0* (they then fall faster than geometrically), and the last term
-counts as the truncation error.  Check: in flat space the sum gives omega/(4 pi^2) at every r0 (addition
-theorem, sum_l (2l+1) j_l(x)^2 = 1, DLMF 10.60.12).
+large l).  The point may lie in any region (the march passes through it, crossing interfaces on the way).
 
-Supported: r0 inside the innermost region (which has the regular centre); massless, asymptotically flat.
+Each l is refined frequency by frequency on nested grids (N, 2N, 4N steps in every piece), extrapolated
+(Richardson, fourth order) and accepted when the extrapolations of two successive pairs agree to the tolerance
+of the term itself or of the sum so far, whichever is larger (a term far below the sum needs only absolute
+accuracy).  The sum stops when three successive terms beyond the classical reach omega r0* are below a
+hundredth of the tolerance of the total, and the last term kept counts as the truncation error.  Check: in
+flat space the sum gives omega/(4 pi^2) at every r0 (addition theorem, sum_l (2l+1) j_l(x)^2 = 1, DLMF 10.60.12).
+
+Supported: a regular centre, asymptotically flat, massless or massive (the continuum above the mass).
 """
 
 from __future__ import annotations
 
 import numpy as np
 
-from derive.solve.centre import FAR, DensityResult, Unsupported, check_supported, rounding_floor
+from derive.solve.centre import (FAR, DensityResult, Unsupported, check_supported, continuum_threshold, merge,
+                                 rounding_floor)
 from derive.solve.propagation import outer_pieces, region_propagator
 
 MAX_L = 400
 
 
-def _log_u_at(problem, l, omegas, r0, steps, series):
-    """log|u_l(r0)| - log A_l for every omega (u_l normalised arbitrarily; the ratio is what matters)."""
-    first = problem.regions[0]
+def _pieces(problem, l, r0, steps, lowest, highest):
+    """(region index, a, b, geometric, steps) from the series start to the far radius, cut at r0; the index of
+    the first piece beyond r0; the series start r_s and the far radius."""
+    r_s = 0.0 if l == 0 else min(1e-3 * r0, 1e-3 / highest)
+    far = max(FAR * problem.length_scale, 1e3 / lowest, 1e6 * np.sqrt(l * (l + 1) + 1.0) / lowest)
+    pieces = []
+    for index, region in enumerate(problem.regions):
+        spans = []
+        lower = region.lower
+        if index == 0:   # from the series start: geometric in r when it starts off the centre (l > 0)
+            top = region.upper if region.upper is not None else 2 * max(r0, problem.length_scale)
+            spans.append((r_s, top, l > 0, steps))
+            lower = top
+        if region.upper is None:
+            spans += [(a, b, True, n) for a, b, n in outer_pieces(lower, far, steps, problem.length_scale)]
+        elif index > 0:
+            spans.append((lower, region.upper, False, steps))
+        for a, b, geometric, n in spans:
+            if b <= a:
+                continue
+            if a < r0 < b:
+                fraction = np.log(r0 / a) / np.log(b / a) if geometric else (r0 - a) / (b - a)
+                first = max(2, int(round(n * fraction)))
+                pieces.append((index, a, r0, geometric, first))
+                pieces.append((index, r0, b, geometric, max(2, n - first)))
+            else:
+                pieces.append((index, a, b, geometric, n))
+    after = next(i for i, piece in enumerate(pieces) if piece[1] >= r0)
+    return pieces, after, r_s, far
+
+
+def _log_u_at(problem, l, omegas, r0, steps, series, fixed):
+    """log|u_l(r0)| - log A_l for every omega (u_l normalised arbitrarily; the ratio is what matters).
+    ``fixed`` = (lowest, highest) frequency of the whole set: the grid is the same for every subset."""
     n = len(omegas)
+    multiple = max(1, steps // 16)
+    pieces, after, r_s, far = _pieces(problem, l, r0, 16, *fixed)
     if l == 0:
-        r_s = 0.0
         state = np.tile([0.0, 1.0], (n, 1))
         log_scale = np.zeros(n)
     else:
+        first = problem.regions[0]
         coefficients = np.asarray(series(l, omegas), dtype=float)
         s, a0, a1, a2 = (np.broadcast_to(c, omegas.shape) for c in coefficients[:4])
-        r_s = min(1e-3 * r0, 1e-3 / float(np.max(omegas)))
         F = 1.0 / float(np.asarray(first.dtortoise_dr(np.array([r_s])))[0])
         poly = a0 + a1 * r_s + a2 * r_s * r_s
         state = np.stack([poly, F * (s / r_s * poly + a1 + 2 * a2 * r_s)], axis=1)
         log_scale = s * np.log(r_s)
-    pieces = [(r_s, r0, l > 0, "to r0")]
-    upper = first.upper
-    far = max(FAR * problem.length_scale, 1e3 / float(np.min(omegas)),
-              1e6 * np.sqrt(l * (l + 1) + 1.0) / float(np.min(omegas)))
     log_u0 = None
     interfaces = {i.inner: i for i in problem.interfaces}
-    for index, region in enumerate(problem.regions):
-        if index == 0:
-            pieces_here = pieces + ([(r0, upper, False, "")] if upper is not None else
-                                    [(a, b, True, "") for a, b, _ in outer_pieces(r0, far, steps,
-                                                                                 problem.length_scale)])
-        elif region.upper is None:
-            pieces_here = [(a, b, True, "") for a, b, _ in outer_pieces(region.lower, far, steps,
-                                                                       problem.length_scale)]
-        else:
-            pieces_here = [(region.lower, region.upper, False, "")]
-        for a, b, geometric, label in pieces_here:
-            if b > a:
-                matrix, scale = region_propagator(region, l, omegas, a, b, steps, geometric)
-                state = np.einsum("nij,nj->ni", matrix, state)
-                size = np.max(np.abs(state), axis=1)
-                state = state / size[:, None]
-                log_scale = log_scale + scale + np.log(size)
-            if label == "to r0":
-                log_u0 = np.log(np.abs(state[:, 0])) + log_scale
-        if region.name in interfaces:
+    for position, (index, a, b, geometric, count) in enumerate(pieces):
+        region = problem.regions[index]
+        if position == after:
+            log_u0 = np.log(np.abs(state[:, 0])) + log_scale
+        matrix, scale = region_propagator(region, l, omegas, a, b, count * multiple, geometric)
+        state = np.einsum("nij,nj->ni", matrix, state)
+        size = np.max(np.abs(state), axis=1)
+        state = state / size[:, None]
+        log_scale = log_scale + scale + np.log(size)
+        last_of_region = position + 1 == len(pieces) or pieces[position + 1][0] != index
+        if last_of_region and region.name in interfaces:
             transfer = np.broadcast_to(np.asarray(interfaces[region.name].transfer(l, omegas), dtype=float),
                                        (2, 2, n))
             state = np.einsum("ijn,nj->ni", transfer, state)
     last = problem.regions[-1]
     V = float(np.asarray(last.potential(np.array([far]), l, 0.0)).reshape(-1)[0])
-    amplitude2 = state[:, 0] ** 2 + state[:, 1] ** 2 / (omegas ** 2 - V)
+    q = omegas ** 2 - V          # the local wave number squared: the flux a^2 k normalises (centre.py)
+    amplitude2 = (state[:, 0] ** 2 + state[:, 1] ** 2 / q) * np.sqrt(q)
     log_amplitude = 0.5 * np.log(amplitude2) + log_scale
     return log_u0 - log_amplitude
 
 
-def _term(problem, l, omegas, r0, steps, series, tolerance, max_steps=4096):
-    """(2l+1)/(4 pi) |U_l|^2 and its error, refined by grid doubling."""
-    coarse = _log_u_at(problem, l, omegas, r0, steps, series)
+def _term_values(problem, l, omegas, r0, steps, series, fixed):
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        log_u = _log_u_at(problem, l, omegas, r0, steps, series, fixed)
+        return (2 * l + 1) / (4 * np.pi) * np.exp(2 * log_u) / (r0 * r0 * np.pi)
+
+
+def _term(problem, l, omegas, r0, series, tolerance, floor, steps=32, max_steps=8192):
+    """(2l+1)/(4 pi) |U_l|^2 and its error, refined per frequency (see the module docstring)."""
+    n = len(omegas)
+    fixed = (float(np.min(np.sqrt(omegas ** 2 - continuum_threshold(problem) ** 2))), float(np.max(omegas)))
+    value, error = np.zeros(n), np.zeros(n)
+    active = np.arange(n)
     count = steps
-    while True:
-        fine = _log_u_at(problem, l, omegas, r0, 2 * count, series)
-        term = (2 * l + 1) / (4 * np.pi) * np.exp(2 * fine) / (r0 * r0 * np.pi * omegas)
-        with np.errstate(over="ignore"):   # a very coarse first grid can be off by orders of magnitude
-            relative = np.abs(np.expm1(2 * (fine - coarse)))
-        if np.all(relative <= 0.5 * tolerance) or 2 * count >= max_steps:
-            return term, term * (relative + rounding_floor(2 * count))
+    coarse = _term_values(problem, l, omegas, r0, count, series, fixed)
+    fine = _term_values(problem, l, omegas, r0, 2 * count, series, fixed)
+    while len(active):
+        finest = _term_values(problem, l, omegas[active], r0, 4 * count, series, fixed)
+        with np.errstate(invalid="ignore", over="ignore"):
+            before = fine + (fine - coarse) / 15
+            after = finest + (finest - fine) / 15
+            change = np.abs(after - before)
+        scale = np.maximum(np.abs(after), floor[active])
+        done = change <= tolerance * scale
+        if 4 * count >= max_steps:
+            done[:] = True
+        index = active[done]
+        value[index] = after[done]
+        error[index] = change[done] + rounding_floor(4 * count) * np.abs(after[done])
+        bad = ~np.isfinite(value[index] + error[index])
+        error[index[bad]] = np.inf
+        active = active[~done]
+        coarse, fine = fine[~done], finest[~done]
         count *= 2
-        coarse = fine
+    return value, error
 
 
-def density_off_centre(problem, omegas, r0: float, tolerance: float = 1e-10, steps: int = 48,
-                       series=None) -> DensityResult:
-    """The l-summed density per unit omega at radius r0 (> 0) inside the innermost region."""
+def density_off_centre(problem, omegas, r0: float, tolerance: float = 1e-10, series=None) -> DensityResult:
+    """The l-summed density per unit omega at radius r0 (> 0), in any region of a spacetime with a centre."""
     check_supported(problem)
     first = problem.regions[0]
-    if not (0 < r0 and (first.upper is None or r0 < first.upper)):
-        raise Unsupported("the point must lie inside the innermost region (the one with the regular centre)")
+    if not r0 > 0:
+        raise Unsupported("the point must lie off the centre (r0 > 0); at r0 = 0 use the centre density")
     series = series or first.centre_series
     if series is None:
         raise Unsupported("the centre's series kernel is needed for l > 0")
     omegas = np.asarray(omegas, dtype=float)
+    threshold = continuum_threshold(problem)
+    if threshold > 0 and np.any(omegas <= threshold):   # no continuum below the mass (see centre.py)
+        above = np.nonzero(omegas > threshold)[0]
+        parts = [(above, density_off_centre(problem, omegas[above], r0, tolerance, series))] if len(above) else []
+        return merge(omegas, tolerance, parts)
     total = np.zeros(len(omegas))
     error = np.zeros(len(omegas))
     quiet = 0
-    reach = float(np.max(omegas)) * r0 * float(np.max(first.dtortoise_dr(np.linspace(0, r0, 9))))
+    reach = 0.0      # omega_max times the tortoise distance from the centre to r0
+    for region in problem.regions:
+        top = min(r0, region.upper) if region.upper is not None else r0
+        if top > region.lower:
+            nodes, weights = np.polynomial.legendre.leggauss(20)
+            half = (top - region.lower) / 2
+            reach += float(np.sum(weights * region.dtortoise_dr(region.lower + (nodes + 1) * half)) * half)
+    reach *= float(np.max(omegas))
     for l in range(MAX_L + 1):
-        term, term_error = _term(problem, l, omegas, r0, steps, series, tolerance)
+        # each term to a share of the tolerance (of itself or of the sum so far): about reach + 1 terms count
+        term, term_error = _term(problem, l, omegas, r0, series, tolerance / (4 + reach), total)
         total += term
         error += term_error
         small = np.all(term <= 0.01 * tolerance * total)
