@@ -100,6 +100,8 @@ def bound_states_possible(problem) -> bool:
 
 def continuum_threshold(problem) -> float:
     """The lowest frequency of the continuum: sqrt(V(infinity)), the field's mass times the lapse there."""
+    if problem.mass == 0.0:
+        return 0.0
     last = problem.regions[-1]
     far = FAR * 1e6 * problem.length_scale
     return float(np.sqrt(max(0.0, float(np.asarray(last.potential(np.array([far]), 0, 0.0)).reshape(-1)[0]))))
