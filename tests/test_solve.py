@@ -176,3 +176,22 @@ def test_flat_2plus1_density_at_the_centre(write_spec):
     result = centre_density(problem, omegas)
     assert result.ok, result.message()
     np.testing.assert_allclose(result.density * 4 * np.pi, 1.0, rtol=1e-10)
+
+
+@pytest.mark.parametrize("dimension", [3, 5])
+def test_flat_densities_in_other_dimensions(write_spec, dimension):
+    # Flat D dimensions, massless: S = area(S^(D-2)) omega^(D-3)/(2 (2 pi)^(D-1)) (from W = int d^(D-1)k/((2pi)^(D-1)
+    # 2k) e^{-ikt}; common practice): 1/(4 pi) in 2+1, omega^2/(16 pi^2) in 4+1; at the centre and, summed over
+    # the harmonics of the (D-2)-sphere (addition theorem), off it.
+    from derive.solve.offcentre import density_off_centre
+
+    names = {3: '["t", "r", "phi"]', 5: '["t", "r", "a", "b", "c"]'}[dimension]
+    sphere = {3: "r**2*dphi**2", 5: "r**2*(da**2 + sin(a)**2*(db**2 + sin(b)**2*dc**2))"}[dimension]
+    text = FLAT.replace('names = ["t", "r", "theta", "phi"]', f"names = {names}").replace(
+        "r**2*(dtheta**2 + sin(theta)**2*dphi**2)", sphere)
+    problem = problem_of(write_spec(text))
+    omegas = np.array([0.5, 2.0, 7.0])
+    exact = {3: np.full(3, 1 / (4 * np.pi)), 5: omegas ** 2 / (16 * np.pi ** 2)}[dimension]
+    for result in (centre_density(problem, omegas), density_off_centre(problem, omegas, 0.6)):
+        assert result.ok, result.message()
+        np.testing.assert_allclose(result.density, exact, rtol=1e-9)

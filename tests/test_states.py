@@ -117,3 +117,19 @@ def test_hartle_hawking_detailed_balance_at_the_tolman_temperature(schwarzschild
         deviations.append(abs(np.log(ratio) - gap / T_loc))
     assert deviations[1] < 0.01
     assert deviations[1] < deviations[0] / 3
+
+
+def test_boulware_density_approaches_the_local_flat_one_in_five_dimensions():
+    # Equivalence principle (common practice): at frequencies far above the curvature scale the Boulware density
+    # per unit proper frequency approaches Minkowski's, nu^2/(16 pi^2) in 4+1 (from W = int d^4k/((2pi)^4 2k)
+    # e^{-ikt}). Tangherlini (f = 1 - m/r^2, m = 1) at r0 = 2: within a few per cent at nu = 3.5-7 and closer at
+    # the higher frequency -- a check on the weights of the 3-sphere's harmonics, (l+1)^2/(2 pi^2), and r0^3.
+    problem = numeric_problem(KernelSet(derive.load(os.path.join(ROOT, "worked", "tangherlini_5d", "spec.toml"))))
+    omegas = np.array([3.0, 6.0])
+    result = exterior_density(problem, omegas, 2.0, tolerance=1e-7)
+    assert result.ok, result.message()
+    sqrt_f0 = np.sqrt(1 - 1 / 4.0)
+    ratio = sqrt_f0 * result.density / ((omegas / sqrt_f0) ** 2 / (16 * np.pi ** 2))
+    assert np.all(np.abs(ratio - 1) < 0.03)
+    assert abs(ratio[1] - 1) < abs(ratio[0] - 1)
+    assert result.temperature == pytest.approx(1 / (2 * np.pi), rel=1e-12)   # kappa = f'(1)/2 = 1

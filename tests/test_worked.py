@@ -104,3 +104,18 @@ def test_schwarzschild_example_response_in_three_states(capsys):
     assert abs(states["boulware"] * 4 * np.pi - 1) < 0.05
     assert data["local_temperature"] == pytest.approx(1 / (8 * np.pi * np.sqrt(1 - 2 / 6)), rel=1e-12)
     assert all(e < 1e-8 * abs(f) for f, e in zip(data["response"], data["error"]))
+
+
+@pytest.mark.slow
+def test_tangherlini_example_response(capsys):
+    # The README's figures for worked/tangherlini_5d: the Minkowski reference F(0) = 1/(32 sqrt(pi) sigma) for
+    # S = nu^2/(16 pi^2) in 4+1 (integrated by hand), and the three states at zero gap (derive's own results).
+    assert main(["response", spec("tangherlini_5d"), "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    zero = data["gaps"].index(0.0)
+    assert data["reference"]["response"][zero] == pytest.approx(1 / (32 * np.sqrt(np.pi) * 5), rel=1e-12)
+    states = {name: value["response"][zero] for name, value in data["states"].items()}
+    assert states["boulware"] == pytest.approx(3.790e-3, abs=1e-6)
+    assert states["unruh"] == pytest.approx(6.299e-3, abs=1e-6)
+    assert states["hartle-hawking"] == pytest.approx(9.436e-3, abs=1e-6)
+    assert data["local_temperature"] == pytest.approx(1 / (2 * np.pi * np.sqrt(0.75)), rel=1e-12)

@@ -59,7 +59,8 @@ def frequency_nodes(gaps, switching: Switching, thermal: bool = False, threshold
     return coarse, fine
 
 
-def response(gaps, switching: Switching, density_at, thermal: bool = False, threshold: float = 0.0) -> Response:
+def response(gaps, switching: Switching, density_at, thermal: bool = False, threshold: float = 0.0,
+             dimension: int = 4) -> Response:
     """F(Omega) for every gap.
 
     Parameters
@@ -84,7 +85,7 @@ def response(gaps, switching: Switching, density_at, thermal: bool = False, thre
         size = size + np.abs(weight_f) @ (w_f * np.abs(S[split:]))
         mass = mass + float(w_f @ np.abs(S[split:]))
     # the transform's own error (absolute, on |chi_hat|^2) and the part of the integral beyond the reach
-    quadrature_error = np.abs(F_f - F_c) + switching.power_error * mass + switching.tail_error(gaps)
+    quadrature_error = np.abs(F_f - F_c) + switching.power_error * mass + switching.tail_error(gaps, dimension)
     floor = 64 * np.finfo(float).eps * size
     return Response(gaps, F_f, quadrature_error + density_error + floor, quadrature_error, density_error)
 

@@ -46,13 +46,18 @@ def _exterior(problem, omegas, r0, tolerance, progress):
 
 
 def flat_density(dimension: int, mu: float):
-    """Minkowski's spectral density per unit proper frequency (PHYSICS.md section 7): sqrt(nu^2 - mu^2)/(4 pi^2)
-    in 3+1 and 1/(4 pi) above the mass in 2+1 (Birrell & Davies 1982, ch. 3)."""
-    if dimension == 4:
-        return lambda nu: (np.sqrt(np.maximum(nu * nu - mu * mu, 0.0)) / (4 * np.pi ** 2), np.zeros_like(nu))
-    if dimension == 3:
-        return lambda nu: (np.where(nu > mu, 1 / (4 * np.pi), 0.0), np.zeros_like(nu))
-    raise Unsupported(f"no Minkowski reference in D = {dimension} yet (3+1 and 2+1 only): compare with a spec")
+    """Minkowski's spectral density per unit proper frequency in D dimensions, from
+    W = int d^(D-1)k/((2 pi)^(D-1) 2 omega_k) e^{-i omega_k t}: S = area(S^(D-2)) k^(D-3)/(2 (2 pi)^(D-1)) for
+    nu > mu, k = sqrt(nu^2 - mu^2); sqrt(nu^2 - mu^2)/(4 pi^2) in 3+1 and 1/(4 pi) in 2+1 (PHYSICS.md section 7;
+    Birrell & Davies 1982, ch. 3)."""
+    from derive.solve.centre import sphere_area
+
+    factor = sphere_area(dimension - 2) / (2 * (2 * np.pi) ** (dimension - 1))
+
+    def density(nu):
+        k = np.sqrt(np.maximum(nu * nu - mu * mu, 0.0))
+        return np.where(nu > mu, factor * k ** (dimension - 3), 0.0), np.zeros_like(nu)
+    return density
 
 
 def _sqrt_f(problem, r0: float) -> float:
@@ -107,17 +112,19 @@ def detector_response(problem, detector, tolerance: float = 1e-10, gaps=None, st
     """F(Omega) with errors for a static detector (see module docstring)."""
     state = detector.state if state is None else state
     switching = switching_from_spec({"shape": detector.shape}, detector.switching, detector.profile)
-    if switching.decay is not None and switching.decay <= 2:
-        raise Unsupported("with a sharp switching (a jump in chi) |chi_hat|^2 falls only like k^-2, and the "
-                          "response of a detector coupled to a massless field in 3+1 dimensions diverges "
-                          "logarithmically in the ultraviolet (Svaiter & Svaiter, Phys. Rev. D 46, 5267 (1992); "
-                          "from memory): choose a smooth switching (gaussian, bump, cos2, sin4)")
+    D = problem.dimension
+    if switching.decay is not None and switching.decay <= D - 2:
+        raise Unsupported(f"|chi_hat|^2 of this switching falls only like k^-{switching.decay} (a jump in chi or "
+                          f"a low derivative), while the density grows like nu^{D - 3} in D = {D}: the response "
+                          "diverges in the ultraviolet (logarithmically for a sharp switching in 3+1; Svaiter & "
+                          "Svaiter, Phys. Rev. D 46, 5267 (1992), from memory): choose a smoother switching "
+                          "(gaussian, bump, cos2, sin4)")
     gaps = np.asarray(detector.gaps if gaps is None else gaps, dtype=float)
     density_at, sqrt_f0, thermal = proper_density(problem, tolerance, detector.radius, state, progress)
     from derive.solve.centre import continuum_threshold
 
     threshold = 0.0 if has_horizon(problem) else continuum_threshold(problem) / sqrt_f0
-    return response(gaps, switching, density_at, thermal, threshold), switching, sqrt_f0
+    return response(gaps, switching, density_at, thermal, threshold, D), switching, sqrt_f0
 
 
 def study(problem, detector, reference_problem=None, tolerance: float = 1e-10, gaps=None, progress=None) -> dict:
@@ -145,7 +152,8 @@ def study(problem, detector, reference_problem=None, tolerance: float = 1e-10, g
                 ref = minkowski_gaussian_response(gaps, switching.width)
                 ref_err = 1e-15 * np.abs(ref)
             else:   # the same quadrature with the exact flat density (PHYSICS.md section 7)
-                flat = response(gaps, switching, flat_density(problem.dimension, mu), threshold=mu)
+                flat = response(gaps, switching, flat_density(problem.dimension, mu), threshold=mu,
+                                dimension=problem.dimension)
                 ref, ref_err = flat.response, flat.error
         else:
             reference, _, _ = detector_response(reference_problem, detector, tolerance, gaps)

@@ -71,7 +71,7 @@ class Switching:
         so the tail is erfc(T/sigma) and T = sigma erfcinv(tail)."""
         return float(2 * self.width * erfcinv(self.tail))
 
-    def tail_error(self, gaps) -> np.ndarray:
+    def tail_error(self, gaps, dimension: int = 4) -> np.ndarray:
         return np.zeros(len(np.atleast_1d(gaps)))
 
 
@@ -174,17 +174,26 @@ class CompactSwitching(Switching):
         index = int(np.searchsorted(cumulative, target))
         return float(2 * tau[min(index, len(tau) - 1)])
 
-    def tail_error(self, gaps) -> np.ndarray:
-        """A bound on the part of F beyond the reach: int_reach^inf 4 nu/(4 pi^2) A (nu - |Omega|)^-p dnu."""
+    def tail_error(self, gaps, dimension: int = 4) -> np.ndarray:
+        """A bound on the part of F beyond the reach, with four times the flat density c_D nu^(D-3) (c_D =
+        area(S^(D-2))/(2 (2 pi)^(D-1))): int_start^inf 4 c_D (x + |Omega|)^(D-3) A x^-p dx, expanded binomially."""
+        from math import comb
+
+        from derive.solve.centre import sphere_area
+
         gaps = np.abs(np.atleast_1d(np.asarray(gaps, dtype=float)))
-        p = self.algebraic
+        p, q = self.algebraic, dimension - 3
         K = self.reach
+        c = sphere_area(dimension - 2) / (2 * (2 * np.pi) ** (dimension - 1))
         if p is None:   # faster than any power: the weight beyond the reach, over a stretch of K, as a bound
             peak = float(np.max(self.power(np.linspace(K, 2 * K, 200))))
-            return np.full(len(gaps), 4 / (4 * np.pi ** 2) * peak * (K + gaps.max()) * K)
+            return np.full(len(gaps), 4 * c * peak * (K + gaps.max()) ** q * K)
+        if p <= q + 1:
+            return np.full(len(gaps), np.inf)
         A = _envelope(self, K)
         start = np.maximum(K - gaps, K / 2)
-        return 4 / (4 * np.pi ** 2) * A * (start ** (2 - p) / (p - 2) + gaps * start ** (1 - p) / (p - 1))
+        total = sum(comb(q, j) * gaps ** (q - j) * start ** (j - p + 1) / (p - j - 1) for j in range(q + 1))
+        return 4 * c * A * total
 
 
 _CACHE: dict = {}

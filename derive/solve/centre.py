@@ -222,6 +222,15 @@ def _run(problem, omegas, steps):
     return density, amplitude2, tail_error
 
 
+def harmonic_weight(l: int, n: int) -> float:
+    """sum_m |Y_lm|^2 on the unit n-sphere (addition theorem): the number of harmonics of degree l,
+    (2l + n - 1)(l + n - 2)!/(l! (n - 1)!), over the sphere's area; (2l + 1)/(4 pi) for n = 2."""
+    from math import factorial
+
+    count = 1 if l == 0 else (2 * l + n - 1) * factorial(l + n - 2) // (factorial(l) * factorial(n - 1))
+    return count / sphere_area(n)
+
+
 def sphere_area(n: int) -> float:
     """Area of the unit n-sphere, 2 pi^((n+1)/2)/Gamma((n+1)/2): 2 pi (n = 1), 4 pi (n = 2)."""
     from math import gamma

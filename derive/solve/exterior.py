@@ -14,7 +14,9 @@ propagator (derive.solve.horizon); each is the solution that grows toward r0 fro
 obtained as a small difference of large numbers (writing u_up as a combination of u_H and its conjugate would
 lose every digit under the barrier).  Per unit omega of the spec's time t, at radius r0,
 
-    in(omega)  = sum_l (2l+1)/(4 pi) |u_in(r0)|^2 / (4 pi omega r0^2),  and the same for up.
+    in(omega)  = sum_l (2l+1)/(4 pi) |u_in(r0)|^2 / (4 pi omega r0^2),  and the same for up
+
+in 3+1 (in D dimensions the weight of the harmonics of degree l on the (D-2)-sphere, and r0^(D-2)).
 
 States (a thermal mode contributes (1 + n) at +omega and n at -omega, n = 1/(e^{omega/T_H} - 1)):
   Boulware: in + up at omega > 0;  Hartle-Hawking: in and up thermal;  Unruh: only up thermal.
@@ -32,7 +34,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from derive.solve.centre import Unsupported, rounding_floor
+from derive.solve.centre import Unsupported, harmonic_weight, rounding_floor
 from derive.solve.horizon import START, _run, check_supported, layout, shortfall
 
 MAX_L = 400
@@ -88,8 +90,9 @@ class ExteriorDensity:
         return shortfall(self.omega, self.density, self.error, self.tolerance)
 
 
-def _values(march, l, omegas, r0):
-    weight = (2 * l + 1) / (4 * np.pi) / (4 * np.pi * omegas * r0 * r0)
+def _values(problem, march, l, omegas, r0):
+    n = problem.dimension - 2
+    weight = harmonic_weight(l, n) / (4 * np.pi * omegas * r0 ** n)
     return weight * np.exp(march.log_horizon2), weight * np.exp(march.log_infinity2)
 
 
@@ -108,11 +111,11 @@ def mode_term(problem, l, omegas, r0, tolerance, floor=None, steps=64, max_steps
     active = np.arange(n)
     count = steps
     fixed = layout(problem, l, omegas)
-    coarse = _values(_run(problem, l, omegas, count, START, probe=r0, fixed=fixed), l, omegas, r0)
-    fine = _values(_run(problem, l, omegas, 2 * count, START, probe=r0, fixed=fixed), l, omegas, r0)
+    coarse = _values(problem, _run(problem, l, omegas, count, START, probe=r0, fixed=fixed), l, omegas, r0)
+    fine = _values(problem, _run(problem, l, omegas, 2 * count, START, probe=r0, fixed=fixed), l, omegas, r0)
     while len(active):
         w = omegas[active]
-        finest = _values(_run(problem, l, w, 4 * count, START, probe=r0, fixed=fixed), l, w, r0)
+        finest = _values(problem, _run(problem, l, w, 4 * count, START, probe=r0, fixed=fixed), l, w, r0)
         with np.errstate(invalid="ignore", over="ignore"):
             before = [fine[p] + (fine[p] - coarse[p]) / 15 for p in (0, 1)]
             after = [finest[p] + (finest[p] - fine[p]) / 15 for p in (0, 1)]
@@ -127,8 +130,9 @@ def mode_term(problem, l, omegas, r0, tolerance, floor=None, steps=64, max_steps
             wd = omegas[index]
             # series truncation and tail: measured on the coarsest of the three grids (they do not depend on the
             # resolution, and only the moved piece's grid differs between the two runs)
-            moved = _values(_run(problem, l, wd, count, START / 2, probe=r0, fixed=fixed), l, wd, r0)
-            farther = _values(_run(problem, l, wd, count, START, far_factor=4.0, probe=r0, fixed=fixed),
+            moved = _values(problem, _run(problem, l, wd, count, START / 2, probe=r0, fixed=fixed),
+                            l, wd, r0)
+            farther = _values(problem, _run(problem, l, wd, count, START, far_factor=4.0, probe=r0, fixed=fixed),
                               l, wd, r0)
             for part, (value, error) in enumerate(((inward, e_in), (outward, e_out))):
                 raw = coarse[part][done]
@@ -152,9 +156,6 @@ def mode_term(problem, l, omegas, r0, tolerance, floor=None, steps=64, max_steps
 def exterior_density(problem, omegas, r0: float, tolerance: float = 1e-10, progress=None) -> ExteriorDensity:
     """The in and up spectral densities at radius r0 outside the horizon, summed over l to the tolerance."""
     check_supported(problem)
-    if problem.dimension != 4:
-        raise Unsupported(f"spectral densities are implemented in 3+1 dimensions (this spacetime has D = "
-                          f"{problem.dimension}); greybody factors work in any D")
     first = problem.regions[0]
     if not r0 > first.lower:
         raise Unsupported(f"the point r = {r0:g} must lie outside the horizon r = {first.lower:g}")

@@ -13,6 +13,8 @@ of the term itself or of the sum so far, whichever is larger (a term far below t
 accuracy).  The sum stops when three successive terms beyond the classical reach omega r0* are below a
 hundredth of the tolerance of the total, and the last term kept counts as the truncation error.  Check: in
 flat space the sum gives omega/(4 pi^2) at every r0 (addition theorem, sum_l (2l+1) j_l(x)^2 = 1, DLMF 10.60.12).
+In D dimensions (2l+1)/(4 pi) becomes the weight of the degree-l harmonics on the (D-2)-sphere and r0^2 becomes
+r0^(D-2); l = 0 then also starts on the series (u ~ r^((D-2)/2)).
 
 Supported: a regular centre, asymptotically flat, massless or massive (the continuum above the mass).
 """
@@ -21,8 +23,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from derive.solve.centre import (FAR, DensityResult, Unsupported, check_supported, continuum_threshold, merge,
-                                 rounding_floor)
+from derive.solve.centre import (FAR, DensityResult, Unsupported, check_supported, continuum_threshold,
+                                 harmonic_weight, merge, rounding_floor)
 from derive.solve.propagation import outer_pieces, region_propagator
 
 MAX_L = 400
@@ -31,7 +33,7 @@ MAX_L = 400
 def _pieces(problem, l, r0, steps, lowest, highest):
     """(region index, a, b, geometric, steps) from the series start to the far radius, cut at r0; the index of
     the first piece beyond r0; the series start r_s and the far radius."""
-    r_s = 0.0 if l == 0 else min(1e-3 * r0, 1e-3 / highest)
+    r_s = 0.0 if (l == 0 and problem.dimension == 4) else min(1e-3 * r0, 1e-3 / highest)
     far = max(FAR * problem.length_scale, 1e3 / lowest, 1e6 * np.sqrt(l * (l + 1) + 1.0) / lowest)
     pieces = []
     for index, region in enumerate(problem.regions):
@@ -39,7 +41,7 @@ def _pieces(problem, l, r0, steps, lowest, highest):
         lower = region.lower
         if index == 0:   # from the series start: geometric in r when it starts off the centre (l > 0)
             top = region.upper if region.upper is not None else 2 * max(r0, problem.length_scale)
-            spans.append((r_s, top, l > 0, steps))
+            spans.append((r_s, top, r_s > 0, steps))
             lower = top
         if region.upper is None:
             spans += [(a, b, True, n) for a, b, n in outer_pieces(lower, far, steps, problem.length_scale)]
@@ -65,7 +67,7 @@ def _log_u_at(problem, l, omegas, r0, steps, series, fixed):
     n = len(omegas)
     multiple = max(1, steps // 16)
     pieces, after, r_s, far = _pieces(problem, l, r0, 16, *fixed)
-    if l == 0:
+    if r_s == 0.0:
         state = np.tile([0.0, 1.0], (n, 1))
         log_scale = np.zeros(n)
     else:
@@ -103,7 +105,8 @@ def _log_u_at(problem, l, omegas, r0, steps, series, fixed):
 def _term_values(problem, l, omegas, r0, steps, series, fixed):
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
         log_u = _log_u_at(problem, l, omegas, r0, steps, series, fixed)
-        return (2 * l + 1) / (4 * np.pi) * np.exp(2 * log_u) / (r0 * r0 * np.pi)
+        n = problem.dimension - 2
+        return harmonic_weight(l, n) * np.exp(2 * log_u) / (r0 ** n * np.pi)
 
 
 def _term(problem, l, omegas, r0, series, tolerance, floor, steps=32, max_steps=8192):
@@ -138,7 +141,7 @@ def _term(problem, l, omegas, r0, series, tolerance, floor, steps=32, max_steps=
 
 def density_off_centre(problem, omegas, r0: float, tolerance: float = 1e-10, series=None) -> DensityResult:
     """The l-summed density per unit omega at radius r0 (> 0), in any region of a spacetime with a centre."""
-    check_supported(problem)
+    check_supported(problem, any_dimension=True)
     first = problem.regions[0]
     if not r0 > 0:
         raise Unsupported("the point must lie off the centre (r0 > 0); at r0 = 0 use the centre density")
