@@ -60,8 +60,9 @@ def _plain_summary(results, alpha, coupling, sigmas) -> str:
         "zero: no signal from the shell is needed, because the field's vacuum inside is the ground state of the "
         "whole spacetime and differs from the Minkowski vacuum even where the geometry is exactly flat (as in a "
         "Casimir cavity). What locality removes is only the part carried by signals that return from the shell.",
-        "- Every number above carries its error estimate (modes to about 1e-10, quadrature and tails included); "
-        "only the static vacuum and a detector at the centre are computed by this version.",
+        "- Every number above carries its error estimate (modes to about 1e-10, quadrature and tails included). "
+        "What it leaves out: a probe that is not perfectly still, or a field with a mass (its bound states around "
+        "the shell are not computed); off-centre probes and black holes in their three states are in worked/.",
     ]
     return "\n".join(lines)
 

@@ -162,6 +162,13 @@ BASE_STEPS = 16
 
 
 def _run(problem, l, omegas, steps, start, far_factor=1.0, probe=None, fixed=None) -> March:
+    # a grid too coarse for a deeply evanescent stretch overflows to inf/nan; refinement (or the error estimate,
+    # which then stays non-finite and fails the tolerance) deals with it, so numpy's warnings are only noise here
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        return _march(problem, l, omegas, steps, start, far_factor, probe, fixed)
+
+
+def _march(problem, l, omegas, steps, start, far_factor, probe, fixed) -> March:
     # the pieces and their step counts are laid out once at a base resolution and multiplied, so that the grid
     # of 2N steps refines the grid of N steps node for node: the error then falls cleanly as N^-4 and two
     # resolutions can be extrapolated (Richardson; see derive.solve.exterior)
