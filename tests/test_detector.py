@@ -255,6 +255,9 @@ def test_flat_2plus1_gaussian_response(write_spec):
     direct = [quad(lambda nu: 2 * np.pi * sigma ** 2 * np.exp(-(sigma * (g + nu)) ** 2) / (4 * np.pi), 0, np.inf,
                    epsrel=1e-13)[0] for g in result["gaps"]]
     np.testing.assert_allclose(closed, direct, rtol=1e-12)
+    # REFERENCES.md "Detectors" (2+1, sigma = 1; computed independently there): 0.443113462726379 at Omega = 0
+    assert np.sqrt(np.pi) / 4 * erfc(0.0) == pytest.approx(0.443113462726379, rel=1e-14)
+    assert np.sqrt(np.pi) / 4 * erfc(1.0) == pytest.approx(0.06970139632016549, rel=1e-13)
     np.testing.assert_allclose(result["response"], closed, rtol=1e-9)
     assert np.all(np.abs(result["relative_difference"]) <= 1e-9)
 

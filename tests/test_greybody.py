@@ -57,3 +57,21 @@ def test_high_frequency_absorption_cross_section(schwarzschild):
     x = 2 * np.pi * 3 * np.sqrt(3) * M * omega[0]
     expected = 27 * np.pi * M ** 2 * (1 - 8 * np.pi * np.exp(-np.pi) * np.sin(x) / x)
     assert sigma == pytest.approx(expected, rel=2e-3)
+
+
+def test_hawking_emission_rate_of_a_massless_scalar(schwarzschild):
+    # REFERENCES.md "Scattering and spectra": dE/dt = 7.44e-5/M^2 for a massless scalar (from memory there;
+    # recomputed independently as 7.4387e-5), about 90% from l = 0 (Page, Phys. Rev. D 13, 198 (1976)):
+    # dE/dt = sum_l (2l+1) int domega/(2 pi) omega |T_l|^2/(e^{8 pi M omega} - 1).
+    x, w = np.polynomial.legendre.leggauss(16)
+    edges = np.array([0.0, 0.05, 0.15, 0.3, 0.5, 0.8])      # e^{-8 pi 0.8} < 2e-9: the rest is negligible
+    nodes = np.concatenate([(a + b) / 2 + (b - a) / 2 * x for a, b in zip(edges[:-1], edges[1:])])
+    weights = np.concatenate([(b - a) / 2 * w for a, b in zip(edges[:-1], edges[1:])])
+    terms = []
+    for l in range(4):
+        T = transmission(schwarzschild, l, nodes, tolerance=1e-7)
+        assert T.ok, T.message()
+        terms.append((2 * l + 1) * np.sum(weights * nodes * T.transmission / np.expm1(8 * np.pi * M * nodes))
+                     / (2 * np.pi))
+    assert sum(terms) * M ** 2 == pytest.approx(7.4387e-5, rel=1e-4)
+    assert terms[0] / sum(terms) == pytest.approx(0.90, abs=0.01)
