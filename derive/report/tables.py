@@ -84,10 +84,14 @@ def write_response_files(out: str, data: dict, title: str, pdf: bool = False) ->
     rows = 2 if reference else 1
     figure, axes = plt.subplots(rows, 1, figsize=(6.4, 3.4 * rows), sharex=True, squeeze=False)
     axes = axes[:, 0]
-    axes[0].errorbar(data["gaps"], data["response"], yerr=data["error"], fmt="o-", label="this spacetime")
+    label = f"this spacetime, {data['state']} state" if data.get("states") else "this spacetime"
+    axes[0].errorbar(data["gaps"], data["response"], yerr=data["error"], fmt="o-", label=label)
     for name, value in (data.get("states") or {}).items():
         if name != data["state"]:
             axes[0].plot(data["gaps"], value["response"], ".:", label=f"{name} state")
+    values = [v for v in data["response"] if v is not None]
+    if values and min(values) > 0 and max(values) > 1e3 * min(values):
+        axes[0].set_yscale("log")   # responses spanning decades (excitation at large gaps) read better so
     if reference:
         axes[0].plot(data["gaps"], reference["response"], "s--", label=f"reference: {reference['with']}")
         axes[1].errorbar(data["gaps"], data["relative_difference"], yerr=data["relative_difference_error"], fmt="o-")
