@@ -81,6 +81,10 @@ def scan_point(spec_path: str, overrides: dict, tolerance: float) -> dict:
                     if "relative_difference" in result:
                         row[f"reldiff[{gap:g}]"] = float(result["relative_difference"][i])
                         row[f"reldiff[{gap:g}]_error"] = float(result["relative_difference_error"][i])
+                for name, value in (result.get("states") or {}).items():   # outside a horizon: all three states
+                    for i, gap in enumerate(result["gaps"]):
+                        row[f"F_{name}[{gap:g}]"] = float(value["response"][i])
+                        row[f"F_{name}[{gap:g}]_error"] = float(value["error"][i])
                 row["local"] = bool(result["locality"]["local"])
             except (Unsupported, UnsupportedSwitching) as exc:
                 row["response_skipped"] = str(exc)
