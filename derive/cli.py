@@ -367,6 +367,8 @@ def cmd_response(args) -> int:
         result = study(_numeric_problem(spacetime), detector, reference, tolerance, gaps, progress=_l_progress())
     except (Unsupported, UnsupportedSwitching) as exc:
         raise InputError(f"derive response cannot handle this yet: {exc}", file=spacetime.path) from None
+    except InputError as exc:
+        raise exc.located(file=spacetime.path) from None
     data = response_json(result)
     if args.out:
         for path in write_response_files(args.out, data, spacetime.title):

@@ -155,6 +155,7 @@ def _response(spacetime, kernels, problem, staging, tolerance, summary, timings,
     from derive.codegen.problem import numeric_detector, numeric_problem
     from derive.detector.study import study
     from derive.detector.switching import UnsupportedSwitching
+    from derive.errors import InputError
     from derive.report.tables import write_response_files
     from derive.solve.centre import Unsupported
 
@@ -174,6 +175,8 @@ def _response(spacetime, kernels, problem, staging, tolerance, summary, timings,
     except (Unsupported, UnsupportedSwitching) as exc:
         summary["skipped"]["response"] = str(exc)
         return
+    except InputError as exc:
+        raise exc.located(file=spacetime.path) from None
     data = response_json(answer)
     write_response_files(staging, data, spacetime.title, pdf=True)
     summary["response"] = data

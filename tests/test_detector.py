@@ -276,3 +276,17 @@ def test_sharp_switching_in_2plus1_converges_with_its_tail_bounded(write_spec):
     T = 2.0
     assert abs(result["response"][0] - T / 4) <= result["error"][0]
     assert result["error"][0] < 0.05 * T / 4
+
+
+@pytest.mark.parametrize("switching, key", [('{ shape = "cos2", duration = "4", ramp = "3" }', "ramp"),
+                                            ('{ shape = "bump" }', "duration"),
+                                            ('{ shape = "gaussian", width = "-1" }', "width")])
+def test_bad_switching_names_file_and_key(capsys, tmp_path, switching, key):
+    # Bad input gets exit 2 and a message naming the file and the key (house rule).
+    text = open(os.path.join(ROOT, "worked", "dust_shell", "spec.toml")).read()
+    start = text.index("switching =")
+    path = tmp_path / "spec.toml"
+    path.write_text(text[:start] + f"switching = {switching}" + text[text.index("\n", start):])
+    assert main(["response", str(path)]) == 2
+    err = capsys.readouterr().err
+    assert str(path) in err and f"detector.switching.{key}" in err

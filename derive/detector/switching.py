@@ -27,6 +27,8 @@ from typing import Callable
 import numpy as np
 from scipy.special import erfcinv
 
+from derive.errors import InputError
+
 DEFAULT_TAIL = 1e-12
 SHAPES = ("gaussian", "sharp", "bump", "cos2", "sin4", "expression")
 NODES, WEIGHTS = np.polynomial.legendre.leggauss(16)
@@ -34,6 +36,10 @@ NODES, WEIGHTS = np.polynomial.legendre.leggauss(16)
 
 class UnsupportedSwitching(Exception):
     pass
+
+
+def _bad(problem: str, key: str):
+    return InputError(problem, key=f"detector.switching.{key}")
 
 
 @dataclass(frozen=True)
@@ -246,30 +252,32 @@ def switching_from_spec(spec: dict, values: dict, profile: Callable | None = Non
         raise UnsupportedSwitching(f"switching shape {shape!r} is not known (one of {', '.join(SHAPES)})")
     tail = float(values.get("tail", DEFAULT_TAIL))
     if not (0 < tail < 1):
-        raise ValueError(f"switching tail must lie between 0 and 1, got {tail}")
+        raise _bad(f"the tail must lie between 0 and 1, got {tail}", "tail")
     if shape == "gaussian":
+        if "width" not in values:
+            raise _bad("a gaussian switching needs width = (sigma, in the detector's proper time)", "width")
         width = float(values["width"])
         if not (width > 0 and np.isfinite(width)):
-            raise ValueError(f"switching width must be positive, got {width}")
+            raise _bad(f"the width must be positive, got {width}", "width")
         return Switching("gaussian", width, tail)
     if "duration" not in values:
-        raise ValueError(f"a switching of shape {shape!r} needs duration = (the length of its support)")
+        raise _bad(f"a switching of shape {shape!r} needs duration = (the length of its support)", "duration")
     duration = float(values["duration"])
     if not (duration > 0 and np.isfinite(duration)):
-        raise ValueError(f"switching duration must be positive, got {duration}")
+        raise _bad(f"the duration must be positive, got {duration}", "duration")
     ramp = 0.0
     if shape in ("cos2", "sin4"):
         ramp = float(values.get("ramp", duration / 4))
         if not (0 < ramp <= duration / 2):
-            raise ValueError(f"switching ramp must lie in (0, duration/2], got {ramp}")
+            raise _bad(f"the ramp must lie in (0, duration/2] = (0, {duration / 2:g}], got {ramp}", "ramp")
     if shape == "expression" and profile is None:
-        raise ValueError("a switching of shape 'expression' needs its expression")
+        raise _bad("a switching of shape 'expression' needs its expression", "expression")
     algebraic = {"sharp": 2, "cos2": 6, "sin4": 10, "bump": None, "expression": None}[shape]
     panels = max(64, int(np.ceil(duration / max(ramp, duration / 64) * 8)))
     if shape == "expression":
         values_at = np.asarray(profile(np.linspace(-duration / 2, duration / 2, 257)), dtype=float)
         if not np.all(np.isfinite(values_at)):
-            raise ValueError("the switching expression is not finite on its support")
+            raise _bad("the expression is not finite on its support", "expression")
         algebraic = _end_order(profile, duration)
     return CompactSwitching(shape, duration, tail, duration, ramp, profile, algebraic, panels)
 
