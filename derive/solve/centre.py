@@ -74,7 +74,7 @@ def check_supported(problem, any_dimension: bool = False) -> None:
         raise Unsupported(f"l-summed spectral densities are implemented in 3+1 dimensions (this spacetime has "
                           f"D = {problem.dimension}); the density at a centre and greybody factors work in any D")
     if first.lower_kind != "regular centre" or first.lower != 0.0:
-        raise Unsupported("the spectral density is computed at a regular centre at r = 0 only, so far")
+        raise Unsupported("the spectral density needs a regular centre at r = 0 or a horizon at the inner end")
     if last.upper is not None or last.tail not in TAILS:
         raise Unsupported("the outermost region must reach infinity (asymptotically flat), so far")
 
