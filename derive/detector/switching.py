@@ -236,7 +236,7 @@ def _reach(s: CompactSwitching, target: float = 1e-12) -> float:
             if np.all(s.power(k) <= target * peak):
                 reach = K
                 break
-        else:
+        elif s.algebraic > 2:   # (a k^-2 tail is not integrable against the 3+1 density: keep the cap)
             A = _envelope(s, K)
             if 4 / (4 * np.pi ** 2) * A * K ** (2 - s.algebraic) / (s.algebraic - 2) <= target / (4 * np.pi):
                 reach = K
