@@ -61,7 +61,9 @@ def flat_density(dimension: int, mu: float):
 
 
 def _sqrt_f(problem, r0: float) -> float:
-    region = next(r for r in problem.regions if r.upper is None or r0 < r.upper)
+    from derive.solve.centre import region_at
+
+    region = region_at(problem, r0)
     return float(np.sqrt(np.asarray(region.metric_f(np.array([r0]))).reshape(-1)[0]))
 
 

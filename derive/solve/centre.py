@@ -49,13 +49,24 @@ class DensityResult:
         return bool(np.all(self.error <= self.tolerance * np.abs(self.density)))
 
     def message(self) -> str:
-        bad = self.error > self.tolerance * np.abs(self.density)
-        if not np.any(bad):
-            return "ok"
-        worst = int(np.argmax(self.error / np.abs(self.density)))
-        return (f"{int(np.sum(bad))} of {len(self.omega)} frequencies miss the relative tolerance "
-                f"{self.tolerance:.0e}; worst at omega = {self.omega[worst]:.6g} with relative error "
-                f"{self.error[worst] / abs(self.density[worst]):.2e}")
+        return shortfall(self.omega, np.abs(self.density), self.error, self.tolerance)
+
+
+def shortfall(omega, value, error, tolerance) -> str:
+    """"ok", or how many frequencies miss the relative tolerance and the worst of them (a non-finite error
+    counts as missing it)."""
+    relative = error / np.maximum(value, 1e-300)
+    bad = ~(relative <= tolerance)
+    if not np.any(bad):
+        return "ok"
+    worst = int(np.argmax(np.where(np.isnan(relative), np.inf, relative)))
+    return (f"{int(np.sum(bad))} of {len(omega)} frequencies miss the relative tolerance "
+            f"{tolerance:.0e}; worst at omega = {omega[worst]:.6g} (relative error {relative[worst]:.2e})")
+
+
+def region_at(problem, r: float):
+    """The region that holds radius r (regions are ordered outward)."""
+    return next(region for region in problem.regions if region.upper is None or r < region.upper)
 
 
 def merge(omegas, tolerance, parts) -> DensityResult:

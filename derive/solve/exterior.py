@@ -34,8 +34,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from derive.solve.centre import Unsupported, harmonic_weight, rounding_floor
-from derive.solve.horizon import START, _run, check_supported, layout, shortfall
+from derive.solve.centre import Unsupported, harmonic_weight, region_at, rounding_floor, shortfall
+from derive.solve.horizon import START, _run, check_supported, layout
 
 MAX_L = 400
 STATES = ("boulware", "hartle-hawking", "unruh")
@@ -162,7 +162,7 @@ def exterior_density(problem, omegas, r0: float, tolerance: float = 1e-10, progr
     omegas = np.asarray(omegas, dtype=float)
     if omegas.ndim != 1 or np.any(~np.isfinite(omegas)) or np.any(omegas <= 0):
         raise ValueError("frequencies must be positive and finite")
-    region = next(r for r in problem.regions if r.upper is None or r0 < r.upper)
+    region = region_at(problem, r0)
     f0 = float(np.asarray(region.metric_f(np.array([r0]))).reshape(-1)[0])
     reach = float(np.max(omegas)) * r0 / np.sqrt(f0)
     n = len(omegas)

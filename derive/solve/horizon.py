@@ -18,7 +18,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from derive.solve.centre import FAR, Unsupported, rounding_floor
+from derive.solve.centre import FAR, Unsupported, rounding_floor, shortfall
 from derive.solve.propagation import outer_pieces, region_propagator
 
 START = 1e-5          # x_0 / r_h
@@ -40,17 +40,6 @@ class Scattering:
 
     def message(self) -> str:
         return shortfall(self.omega, self.transmission, self.error, self.tolerance)
-
-
-def shortfall(omega, value, error, tolerance) -> str:
-    """"ok", or how many frequencies miss the relative tolerance and the worst of them."""
-    relative = error / np.maximum(value, 1e-300)
-    bad = ~(relative <= tolerance)
-    if not np.any(bad):
-        return "ok"
-    worst = int(np.nanargmax(np.where(np.isnan(relative), np.inf, relative)))
-    return (f"{int(np.sum(bad))} of {len(omega)} frequencies miss the relative tolerance "
-            f"{tolerance:.0e}; worst at omega = {omega[worst]:.6g} ({relative[worst]:.2e})")
 
 
 def check_supported(problem) -> None:
