@@ -1,8 +1,11 @@
 """A detector's whole answer: its response, the comparison, locality and the runs needed (numeric only).
 
-Supported: a static detector in a massless field, asymptotically flat; at a regular centre (vacuum), off it
-(the l-sum; slow: minutes), or outside a horizon (Boulware, Hartle-Hawking or Unruh state); every switching of
-derive.detector.switching except the sharp one (UV divergent in 3+1).
+Supported: a static detector, asymptotically flat, in any dimension: at a regular centre (vacuum) or off it
+(the l-sum), massless or massive where there are no bound states (the continuum above the mass); outside a
+horizon, massless (Boulware, Hartle-Hawking or Unruh state).  Every switching of derive.detector.switching whose
+transform decays fast enough for the dimension.  Refused, with the reason: bound states below the mass
+(regular centre) and quasi-bound resonances (massive field outside a horizon), whose discrete or very narrow
+spectral weight the frequency quadrature would miss.
 """
 
 from __future__ import annotations
@@ -80,6 +83,11 @@ def proper_density(problem, tolerance, r0: float = 0.0, state: str = "vacuum", p
         if state == "vacuum":
             raise Unsupported("outside a horizon 'vacuum' is ambiguous: set [detector] state to 'boulware', "
                               "'hartle-hawking' or 'unruh'")
+        if problem.mass != 0.0:
+            raise Unsupported("a massive field outside a horizon has quasi-bound resonances below the mass (the "
+                              "Coulomb-like well; widths can be many orders below their frequency), which the "
+                              "frequency quadrature of the response would not resolve: the response is not "
+                              "computed; derive spectrum --at gives the density at any listed frequency")
 
         def density_at(nu):
             result = _exterior(problem, sqrt_f0 * np.asarray(nu), r0, tolerance, progress)

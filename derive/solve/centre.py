@@ -114,8 +114,10 @@ def continuum_threshold(problem) -> float:
     if problem.mass == 0.0:
         return 0.0
     last = problem.regions[-1]
-    far = FAR * 1e6 * problem.length_scale
-    return float(np.sqrt(max(0.0, float(np.asarray(last.potential(np.array([far]), 0, 0.0)).reshape(-1)[0]))))
+    far = FAR * problem.length_scale
+    V = np.asarray(last.potential(np.array([far, 2 * far]), 0, 0.0), dtype=float) * np.ones(2)
+    # V = V_inf - C/r + O(r^-2): the value at infinity extrapolated from two radii (error ~ 1e-12 of C/far)
+    return float(np.sqrt(max(0.0, 2 * V[1] - V[0])))
 
 
 def centre_density(problem, omegas, tolerance: float = 1e-10, steps: int = DEFAULT_STEPS,

@@ -34,8 +34,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from derive.solve.centre import Unsupported, harmonic_weight, region_at, rounding_floor, shortfall
-from derive.solve.horizon import START, _run, check_supported, layout
+from derive.solve.centre import (Unsupported, continuum_threshold, harmonic_weight, region_at, rounding_floor,
+                                 shortfall)
+from derive.solve.horizon import START, _run, check_supported, layout, threshold_rounding
 
 MAX_L = 400
 STATES = ("boulware", "hartle-hawking", "unruh")
@@ -96,6 +97,18 @@ def _values(problem, march, l, omegas, r0):
     return weight * np.exp(march.log_horizon2), weight * np.exp(march.log_infinity2)
 
 
+def _batches(problem, omegas) -> np.ndarray:
+    """A batch label per frequency: 1 above the mass; below it, -1 - (half-decades of kappa/threshold below 1),
+    kappa = sqrt(threshold^2 - omega^2) the decay rate far away."""
+    threshold = continuum_threshold(problem)
+    labels = np.ones(len(omegas), dtype=int)
+    below = omegas < threshold
+    if np.any(below):
+        kappa = np.sqrt(threshold ** 2 - omegas[below] ** 2) / threshold
+        labels[below] = -1 - np.floor(-2 * np.log10(kappa)).astype(int)
+    return labels
+
+
 def mode_term(problem, l, omegas, r0, tolerance, floor=None, steps=64, max_steps=16384):
     """(2l+1)/(4 pi) |u_in(r0)|^2/(4 pi omega r0^2) and the same for up, with errors, refined by grid doubling
     until each is within the tolerance of itself or of ``floor`` (the sum so far), whichever is larger.
@@ -107,10 +120,21 @@ def mode_term(problem, l, omegas, r0, tolerance, floor=None, steps=64, max_steps
     a rounding floor."""
     n = len(omegas)
     floor = np.zeros(n) if floor is None else floor
+    groups = _batches(problem, omegas)
+    if len(np.unique(groups)) > 1:
+        # frequencies above the mass and below it (up modes only, evanescent far away) are marched separately,
+        # those below in half-decades of their decay rate, so that each batch's far radius suits all of it
+        merged = tuple(np.zeros(n) for _ in range(4))
+        for group in np.unique(groups):
+            index = groups == group
+            part = mode_term(problem, l, omegas[index], r0, tolerance, floor[index], steps, max_steps)
+            for whole, piece in zip(merged, part):
+                whole[index] = piece
+        return merged
     inward, outward, e_in, e_out = (np.zeros(n) for _ in range(4))
     active = np.arange(n)
     count = steps
-    fixed = layout(problem, l, omegas)
+    fixed = layout(problem, l, omegas, probe=r0)
     coarse = _values(problem, _run(problem, l, omegas, count, START, probe=r0, fixed=fixed), l, omegas, r0)
     fine = _values(problem, _run(problem, l, omegas, 2 * count, START, probe=r0, fixed=fixed), l, omegas, r0)
     while len(active):
@@ -138,7 +162,8 @@ def mode_term(problem, l, omegas, r0, tolerance, floor=None, steps=64, max_steps
                 raw = coarse[part][done]
                 value[index] = after[part][done]
                 error[index] = (change[part][done] + np.abs(raw - moved[part]) + np.abs(raw - farther[part])
-                                + rounding_floor(4 * count) * np.abs(after[part][done]))
+                                + (rounding_floor(4 * count) + threshold_rounding(problem, wd))
+                                * np.abs(after[part][done]))
             if not last:   # not there yet with every source of error counted: refine further
                 short = e_in[index] + e_out[index] > tolerance * scale[done]
                 done[np.nonzero(done)[0][short]] = False

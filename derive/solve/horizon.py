@@ -3,13 +3,19 @@
 The solution that is purely ingoing at the horizon, u -> e^{-i omega r*} (unit amplitude), starts from the
 derived Frobenius series u = x^s (1 + a_1 x + a_2 x^2), x = r - r_h, s = -i omega/(2 kappa), at a small x_0;
 it is carried outward (propagation.py, complex state) to a far radius and split there into incoming and
-outgoing waves with the local wave number k = sqrt(omega^2 - V):
+outgoing waves with the local wave number k = sqrt(omega^2 - V) (a corrected Liouville-Green split, g = k'/2k):
 
-    a_in = (u + i u'/k)/2,   a_out = (u - i u'/k)/2,   |A|^2 = |a|^2 k/omega   (WKB flux normalisation),
+    a_in = (u + i (u' + g u)/k)/2,   a_out = (u - i (u' + g u)/k)/2,   |A|^2 = |a|^2 k/omega   (unit flux),
 
 so that u -> A_in e^{-i omega r*} + A_out e^{i omega r*}.  Then |T|^2 = 1/|A_in|^2 and |R|^2 = |A_out|^2/|A_in|^2;
 |R|^2 + |T|^2 = 1 (flux conservation) is reported as a check, not imposed.  Errors: grid doubling, moving the
 start point x_0 (series truncation) and the far radius (tail), and rounding.
+
+Massive fields: far away V -> mu^2 - C/r (Coulomb-like).  Above the mass the far radius grows with 1/k so that
+the split's error C/(k^4 r^3) is negligible (the geometric grid makes that cost logarithmic), and the far piece
+is refined in proportion to the tail's strength; a frequency so close to the mass that the far radius would pass
+10^14 length scales is refused (Coulomb wave functions would be needed there).  Below the mass nothing reaches
+infinity (|T|^2 = 0, |R|^2 = 1 exactly) and the up modes are totally reflected (see _evanescent).
 """
 
 from __future__ import annotations
@@ -18,10 +24,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from derive.solve.centre import FAR, Unsupported, rounding_floor, shortfall
+from derive.solve.centre import FAR, Unsupported, continuum_threshold, rounding_floor, shortfall
 from derive.solve.propagation import outer_pieces, region_propagator
 
 START = 1e-5          # x_0 / r_h
+BASE_STEPS = 16       # steps of the coarsest grid's pieces; finer grids multiply every count (nested grids)
+LARGEST = 1e14        # the farthest far radius, in length scales (beyond it: too close to the mass threshold)
+TAILS = ("short-range", "centrifugal", "Coulomb-like", "massive, short-range", "Coulomb-like (massive)")
 
 
 @dataclass
@@ -46,12 +55,69 @@ def check_supported(problem) -> None:
     first, last = problem.regions[0], problem.regions[-1]
     if first.lower_kind != "horizon" or first.horizon_series is None:
         raise Unsupported("transmission needs a non-degenerate horizon at the inner end (with its series)")
-    if last.upper is not None or last.tail not in ("short-range", "centrifugal"):
-        raise Unsupported("the outermost region must reach infinity with a short-range or centrifugal tail "
-                          "(massless, asymptotically flat), so far")
-    if problem.mass != 0.0:
-        raise Unsupported("massive fields outside a horizon (Coulomb-like tail, up modes evanescent below the "
-                          "mass) are not handled yet; with a regular centre they are")
+    if last.upper is not None or last.tail not in TAILS:
+        raise Unsupported(f"the outermost region must reach infinity, asymptotically flat (its tail here: "
+                          f"{last.tail}); a reflecting (AdS-like) boundary is not handled yet")
+
+
+def tail(problem) -> tuple[float, float]:
+    """(threshold, C): the continuum starts at omega = threshold = sqrt(V(infinity)), and far away
+    V -> threshold^2 - C/r (C = 2 M mu^2 for a massive field outside mass M; about 0 when massless)."""
+    threshold = continuum_threshold(problem)
+    R = FAR * problem.length_scale
+    V = float(np.asarray(problem.regions[-1].potential(np.array([R]), 0, 0.0)).reshape(-1)[0])
+    return threshold, R * abs(threshold ** 2 - V)
+
+
+def threshold_rounding(problem, omegas) -> np.ndarray:
+    """Relative error of the far wave number k^2 = omega^2 - V(far) from rounding V ~ threshold^2: it grows like
+    threshold^2/k^2 as omega approaches the mass, and is added to every error estimate there."""
+    threshold = continuum_threshold(problem)
+    return 4 * np.finfo(float).eps * threshold ** 2 / np.maximum(np.abs(omegas ** 2 - threshold ** 2), 1e-300)
+
+
+def _outer_turning_point(problem, l, omega) -> float:
+    """The largest radius where omega^2 >= V (sampled finely, and rounded up to the next sample): beyond it a
+    frequency below the mass is evanescent all the way out."""
+    horizon = problem.regions[0].lower
+    turning = horizon
+    for region in problem.regions:
+        lower = max(region.lower, horizon * (1 + 1e-9))
+        upper = region.upper if region.upper is not None else 1e12 * problem.length_scale
+        r = np.geomspace(lower, upper, 8001)
+        V = np.asarray(region.potential(r, l, 0.0), dtype=float) * np.ones_like(r)
+        allowed = np.nonzero(V <= omega ** 2)[0]
+        if len(allowed):
+            turning = r[min(allowed[-1] + 1, len(r) - 1)]
+    return float(turning)
+
+
+def far_radius(problem, l, omegas, probe=None) -> float:
+    """Where the march stops and the solution is split into the asymptotic ones.
+
+    Massless: 10^6 length scales, 10^3 wavelengths, and far enough that the centrifugal tail
+    l(l+1)/(omega r)^2 is below 1e-12.  Above the mass the same with the wave number k = sqrt(omega^2 - mu^2),
+    and far enough that the corrected Liouville-Green split (see _far_split) is exact to ~1e-13 on the
+    Coulomb-like tail C/r: its amplitude error is of order V''/k^4 ~ C/(k^4 r^3).  Below the mass (every omega
+    of the batch): 40 decay lengths beyond the outermost turning point (and the probe), where the decaying
+    solution starts; any admixture of the growing one then dies as e^-80 on the way in."""
+    L = problem.length_scale
+    threshold, C = tail(problem)
+    omegas = np.asarray(omegas, dtype=float)
+    if np.all(omegas < threshold):
+        kappa = np.sqrt(threshold ** 2 - float(np.max(omegas)) ** 2)
+        turning = max(_outer_turning_point(problem, l, float(np.max(omegas))), probe or 0.0)
+        far = max(turning + 40.0 / kappa, 4 * problem.regions[0].lower)
+    else:
+        k = float(np.sqrt(np.min(omegas) ** 2 - threshold ** 2)) if threshold > 0 else float(np.min(omegas))
+        far = max(FAR * L, 1e3 / k, 1e6 * np.sqrt(l * (l + 1) + 1.0) / k)
+        if threshold > 0 or C > 1e-9 * L:
+            far = max(far, (C * 1e13 / k ** 4) ** (1 / 3))
+    if threshold > 0 and not far <= LARGEST * L:
+        raise Unsupported(f"omega = {float(np.min(np.abs(omegas))):.10g} is too close to the mass threshold "
+                          f"{threshold:.10g} (the far radius would be {far:.3g}): Coulomb wave functions would be "
+                          "needed there")
+    return far
 
 
 def _start_state(region, l, omegas, x0):
@@ -65,19 +131,55 @@ def _start_state(region, l, omegas, x0):
     return np.stack([u, F * du_dr], axis=1)
 
 
-def layout(problem, l, omegas):
-    """What the grid depends on besides the resolution: the largest series exponent |s| and the lowest
-    frequency.  Refinement passes fix it from the whole frequency set, so that every pass over a shrinking set
-    of frequencies still refines the same grid."""
+@dataclass
+class Layout:
+    """What the grid depends on besides the resolution, fixed from the whole frequency set so that every
+    refinement pass over a shrinking set of frequencies still refines the same grid: the largest series exponent
+    |s|, the far radius, the far piece's steps per decade (see _far_density), and the end and base step count of the
+    extension that checks the tail (four times the far radius; below the mass, 20 more decay lengths, with
+    steps short enough that no step spans more than a few decay lengths)."""
+
+    s_max: float
+    far: float
+    density: float
+    farther: float
+    farther_steps: int
+
+
+def layout(problem, l, omegas, probe=None) -> Layout:
+    omegas = np.asarray(omegas, dtype=float)
     s_max = float(np.max(np.abs(np.asarray(problem.regions[0].horizon_series(l, omegas), dtype=complex)[0])))
-    return s_max, float(np.min(omegas))
+    far = far_radius(problem, l, omegas, probe)
+    threshold = continuum_threshold(problem)
+    if np.all(omegas < threshold):
+        kappa_min = np.sqrt(threshold ** 2 - float(np.max(omegas)) ** 2)
+        kappa_max = np.sqrt(threshold ** 2 - float(np.min(omegas)) ** 2)
+        extra = 20.0 / kappa_min
+        return Layout(s_max, far, 1.0, far + extra, max(BASE_STEPS // 2, int(np.ceil(kappa_max * extra / 2))))
+    return Layout(s_max, far, _far_density(problem, omegas), 4 * far, BASE_STEPS // 2)
+
+
+def _far_density(problem, omegas) -> float:
+    """Steps per decade of the far piece, in units of a quarter of the base count, on a Coulomb-like tail; 0 means
+    a quarter of the base count for the whole far piece (massless: the potential falls like r^-2 there).
+
+    The quadratic fit of V on a geometric step of ratio q leaves spurious reflections of order
+    (C/r)(q - 1)^3/k^2 on a tail C/r (largest at the start of the far piece, r ~ 10^3 length scales); a factor
+    (1600 C/(r k^2))^(1/3), at least 1, per decade keeps the error falling cleanly with refinement (measured:
+    fourfold for C/(r k^2) = 0.04, where one quarter per decade gave erratic changes of 1e-8)."""
+    threshold, C = tail(problem)
+    k2 = float(np.min(omegas)) ** 2 - threshold ** 2
+    if threshold == 0.0 or k2 <= 0:
+        return 0.0
+    return max(1.0, (1600 * C / (1e3 * problem.length_scale * k2)) ** (1 / 3))
 
 
 def _pieces(problem, l, omegas, steps, start, far_factor, fixed=None):
-    """The march from the horizon to the far radius: (region index, shift, a, b, kind, steps) per piece, the
+    """The march from the horizon to the far radius (with far_factor > 1, on to the layout's farther radius): (region index, shift, a, b, kind, steps) per piece, the
     start offset x0 and the far radius."""
     horizon = problem.regions[0].lower
-    s_max, lowest = fixed if fixed is not None else layout(problem, l, omegas)
+    fixed = fixed if fixed is not None else layout(problem, l, omegas)
+    s_max, far, density = fixed.s_max, fixed.far, fixed.density
     # the series' coefficients grow like |s|^k (s = -i omega/(2 kappa)): keep |s| x0/r_h small so that the
     # truncated terms stay below 1e-12; and use the exactly representable x0 = (r_h + x) - r_h, so that the
     # kernels (which compute r - r_h) and the series see the same point
@@ -86,8 +188,6 @@ def _pieces(problem, l, omegas, steps, start, far_factor, fixed=None):
         x = fraction * horizon / max(1.0, s_max)
         return (horizon + x) - horizon
     x0 = offset(START)
-    # far enough that the centrifugal tail l(l+1)/(omega r)^2 is below 1e-12 of the wave (WKB split error)
-    far = max(FAR * problem.length_scale, 1e3 / lowest, 1e6 * np.sqrt(l * (l + 1) + 1.0) / lowest)
     pieces = []
     # the checks on series truncation (an earlier start) and on the tail (a farther end) add a piece at that
     # end and leave every other piece's grid as it was, so that the change they make measures only what they
@@ -106,12 +206,17 @@ def _pieces(problem, l, omegas, steps, start, far_factor, fixed=None):
             lower = middle
         if region.upper is None:
             for a, b, n in outer_pieces(lower, far, steps, problem.length_scale):
-                pieces.append((index, 0.0, a, b, "geometric", n if a == lower else max(4, steps // 4)))
+                # the far piece: a quarter of the base count, or that per decade times the density on a
+                # Coulomb-like tail (see _far_density)
+                share = max(1.0, np.log10(b / a)) * density if density > 0 else 1.0
+                pieces.append((index, 0.0, a, b, "geometric",
+                               n if a == lower else max(4, int(round(steps * share / 4)))))
             if far_factor > 1:
-                pieces.append((index, 0.0, far, far * far_factor, "geometric", max(2, steps // 8)))
+                pieces.append((index, 0.0, far, fixed.farther, "geometric",
+                               max(4, fixed.farther_steps * steps // BASE_STEPS)))
         elif region.upper > lower:
             pieces.append((index, 0.0, lower, region.upper, "uniform", steps))
-    return pieces, x_start, far * far_factor
+    return pieces, x_start, fixed.farther if far_factor > 1 else far
 
 
 def _split(pieces, probe):
@@ -147,8 +252,6 @@ class March:
     log_infinity2: np.ndarray | None = None
 
 
-BASE_STEPS = 16
-
 
 def _run(problem, l, omegas, steps, start, far_factor=1.0, probe=None, fixed=None) -> March:
     # a grid too coarse for a deeply evanescent stretch overflows to inf/nan; refinement (or the error estimate,
@@ -175,7 +278,7 @@ def _march(problem, l, omegas, steps, start, far_factor, probe, fixed) -> March:
     # the propagator from the probe to the far radius (kept at unit size with its log scale, and its
     # determinant from the interfaces: every Magnus step is unimodular), for the solution coming from infinity
     outer = np.broadcast_to(np.eye(2), (n, 2, 2)).copy()
-    outer_log, outer_det = np.zeros(n), np.ones(n)
+    outer_log, outer_det, total_det = np.zeros(n), np.ones(n), np.ones(n)
     for position, (index, shift, a, b, kind, count) in enumerate(pieces):
         region = problem.regions[index]
         if position == after:
@@ -192,30 +295,70 @@ def _march(problem, l, omegas, steps, start, far_factor, probe, fixed) -> March:
             transfer = np.broadcast_to(np.asarray(interfaces[region.name].transfer(l, omegas), dtype=float),
                                        (2, 2, n))
             state = np.einsum("ijn,nj->ni", transfer, state)
+            total_det = total_det * np.linalg.det(np.moveaxis(transfer, -1, 0))
             if after is not None and position >= after:
                 matrix = np.moveaxis(transfer, -1, 0)
                 outer, outer_log = _accumulate(matrix, np.zeros(n), outer, outer_log)
                 outer_det = outer_det * np.linalg.det(matrix)
     if after is not None and after == len(pieces):
         probe_u, probe_log = state[:, 0].copy(), log_scale.copy()
-    last = problem.regions[-1]
-    V = float(np.asarray(last.potential(np.array([far]), l, 0.0)).reshape(-1)[0])
+    below = omegas < continuum_threshold(problem)
+    if np.any(below) and not np.all(below):
+        raise ValueError("one march takes frequencies all above or all below the mass threshold")
+    V, dV = _far_potential(problem.regions[-1], l, far)
+    if np.all(below):
+        return _evanescent(omegas, V, dV, state, log_scale, total_det, probe, outer, outer_log, outer_det)
     k = np.sqrt(omegas ** 2 - V)
-    a_in = (state[:, 0] + 1j * state[:, 1] / k) / 2
-    a_out = (state[:, 0] - 1j * state[:, 1] / k) / 2
+    # the corrected Liouville-Green split: with g = k'/(2k) = -V'/(4k^2) (' = d/dr*), the waves are
+    # k^-1/2 e^{-+i int k} with u'/u = -+ i k - g, so u' + g u carries the split; its amplitude error is then of
+    # order V''/k^4 rather than V'/k^3
+    g = -dV / (4 * k * k)
+    w = state[:, 1] + g * state[:, 0]
+    a_in = (state[:, 0] + 1j * w / k) / 2
+    a_out = (state[:, 0] - 1j * w / k) / 2
     scale = np.exp(2 * log_scale) * k / omegas
     A_in2, A_out2 = np.abs(a_in) ** 2 * scale, np.abs(a_out) ** 2 * scale
     result = March(1.0 / A_in2, A_out2 / A_in2)
     if probe is not None:
         log_T2 = -(2 * log_scale + np.log(np.abs(a_in) ** 2 * k / omegas))
         result.log_horizon2 = 2 * (np.log(np.abs(probe_u)) + probe_log)
-        # u_inf(r0) = (P^-1 s)[0], s = sqrt(omega/k) (1, i k) the unit-flux outgoing wave at the far radius,
+        # u_inf(r0) = (P^-1 s)[0], s = sqrt(omega/k) (1, i k - g) the unit-flux outgoing wave at the far radius,
         # P = outer exp(outer_log): P^-1 = adj(outer) exp(outer_log) / det P
-        s0, s1 = np.sqrt(omegas / k), 1j * np.sqrt(omegas * k)
+        s0, s1 = np.sqrt(omegas / k), np.sqrt(omegas / k) * (1j * k - g)
         u_inf = outer[:, 1, 1] * s0 - outer[:, 0, 1] * s1
         result.log_infinity2 = 2 * (np.log(np.abs(u_inf)) + outer_log - np.log(np.abs(outer_det)))
         result.log_horizon2 = result.log_horizon2 + log_T2
         result.log_infinity2 = result.log_infinity2 + log_T2
+    return result
+
+
+def _far_potential(region, l, far):
+    """V and dV/dr* at the far radius (dV/dr by a central difference: it only enters a correction)."""
+    r = far * np.array([1.0, 1.0 - 1e-3, 1.0 + 1e-3])
+    V = np.asarray(region.potential(r, l, 0.0), dtype=float) * np.ones(3)
+    F = 1.0 / float(np.asarray(region.dtortoise_dr(np.array([far]))).reshape(-1)[0])
+    return float(V[0]), F * float(V[2] - V[1]) / (2e-3 * far)
+
+
+def _evanescent(omegas, V, dV, state, log_scale, total_det, probe, outer, outer_log, outer_det) -> March:
+    """Below the mass nothing reaches infinity: |T|^2 = 0, |R|^2 = 1, and the only modes are up modes, totally
+    reflected.  With u_dec the solution decaying far away (started there as kappa^-1/2 e^{-int kappa}:
+    u'/u = -kappa - kappa'/(2 kappa)) and u_H the ingoing solution from the horizon (unit amplitude), the
+    Wronskian W[u_H, u_dec] = 2 i omega A at the horizon, where u_dec -> A e^{+i omega r*} + conj(A)
+    e^{-i omega r*}; so u_up = u_dec / A.  W is evaluated at the far radius (where u_H is the growing solution
+    and no digits cancel) and carried back by the interfaces' determinants; u_dec(r0) comes from the inverse of
+    the propagator beyond r0, growing toward r0, as u_inf does above the mass."""
+    n = len(omegas)
+    result = March(np.zeros(n), np.ones(n))
+    if probe is None:
+        return result
+    kappa = np.sqrt(V - omegas ** 2)
+    s0, s1 = np.ones(n), -kappa - dV / (4 * kappa * kappa)
+    wronskian = state[:, 0] * s1 - state[:, 1] * s0
+    log_A2 = 2 * (np.log(np.abs(wronskian)) + log_scale - np.log(np.abs(total_det)) - np.log(2 * omegas))
+    u_dec = outer[:, 1, 1] * s0 - outer[:, 0, 1] * s1
+    result.log_horizon2 = np.full(n, -np.inf)
+    result.log_infinity2 = 2 * (np.log(np.abs(u_dec)) + outer_log - np.log(np.abs(outer_det))) - log_A2
     return result
 
 
@@ -252,6 +395,15 @@ def transmission(problem, l: int, omegas, tolerance: float = 1e-10, steps: int =
     if omegas.ndim != 1 or np.any(~np.isfinite(omegas)) or np.any(omegas <= 0):
         raise ValueError("frequencies must be positive and finite")
     n = len(omegas)
+    below = omegas < continuum_threshold(problem)
+    if np.any(below):
+        # below the mass nothing reaches infinity: |T|^2 = 0 and |R|^2 = 1 exactly
+        T, R, error = np.zeros(n), np.ones(n), np.zeros(n)
+        above = np.nonzero(~below)[0]
+        if len(above):
+            part = transmission(problem, l, omegas[above], tolerance, steps, max_steps)
+            T[above], R[above], error[above] = part.transmission, part.reflection, part.error
+        return Scattering(omegas, l, T, R, error, T + R - 1.0, tolerance)
     T, R, error = np.zeros(n), np.zeros(n), np.zeros(n)
     active = np.arange(n)
     count = steps
@@ -274,7 +426,7 @@ def transmission(problem, l: int, omegas, tolerance: float = 1e-10, steps: int =
             error[index] = (np.abs(best.transmission - fine.transmission[done])
                             + np.abs(best.transmission - moved.transmission)
                             + np.abs(best.transmission - farther.transmission)
-                            + rounding_floor(4 * count) * best.transmission)
+                            + (rounding_floor(4 * count) + threshold_rounding(problem, w)) * best.transmission)
             if 2 * count < max_steps:   # not there yet with every source of error counted: refine further
                 done[np.nonzero(done)[0][error[index] > tolerance * best.transmission]] = False
         active = active[~done]
