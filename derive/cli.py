@@ -226,18 +226,48 @@ def cmd_spectrum(args) -> int:
             "error": {"density": list(map(float, result["error"]))},
             "tolerance": tolerance, "method": METHOD, "units": "per unit omega of the spec's time coordinate",
             "minkowski_density": list(map(float, result["minkowski"]))}
+    levels = _bound_states(problem, args.l, float(args.at or 0.0), tolerance, spacetime)
+    if levels is not None:
+        data["bound_states"] = levels
     rows = (f"{w:12.6g} {d:22.15e} {e:10.1e} " + (f"{d / m:14.10f}" if m else "")
             for w, d, e, m in zip(omegas, result["density"], result["error"], result["minkowski"]))
     _deliver(args, data, write_spectrum_files, spacetime.title,
              f"{spacetime.title}: spectral density at r = {args.at or 0:g}, "
              f"{'l = %d' % result['l'] if result['l'] is not None else 'summed over l'}\n"
              f"{'omega':>12} {'density':>22} {'error':>10} {'/ Minkowski':>14}", rows)
-    if not result["ok"]:
+    if levels is not None and not args.json:
+        print(f"bound states (l = {args.l}; discrete: a weight per level, per unit omega integrated):\n"
+              f"{'omega':>22} {'error':>10} {'weight':>22} {'error':>10}")
+        for w, we, d, de in zip(levels["omega"], levels["error"]["omega"], levels["weight"],
+                                levels["error"]["weight"]):
+            print(f"{w:22.15e} {we:10.1e} {d:22.15e} {de:10.1e}")
+        if levels["truncated"]:
+            print("  (more levels accumulate at the mass: the lowest are listed)")
+    if not result["ok"] or (levels is not None and not levels["ok"]):
         from derive.errors import AccuracyError
 
-        raise AccuracyError(result["message"], {"tolerance": tolerance,
-                                                "largest relative error": float(max(result["error"] / result["density"]))})
+        message = result["message"] if not result["ok"] else levels["message"]
+        raise AccuracyError(message, {"tolerance": tolerance})
     return 0
+
+
+def _bound_states(problem, l, r0, tolerance, spacetime):
+    """The lowest bound states of the requested l where a massive field has them (None where it has none)."""
+    from derive.solve.bound import LEVELS, bound_states
+    from derive.solve.centre import Unsupported, bound_states_possible
+
+    if not bound_states_possible(problem):
+        return None
+    try:
+        found = bound_states(problem, l, r0, tolerance, count=LEVELS)
+    except Unsupported as exc:
+        raise InputError(f"derive spectrum cannot find the bound states: {exc}", file=spacetime.path) from None
+    floats = lambda values: list(map(float, values))
+    return {"l": l, "at": r0, "omega": floats(found.omega), "weight": floats(found.weight),
+            "error": {"omega": floats(found.omega_error), "weight": floats(found.weight_error)},
+            "truncated": found.truncated, "ok": found.ok, "message": found.message(),
+            "units": "omega of the spec's time coordinate; weight: the level's delta-function coefficient in the "
+                     "spectral density at r0 (sum over m of |phi_n(r0)|^2, phi_n Klein-Gordon normalised)"}
 
 
 def _scattering_output(args, spacetime, problem, omegas, tolerance) -> int:

@@ -104,8 +104,9 @@ def proper_density(problem, tolerance, r0: float = 0.0, state: str = "vacuum", p
 
     if bound_states_possible(problem):
         raise Unsupported("a massive field here can have bound states below the mass (V dips below mu^2, e.g. "
-                          "the Coulomb-like tail of a gravitating body): their discrete spectrum is not computed "
-                          "yet, so a response would be incomplete; derive spectrum gives the continuum density")
+                          "the Coulomb-like tail of a gravitating body): derive spectrum lists the lowest levels "
+                          "of each l with their weights, but their infinitely many levels and l are not yet "
+                          "summed into a response, so a response would be incomplete")
 
     solve = density_function(problem, r0, tolerance)
 

@@ -57,6 +57,13 @@ def write_spectrum_files(out: str, data: dict, title: str, pdf: bool = False) ->
     axes[0].set_title(f"{title}: {label} at r = {data['at']:g}", fontsize=10)
     paths = _save(figure, out, "spectrum", pdf)
     plt.close(figure)
+    if data.get("bound_states"):      # the discrete spectrum below the mass, one row per level
+        levels = data["bound_states"]
+        bound_path = os.path.join(out, "bound_states.csv")
+        write_atomic(bound_path, _csv(["omega", "omega_error", "weight", "weight_error"],
+                                      zip(levels["omega"], levels["error"]["omega"], levels["weight"],
+                                          levels["error"]["weight"])))
+        paths.append(bound_path)
     return [csv_path] + paths
 
 

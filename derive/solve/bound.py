@@ -1,0 +1,330 @@
+"""Bound states of a massive field with a regular centre: the discrete spectrum below the mass (PHYSICS.md
+sections 4 and 6).
+
+Where V dips below mu^2 (around any gravitating body: the tail V -> mu^2 - C/r is attractive) the field has
+normalisable modes at discrete omega_n < mu.  For each l they are the zeros of
+
+    D(omega) = W[u_reg, u_dec] = u_reg u_dec' - u_reg' u_dec,
+
+u_reg the solution regular at the centre (marched outward, as in derive.solve.offcentre) and u_dec the solution
+decaying far away (started as kappa^-1/2 e^{-int kappa} 40 decay lengths beyond the outermost turning point,
+where any admixture of the growing solution has died by e^-80 on the way in).  The zeros are bracketed on a
+grid uniform in x = 1/sqrt(mu^2 - omega^2) (hydrogen-like levels are evenly spaced in x, by 2/C) and bisected.
+
+Normalisation without integrating u^2: for solutions of u'' + (omega^2 - V) u = 0,
+(u' d_omega u - u d_omega u')' = 2 omega u^2, from which (common practice; e.g. the derivative formula for the
+norm of a bound state) the eigenfunction u_n = b u_dec = u_reg has
+
+    2 omega_n int u_n^2 dr* = b D'(omega_n),   b = u_reg / u_dec  (any radius),
+
+so its weight in the Wightman function at r0 (per unit omega of t, a delta function at omega_n) is
+
+    w_n = (weight of the degree-l harmonics) u_reg(r0) u_dec(r0) / (r0^(D-2) D'(omega_n))
+
+(at the centre in 3+1, l = 0: (1/4 pi) (du_reg/dr)(du_dec/dr) / D').  D' comes from a fourth-order central
+difference in omega.  Every level is computed on grids of N, 2N and 4N steps; the changes are its error.
+
+A Coulomb-like tail has infinitely many levels accumulating at the mass; the first ``count`` of each l are
+returned (their weights fall like n^-3), and the caller is told that the list is truncated.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from derive.solve.centre import Unsupported, check_supported, continuum_threshold, harmonic_weight, region_at
+from derive.solve.propagation import region_propagator
+
+BISECTIONS = 60
+LEVELS = 4         # levels per l listed by derive spectrum
+
+
+@dataclass
+class BoundStates:
+    """The lowest bound states of one l: frequencies (of t) and weights at r0, each with its error."""
+
+    l: int
+    radius: float
+    omega: np.ndarray
+    omega_error: np.ndarray
+    weight: np.ndarray
+    weight_error: np.ndarray
+    truncated: bool           # more levels exist (a Coulomb-like tail: infinitely many)
+    tolerance: float
+
+    @property
+    def ok(self) -> bool:
+        return bool(np.all(self.omega_error <= self.tolerance * self.omega)
+                    and np.all(self.weight_error <= self.tolerance * np.abs(self.weight)))
+
+    def message(self) -> str:
+        if self.ok:
+            return "ok"
+        worst = int(np.argmax(np.maximum(self.omega_error / self.omega,
+                                         self.weight_error / np.maximum(np.abs(self.weight), 1e-300))))
+        return (f"bound state l = {self.l}, omega = {self.omega[worst]:.12g}: relative errors "
+                f"{self.omega_error[worst] / self.omega[worst]:.1e} (omega), "
+                f"{self.weight_error[worst] / max(abs(self.weight[worst]), 1e-300):.1e} (weight) miss the "
+                f"tolerance {self.tolerance:.0e}")
+
+
+def tail_strength(problem) -> float:
+    """C in V -> threshold^2 - C/r far away (l = 0)."""
+    threshold = continuum_threshold(problem)
+    R = 1e6 * problem.length_scale
+    V = float(np.asarray(problem.regions[-1].potential(np.array([R]), 0, 0.0)).reshape(-1)[0])
+    return R * (threshold ** 2 - V)
+
+
+def outer_turning_point(problem, l, omega, start) -> float:
+    """The largest radius (from ``start`` outward) where omega^2 >= V, sampled finely and rounded up to the next
+    sample."""
+    turning = start
+    for region in problem.regions:
+        lower = max(region.lower, start)
+        upper = region.upper if region.upper is not None else 1e12 * problem.length_scale
+        if upper <= lower:
+            continue
+        r = np.geomspace(lower, upper, 8001)
+        V = np.asarray(region.potential(r, l, 0.0), dtype=float) * np.ones_like(r)
+        allowed = np.nonzero(V <= omega ** 2)[0]
+        if len(allowed):
+            turning = float(r[min(allowed[-1] + 1, len(r) - 1)])
+    return turning
+
+
+def _lowest_potential(problem, l) -> float:
+    lowest = np.inf
+    for region in problem.regions:
+        lower = max(region.lower, 1e-6 * problem.length_scale)
+        upper = region.upper if region.upper is not None else 1e8 * problem.length_scale
+        r = np.geomspace(lower, upper, 4001)
+        lowest = min(lowest, float(np.min(np.asarray(region.potential(r, l, 0.0), dtype=float) * np.ones_like(r))))
+    return lowest
+
+
+def _well_bottom(problem, l, omega) -> float:
+    """The radius where omega^2 - V is largest (the deepest point of the allowed zone, 0 at a centre where V is
+    lowest): both solutions are reliable there, so the ratio b = u_reg/u_dec is read there."""
+    best, where = -np.inf, 0.0
+    for region in problem.regions:
+        lower = max(region.lower, 1e-6 * problem.length_scale)
+        upper = region.upper if region.upper is not None else 1e8 * problem.length_scale
+        r = np.geomspace(lower, upper, 4001)
+        gap = omega ** 2 - np.asarray(region.potential(r, l, 0.0), dtype=float) * np.ones_like(r)
+        i = int(np.argmax(gap))
+        if gap[i] > best:
+            best, where = float(gap[i]), float(r[i])
+    return where
+
+
+def _layout(problem, l, omega_top, points=()):
+    """Pieces (region index, a, b, geometric, base steps) from the start to the far radius, cut at each of
+    ``points`` (the pieces' start index of each point: the first piece beyond it), the series start and the far
+    radius, for frequencies up to omega_top."""
+    threshold = continuum_threshold(problem)
+    kappa = np.sqrt(threshold ** 2 - omega_top ** 2)
+    L = problem.length_scale
+    far = max([outer_turning_point(problem, l, omega_top, 1e-6 * L)] + list(points)) + 40.0 / kappa
+    inner = [p for p in points if p > 0]
+    r_s = 0.0 if (l == 0 and problem.dimension == 4) else 1e-3 * min([L, 1 / threshold] + inner)
+    cuts = sorted(set(p for p in points if p > r_s))
+    pieces = []
+    for index, region in enumerate(problem.regions):
+        a = max(region.lower, r_s)
+        b = min(region.upper, far) if region.upper is not None else far
+        if b <= a:
+            continue
+        edges = [a, b]
+        if a > 0 and b / a > 10:
+            edges = list(np.geomspace(a, b, int(np.ceil(np.log10(b / a))) + 1))
+        edges = sorted(set(edges + [c for c in cuts if a < c < b]))
+        pieces += [(index, x, y, a > 0, 16) for x, y in zip(edges[:-1], edges[1:])]
+    starts = [next((i for i, piece in enumerate(pieces) if piece[1] >= p), len(pieces)) for p in points]
+    return pieces, starts, r_s, far
+
+
+def _march(problem, l, omegas, steps, layout):
+    """D(omega) and, at each point of the layout, the regular and the decaying states, all as (value, log scale)
+    pairs: the arrays times e^(log scale).  u_reg's normalisation is common to D and its states."""
+    pieces, starts, r_s, far = layout
+    n = len(omegas)
+    multiple = max(1, steps // 16)
+    first = problem.regions[0]
+    if r_s == 0.0:
+        state = np.tile([0.0, 1.0], (n, 1))
+        log_scale = np.zeros(n)
+    else:
+        s, a0, a1, a2 = (np.broadcast_to(np.asarray(c, dtype=float), omegas.shape)
+                         for c in np.asarray(first.centre_series(l, omegas), dtype=float)[:4])
+        F = 1.0 / float(np.asarray(first.dtortoise_dr(np.array([r_s]))).reshape(-1)[0])
+        poly = a0 + a1 * r_s + a2 * r_s * r_s
+        state = np.stack([poly, F * (s / r_s * poly + a1 + 2 * a2 * r_s)], axis=1)
+        log_scale = s * np.log(r_s)
+    interfaces = {i.inner: i for i in problem.interfaces}
+    regular = [None] * len(starts)
+    # the propagator from each point to the far radius (unit size, log scale, interface determinants)
+    outer = [np.broadcast_to(np.eye(2), (n, 2, 2)).copy() for _ in starts]
+    outer_log = [np.zeros(n) for _ in starts]
+    outer_det = [np.ones(n) for _ in starts]
+
+    def apply(matrix, scale, position):
+        for j, begin in enumerate(starts):
+            if position >= begin:
+                product = matrix @ outer[j]
+                size = np.max(np.abs(product), axis=(1, 2))
+                outer[j] = product / size[:, None, None]
+                outer_log[j] = outer_log[j] + scale + np.log(size)
+
+    for position, (index, a, b, geometric, count) in enumerate(pieces):
+        region = problem.regions[index]
+        for j, begin in enumerate(starts):
+            if position == begin:
+                regular[j] = (state.copy(), log_scale.copy())
+        matrix, scale = region_propagator(region, l, omegas, a, b, count * multiple, geometric)
+        state = np.einsum("nij,nj->ni", matrix, state)
+        size = np.max(np.abs(state), axis=1)
+        state = state / size[:, None]
+        log_scale = log_scale + scale + np.log(size)
+        apply(matrix, scale, position)
+        last_of_region = position + 1 == len(pieces) or pieces[position + 1][0] != index
+        if last_of_region and region.name in interfaces and (region.upper or np.inf) < far:
+            transfer = np.moveaxis(np.broadcast_to(np.asarray(interfaces[region.name].transfer(l, omegas),
+                                                              dtype=float), (2, 2, n)), -1, 0)
+            state = np.einsum("nij,nj->ni", transfer, state)
+            apply(transfer, np.zeros(n), position)
+            for j, begin in enumerate(starts):
+                if position >= begin:
+                    outer_det[j] = outer_det[j] * np.linalg.det(transfer)
+    for j, begin in enumerate(starts):
+        if begin == len(pieces):
+            regular[j] = (state.copy(), log_scale.copy())
+    # the decaying solution at the far radius: u'/u = -kappa - kappa'/(2 kappa) (corrected Liouville-Green)
+    region = problem.regions[-1]
+    r = far * np.array([1.0, 1 - 1e-3, 1 + 1e-3])
+    V = np.asarray(region.potential(r, l, 0.0), dtype=float) * np.ones(3)
+    F = 1.0 / float(np.asarray(region.dtortoise_dr(np.array([far]))).reshape(-1)[0])
+    dV = F * (V[2] - V[1]) / (2e-3 * far)
+    kappa = np.sqrt(V[0] - omegas ** 2)
+    s0, s1 = np.ones(n), -kappa - dV / (4 * kappa * kappa)
+    D = (state[:, 0] * s1 - state[:, 1] * s0, log_scale)
+    # u_dec at each point through the inverse propagator (adjugate over determinant: the steps are unimodular)
+    decaying = [(np.stack([o[:, 1, 1] * s0 - o[:, 0, 1] * s1, -o[:, 1, 0] * s0 + o[:, 0, 0] * s1], axis=1)
+                 / det[:, None], log) for o, log, det in zip(outer, outer_log, outer_det)]
+    return D, regular, decaying
+
+
+def _d_value(problem, l, omegas, steps, layout):
+    """The sign-carrying mismatch D(omega) at unit scale (its sign is what bisection needs)."""
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        return _march(problem, l, omegas, steps, layout)[0][0]
+
+
+def _levels(problem, l, steps, count, r0, brackets=None):
+    """The lowest ``count`` zeros of D on a grid of ``steps``; returns (omegas, truncated, brackets)."""
+    threshold = continuum_threshold(problem)
+    C = tail_strength(problem)
+    if brackets is None:
+        V_min = _lowest_potential(problem, l)
+        if not V_min < threshold ** 2:
+            return np.zeros(0), False, []
+        x_low = 1.0 / np.sqrt(threshold ** 2 - max(V_min, 0.0))
+        coulomb = C > 1e-12 * problem.length_scale * threshold ** 2
+        x_high = 2.0 * (count + l + 1.5) / C if coulomb else 1e3 * problem.length_scale
+        spacing = (2.0 / C) / 16 if coulomb else (x_high - x_low) / 400
+        xs = np.arange(x_low, x_high + spacing, spacing)
+        omegas = np.sqrt(threshold ** 2 - 1.0 / xs ** 2)
+        signs = np.zeros(len(omegas))
+        # batches by octave of x: each with a far radius that suits it (see _layout)
+        octave = np.floor(np.log2(xs / x_low)).astype(int)
+        for value in np.unique(octave):
+            index = np.nonzero(octave == value)[0]
+            layout = _layout(problem, l, float(omegas[index[-1]]))
+            signs[index] = np.sign(_d_value(problem, l, omegas[index], steps, layout))
+        change = np.nonzero(signs[:-1] * signs[1:] < 0)[0]
+        brackets = [(float(omegas[i]), float(omegas[i + 1])) for i in change[:count]]
+        truncated = coulomb or len(change) > count
+    else:
+        truncated = None
+    if not brackets:
+        return np.zeros(0), truncated, brackets
+    # all brackets bisected together on the layout of the highest (its far radius suits every lower level too:
+    # they only decay faster beyond it)
+    low, high = (np.array(side, dtype=float) for side in zip(*brackets))
+    layout = _layout(problem, l, float(np.max(high)))
+    d_low = _d_value(problem, l, low, steps, layout)
+    # a bracket from a coarser grid must still hold a sign change; if not, the level is reported as not found
+    lost = ~(np.sign(d_low) * np.sign(_d_value(problem, l, high, steps, layout)) < 0)
+    for _ in range(BISECTIONS):
+        middle = 0.5 * (low + high)
+        if np.all((middle == low) | (middle == high)):
+            break
+        d_mid = _d_value(problem, l, middle, steps, layout)
+        same = np.sign(d_mid) == np.sign(d_low)
+        low, d_low = np.where(same, middle, low), np.where(same, d_mid, d_low)
+        high = np.where(same, high, middle)
+    found = np.where(lost, np.nan, 0.5 * (low + high))
+    return found, truncated, brackets
+
+
+def _weights(problem, l, omegas, steps, r0):
+    """w_n at r0 for each eigenfrequency: u_n(r0)^2 / (2 omega_n int u_n^2 dr*) times the harmonics' weight over
+    r0^(D-2), with 2 omega_n int u_n^2 = b D'(omega_n) and b = u_reg/u_dec read at the bottom of the well r_m;
+    u_n = u_reg inside r_m (marched outward: stable there) and b u_dec outside it (marched inward)."""
+    out = np.zeros(len(omegas))
+    dimension = problem.dimension - 2
+    for i, omega in enumerate(omegas):
+        r_m = _well_bottom(problem, l, omega)
+        layout = _layout(problem, l, omega * (1 + 1e-6), (r0, r_m))
+        h = 1e-5 * (continuum_threshold(problem) - omega)
+        stencil = omega + h * np.array([-2.0, -1.0, 0.0, 1.0, 2.0])
+        with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+            (D, log_D), regular, decaying = _march(problem, l, stencil, steps, layout)
+        values = D * np.exp(log_D - log_D[2])
+        derivative = (values[0] - 8 * values[1] + 8 * values[3] - values[4]) / (12 * h)   # of D e^-log_D[2]
+        (reg_0, reg_0_log), (reg_m, reg_m_log) = regular
+        (dec_0, dec_0_log), (dec_m, dec_m_log) = decaying
+        j = int(np.argmax(np.abs(dec_m[2])))          # b from u (or from u' where u vanishes)
+        log_b_ratio = reg_m_log[2] - dec_m_log[2]
+        b = reg_m[2, j] / dec_m[2, j]                 # times e^(log_b_ratio)
+        component = 1 if r0 == 0.0 else 0
+        if r0 <= r_m:
+            # u_reg(r0)^2 / (b D'), everything in units of e^(log_D) for u_reg
+            value = reg_0[2, component] ** 2 / (b * derivative) * np.exp(2 * reg_0_log[2] - log_b_ratio - log_D[2])
+        else:
+            value = b * dec_0[2, component] ** 2 / derivative * np.exp(log_b_ratio + 2 * dec_0_log[2] - log_D[2])
+        if r0 == 0.0:
+            if l != 0:
+                continue
+            # psi(0) = du/dr at the centre = (dr*/dr) du/dr*;  |Y_00|^2 = 1/(4 pi)
+            centre = float(np.asarray(problem.regions[0].dtortoise_dr(np.array([0.0]))).reshape(-1)[0])
+            out[i] = centre ** 2 * value / (4 * np.pi)
+        else:
+            out[i] = harmonic_weight(l, dimension) * value / r0 ** dimension
+    return out
+
+
+def bound_states(problem, l: int = 0, r0: float = 0.0, tolerance: float = 1e-10, count: int = 6,
+                 steps: int = 64, max_steps: int = 4096) -> BoundStates:
+    """The lowest ``count`` bound states of angular label l, with weights at r0 (see the module docstring)."""
+    check_supported(problem, any_dimension=True)
+    if r0 == 0.0 and problem.dimension != 4:
+        raise Unsupported("bound-state weights at the centre are implemented in 3+1; give a radius r0 > 0")
+    if continuum_threshold(problem) == 0.0:
+        return BoundStates(l, r0, *(np.zeros(0) for _ in range(4)), False, tolerance)
+    region_at(problem, r0)
+    omegas, truncated, brackets = _levels(problem, l, steps, count, r0)
+    if not len(omegas):
+        return BoundStates(l, r0, *(np.zeros(0) for _ in range(4)), truncated, tolerance)
+    weights = _weights(problem, l, omegas, steps, r0)
+    while True:
+        finer, _, _ = _levels(problem, l, 2 * steps, count, r0, brackets)
+        finer_weights = _weights(problem, l, finer, 2 * steps, r0)
+        omega_error = np.abs(finer - omegas) + 16 * steps * np.finfo(float).eps * finer   # rounding in D's zero
+        weight_error = np.abs(finer_weights - weights) + 1e-12 * np.abs(finer_weights)
+        omegas, weights, steps = finer, finer_weights, 2 * steps
+        result = BoundStates(l, r0, omegas, omega_error, weights, weight_error, truncated, tolerance)
+        if result.ok or steps >= max_steps:
+            return result
