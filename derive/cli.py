@@ -212,6 +212,10 @@ def cmd_spectrum(args) -> int:
     problem = _numeric_problem(spacetime)
     if problem.regions[0].lower_kind == "horizon":
         return _scattering_output(args, spacetime, problem, omegas, tolerance)
+    from derive.solve.bound import is_ads
+
+    if is_ads(problem):
+        return _normal_mode_output(args, spacetime, problem, omegas, tolerance)
     try:
         if args.at:
             from derive.solve.api import spectrum_off_centre
@@ -251,23 +255,44 @@ def cmd_spectrum(args) -> int:
     return 0
 
 
+def _normal_mode_output(args, spacetime, problem, omegas, tolerance) -> int:
+    """An asymptotically AdS spacetime: the spectrum is discrete (a reflecting boundary), so the density between
+    the normal modes is zero and the modes of the requested l are listed with their weights at --at."""
+    from derive.errors import AccuracyError
+    from derive.report.tables import write_spectrum_files
+    from derive.solve.api import METHOD, bound_state_table
+    from derive.solve.centre import Unsupported
+
+    r0 = float(args.at or 0.0)
+    try:
+        modes = bound_state_table(problem, args.l, r0, tolerance)
+    except Unsupported as exc:
+        raise InputError(f"derive spectrum cannot find the normal modes: {exc}", file=spacetime.path) from None
+    zeros = [0.0] * len(omegas)
+    data = {"l": args.l, "at": r0, "omega": list(map(float, omegas)), "density": zeros,
+            "error": {"density": zeros}, "tolerance": tolerance, "method": METHOD, "minkowski_density": zeros,
+            "normal_modes": modes, "bound_states": modes,
+            "units": "discrete spectrum (reflecting AdS boundary): zero density between the normal modes, whose "
+                     "weights are listed under normal_modes"}
+    rows = (f"{w:22.15e} {we:10.1e} {d:22.15e} {de:10.1e}" for w, we, d, de in
+            zip(modes["omega"], modes["error"]["omega"], modes["weight"], modes["error"]["weight"]))
+    _deliver(args, data, write_spectrum_files, spacetime.title,
+             f"{spacetime.title}: normal modes of l = {args.l} (reflecting AdS boundary), weights at r = {r0:g}\n"
+             f"{'omega':>22} {'error':>10} {'weight':>22} {'error':>10}", rows)
+    if not modes["ok"]:
+        raise AccuracyError(modes["message"], {"tolerance": tolerance})
+    return 0
+
+
 def _bound_states(problem, l, r0, tolerance, spacetime):
     """The lowest bound states of the requested l where a massive field has them (None where it has none)."""
-    from derive.solve.bound import LEVELS, bound_states
-    from derive.solve.centre import Unsupported, bound_states_possible
+    from derive.solve.api import bound_state_table
+    from derive.solve.centre import Unsupported
 
-    if not bound_states_possible(problem):
-        return None
     try:
-        found = bound_states(problem, l, r0, tolerance, count=LEVELS)
+        return bound_state_table(problem, l, r0, tolerance)
     except Unsupported as exc:
         raise InputError(f"derive spectrum cannot find the bound states: {exc}", file=spacetime.path) from None
-    floats = lambda values: list(map(float, values))
-    return {"l": l, "at": r0, "omega": floats(found.omega), "weight": floats(found.weight),
-            "error": {"omega": floats(found.omega_error), "weight": floats(found.weight_error)},
-            "truncated": found.truncated, "ok": found.ok, "message": found.message(),
-            "units": "omega of the spec's time coordinate; weight: the level's delta-function coefficient in the "
-                     "spectral density at r0 (sum over m of |phi_n(r0)|^2, phi_n Klein-Gordon normalised)"}
 
 
 def _scattering_output(args, spacetime, problem, omegas, tolerance) -> int:

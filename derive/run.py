@@ -129,6 +129,12 @@ def _numerics(spacetime, kernels, staging, tolerance, summary, timings, progress
         _greybody(spacetime, problem, omegas, staging, tolerance, summary, timings, start)
         _response(spacetime, kernels, problem, staging, tolerance, summary, timings, progress)
         return
+    from derive.solve.bound import is_ads
+
+    if is_ads(problem):
+        _normal_modes(spacetime, problem, omegas, staging, tolerance, summary, timings, start)
+        _response(spacetime, kernels, problem, staging, tolerance, summary, timings, progress)
+        return
     try:
         result = spectrum_at_centre(problem, omegas, 0, tolerance)
     except Unsupported as exc:
@@ -138,16 +144,46 @@ def _numerics(spacetime, kernels, staging, tolerance, summary, timings, progress
     data = {"l": 0, "at": 0.0, "omega": omegas.tolist(), "density": result["density"].tolist(),
             "error": {"density": result["error"].tolist()}, "minkowski_density": result["minkowski"].tolist(),
             "method": METHOD}
+    from derive.solve.api import bound_state_table
+
+    levels = bound_state_table(problem, 0, 0.0, tolerance)
+    if levels is not None:
+        data["bound_states"] = levels
     write_spectrum_files(staging, data, spacetime.title, pdf=True)
-    worst = float(np.max(result["error"] / result["density"]))
+    positive = result["density"] > 0        # below a field's mass there is no continuum (density 0, error 0)
+    worst = float(np.max(result["error"][positive] / result["density"][positive])) if np.any(positive) else 0.0
     summary["spectrum"] = {"at": 0.0, "l": 0, "omega_range": [float(omegas[0]), float(omegas[-1])],
                            "points": count, "largest_relative_error": worst, "ok": bool(result["ok"])}
+    if levels is not None:
+        summary["spectrum"]["bound_states"] = {"omega": levels["omega"], "weight": levels["weight"],
+                                               "ok": levels["ok"], "truncated": levels["truncated"]}
+        result["ok"] = result["ok"] and levels["ok"]
+        if not levels["ok"]:
+            result["message"] = levels["message"]
     timings["spectrum"] = time.perf_counter() - start
     if not result["ok"]:
         from derive.errors import AccuracyError
 
         raise AccuracyError(result["message"], {"largest relative error": worst, "tolerance": tolerance})
     _response(spacetime, kernels, problem, staging, tolerance, summary, timings, progress)
+
+
+def _normal_modes(spacetime, problem, omegas, staging, tolerance, summary, timings, start):
+    """A reflecting AdS boundary: the l = 0 normal modes and their weights at the centre (zero density between)."""
+    from derive.errors import AccuracyError
+    from derive.report.tables import write_spectrum_files
+    from derive.solve.api import METHOD, bound_state_table
+
+    modes = bound_state_table(problem, 0, 0.0, tolerance)
+    zeros = [0.0] * len(omegas)
+    data = {"l": 0, "at": 0.0, "omega": omegas.tolist(), "density": zeros, "error": {"density": zeros},
+            "minkowski_density": zeros, "method": METHOD, "bound_states": modes}
+    write_spectrum_files(staging, data, spacetime.title, pdf=True)
+    summary["spectrum"] = {"at": 0.0, "l": 0, "normal_modes": {"omega": modes["omega"], "weight": modes["weight"],
+                                                               "ok": modes["ok"]}, "ok": modes["ok"]}
+    timings["spectrum"] = time.perf_counter() - start
+    if not modes["ok"]:
+        raise AccuracyError(modes["message"], {"tolerance": tolerance})
 
 
 def _response(spacetime, kernels, problem, staging, tolerance, summary, timings, progress):

@@ -84,3 +84,19 @@ def test_s_levels_at_the_centre_scale_like_hydrogen(tmp_path):
 def test_no_bound_states_for_a_massless_field(tmp_path, capsys):
     assert main(["spectrum", DUST_SHELL, "--omega", "1.0", "--json", "--tolerance", "1e-8"]) == 0
     assert "bound_states" not in json.loads(capsys.readouterr().out)
+
+
+@pytest.mark.slow
+def test_run_lists_the_bound_states_and_says_why_there_is_no_response(tmp_path):
+    # derive run on a massive field around a body: the continuum density, the s levels at the centre (in the
+    # summary and bound_states.csv), and the response skipped with its reason rather than an incomplete number
+    spec = light_field_around_a_shell(str(tmp_path))
+    out = str(tmp_path / "atom")
+    assert main(["run", spec, "--out", out]) == 0
+    with open(os.path.join(out, "summary.json")) as handle:
+        summary = json.load(handle)
+    levels = summary["spectrum"]["bound_states"]
+    assert levels["ok"] and len(levels["omega"]) == 4 and all(w < MU for w in levels["omega"])
+    assert os.path.exists(os.path.join(out, "bound_states.csv"))
+    assert "bound states" in summary["skipped"]["response"]
+    assert np.isfinite(summary["spectrum"]["largest_relative_error"])

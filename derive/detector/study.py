@@ -131,6 +131,17 @@ def detector_response(problem, detector, tolerance: float = 1e-10, gaps=None, st
                           "Svaiter, Phys. Rev. D 46, 5267 (1992), from memory): choose a smoother switching "
                           "(gaussian, bump, cos2, sin4)")
     gaps = np.asarray(detector.gaps if gaps is None else gaps, dtype=float)
+    from derive.solve.bound import is_ads
+
+    if is_ads(problem):      # a reflecting boundary: the spectrum is discrete, the response a sum over modes
+        if state != "vacuum":
+            raise Unsupported(f"state {state!r}: an AdS spacetime without a horizon has its global vacuum only "
+                              "(use 'vacuum')")
+        from derive.detector.response import normal_mode_response
+
+        sqrt_f0 = _sqrt_f(problem, detector.radius)
+        return (normal_mode_response(problem, gaps, switching, detector.radius, sqrt_f0, tolerance, D),
+                switching, sqrt_f0)
     density_at, sqrt_f0, thermal = proper_density(problem, tolerance, detector.radius, state, progress)
     from derive.solve.centre import continuum_threshold
 

@@ -49,3 +49,21 @@ def scattering(problem, omegas, l: int, tolerance: float = 1e-10) -> dict:
     result = transmission(problem, l, np.asarray(omegas, dtype=float), tolerance)
     return {"l": l, "omega": result.omega, "transmission": result.transmission, "reflection": result.reflection,
             "error": result.error, "flux_defect": result.flux_defect, "ok": result.ok, "message": result.message()}
+
+
+def bound_state_table(problem, l: int, r0: float, tolerance: float):
+    """The lowest bound states (or, with a reflecting AdS boundary, normal modes) of angular label l
+    (frequencies, weights at r0, errors) as plain data, or None where the field has none (derive.solve.bound)."""
+    from derive.solve.bound import LEVELS, bound_states, is_ads
+    from derive.solve.centre import bound_states_possible
+
+    if not is_ads(problem) and (problem.regions[0].lower_kind != "regular centre"
+                                or not bound_states_possible(problem)):
+        return None
+    found = bound_states(problem, l, r0, tolerance, count=LEVELS)
+    floats = lambda values: list(map(float, values))
+    return {"l": l, "at": r0, "omega": floats(found.omega), "weight": floats(found.weight),
+            "error": {"omega": floats(found.omega_error), "weight": floats(found.weight_error)},
+            "truncated": found.truncated, "ok": found.ok, "message": found.message(),
+            "units": "omega of the spec's time coordinate; weight: the level's delta-function coefficient in the "
+                     "spectral density at r0 (sum over m of |phi_n(r0)|^2, phi_n Klein-Gordon normalised)"}

@@ -78,6 +78,43 @@ def tail_strength(problem) -> float:
     return R * (threshold ** 2 - V)
 
 
+def is_ads(problem) -> bool:
+    return problem.regions[-1].upper is None and problem.regions[-1].tail == "AdS-like"
+
+
+def ads_boundary(problem) -> tuple[float, float]:
+    """(L, Delta) of an asymptotically AdS end: f -> r^2/L^2, and the normalisable falloff psi ~ r^-Delta with
+    Delta = (D-1)/2 + sqrt((D-1)^2/4 + m^2 L^2) (Breitenlohner & Freedman, Ann. Phys. 144, 249 (1982); the
+    reflecting, 'Dirichlet' choice), the effective mass from the potential itself: with n = D - 2 and F = f,
+    V/f -> m^2 + (n/2)(1 + n/2)/L^2 far out (PHYSICS.md section 4)."""
+    last = problem.regions[-1]
+    R = 1e6 * problem.length_scale
+    f = float(np.asarray(last.metric_f(np.array([R]))).reshape(-1)[0])
+    L2 = R * R / f
+    n = problem.dimension - 2
+    V = float(np.asarray(last.potential(np.array([R]), 0, 0.0)).reshape(-1)[0])
+    m2L2 = V / f * L2 - (n / 2) * (1 + n / 2)
+    root = (n + 1) ** 2 / 4 + m2L2
+    if root < 0:
+        raise Unsupported(f"the field's effective mass squared m^2 L^2 = {m2L2:.6g} is below the "
+                          f"Breitenlohner-Freedman bound -(D-1)^2/4: the field is unstable in this AdS")
+    return float(np.sqrt(L2)), (n + 1) / 2 + float(np.sqrt(root))
+
+
+def _tortoise_extent(problem) -> float:
+    """r* from the centre to the AdS boundary (finite)."""
+    nodes, weights = np.polynomial.legendre.leggauss(20)
+    total = 0.0
+    for region in problem.regions:
+        lower = max(region.lower, 1e-9 * problem.length_scale)
+        upper = region.upper if region.upper is not None else 1e9 * problem.length_scale
+        edges = np.geomspace(lower, upper, int(np.ceil(np.log10(upper / lower))) * 4 + 2)
+        for a, b in zip(edges[:-1], edges[1:]):
+            x = (a + b) / 2 + (b - a) / 2 * nodes
+            total += float(np.sum(weights * region.dtortoise_dr(x)) * (b - a) / 2)
+    return total
+
+
 def outer_turning_point(problem, l, omega, start) -> float:
     """The largest radius (from ``start`` outward) where omega^2 >= V, sampled finely and rounded up to the next
     sample."""
@@ -124,12 +161,18 @@ def _layout(problem, l, omega_top, points=()):
     """Pieces (region index, a, b, geometric, base steps) from the start to the far radius, cut at each of
     ``points`` (the pieces' start index of each point: the first piece beyond it), the series start and the far
     radius, for frequencies up to omega_top."""
-    threshold = continuum_threshold(problem)
-    kappa = np.sqrt(threshold ** 2 - omega_top ** 2)
     L = problem.length_scale
-    far = max([outer_turning_point(problem, l, omega_top, 1e-6 * L)] + list(points)) + 40.0 / kappa
+    if is_ads(problem):
+        # the normalisable solution starts on its leading power far out: the next term is (L/r)^2 ~ 1e-12 of it
+        far = max([1e6 * ads_boundary(problem)[0]] + list(points))
+        scale = 1.0 / max(omega_top, 1e-300)
+    else:
+        threshold = continuum_threshold(problem)
+        kappa = np.sqrt(threshold ** 2 - omega_top ** 2)
+        far = max([outer_turning_point(problem, l, omega_top, 1e-6 * L)] + list(points)) + 40.0 / kappa
+        scale = 1 / threshold
     inner = [p for p in points if p > 0]
-    r_s = 0.0 if (l == 0 and problem.dimension == 4) else 1e-3 * min([L, 1 / threshold] + inner)
+    r_s = 0.0 if (l == 0 and problem.dimension == 4) else 1e-3 * min([L, scale] + inner)
     cuts = sorted(set(p for p in points if p > r_s))
     pieces = []
     for index, region in enumerate(problem.regions):
@@ -138,10 +181,12 @@ def _layout(problem, l, omega_top, points=()):
         if b <= a:
             continue
         edges = [a, b]
-        if a > 0 and b / a > 10:
+        if a == 0 and b > L:      # from the centre: uniform out to one length scale, geometric beyond
+            edges = [0.0] + list(np.geomspace(L, b, int(np.ceil(np.log10(b / L))) + 1))
+        elif a > 0 and b / a > 10:
             edges = list(np.geomspace(a, b, int(np.ceil(np.log10(b / a))) + 1))
         edges = sorted(set(edges + [c for c in cuts if a < c < b]))
-        pieces += [(index, x, y, a > 0, 16) for x, y in zip(edges[:-1], edges[1:])]
+        pieces += [(index, x, y, x > 0, 16) for x, y in zip(edges[:-1], edges[1:])]
     starts = [next((i for i, piece in enumerate(pieces) if piece[1] >= p), len(pieces)) for p in points]
     return pieces, starts, r_s, far
 
@@ -201,19 +246,29 @@ def _march(problem, l, omegas, steps, layout):
     for j, begin in enumerate(starts):
         if begin == len(pieces):
             regular[j] = (state.copy(), log_scale.copy())
-    # the decaying solution at the far radius: u'/u = -kappa - kappa'/(2 kappa) (corrected Liouville-Green)
-    region = problem.regions[-1]
-    r = far * np.array([1.0, 1 - 1e-3, 1 + 1e-3])
-    V = np.asarray(region.potential(r, l, 0.0), dtype=float) * np.ones(3)
-    F = 1.0 / float(np.asarray(region.dtortoise_dr(np.array([far]))).reshape(-1)[0])
-    dV = F * (V[2] - V[1]) / (2e-3 * far)
-    kappa = np.sqrt(V[0] - omegas ** 2)
-    s0, s1 = np.ones(n), -kappa - dV / (4 * kappa * kappa)
+    s0, s1 = _outer_solution(problem, l, omegas, far)
     D = (state[:, 0] * s1 - state[:, 1] * s0, log_scale)
     # u_dec at each point through the inverse propagator (adjugate over determinant: the steps are unimodular)
     decaying = [(np.stack([o[:, 1, 1] * s0 - o[:, 0, 1] * s1, -o[:, 1, 0] * s0 + o[:, 0, 0] * s1], axis=1)
                  / det[:, None], log) for o, log, det in zip(outer, outer_log, outer_det)]
     return D, regular, decaying
+
+
+def _outer_solution(problem, l, omegas, far):
+    """(u, du/dr*) at the far radius of the solution that the outer end allows: at an AdS boundary the
+    normalisable one, u = r^(n/2 - Delta); otherwise the one decaying below the mass, u'/u = -kappa -
+    kappa'/(2 kappa) (corrected Liouville-Green)."""
+    n = len(omegas)
+    region = problem.regions[-1]
+    F = 1.0 / float(np.asarray(region.dtortoise_dr(np.array([far]))).reshape(-1)[0])
+    if is_ads(problem):
+        _, delta = ads_boundary(problem)
+        return np.ones(n), np.full(n, F * ((problem.dimension - 2) / 2 - delta) / far)
+    r = far * np.array([1.0, 1 - 1e-3, 1 + 1e-3])
+    V = np.asarray(region.potential(r, l, 0.0), dtype=float) * np.ones(3)
+    dV = F * (V[2] - V[1]) / (2e-3 * far)
+    kappa = np.sqrt(V[0] - omegas ** 2)
+    return np.ones(n), -kappa - dV / (4 * kappa * kappa)
 
 
 def _d_value(problem, l, omegas, steps, layout):
@@ -224,6 +279,20 @@ def _d_value(problem, l, omegas, steps, layout):
 
 def _levels(problem, l, steps, count, r0, brackets=None):
     """The lowest ``count`` zeros of D on a grid of ``steps``; returns (omegas, truncated, brackets)."""
+    if brackets is None and is_ads(problem):
+        # normal modes: spaced by about pi/r*_boundary (2/L in pure AdS), the lowest near Delta/L; scanned
+        # 16 points per spacing up to Delta + l + 2 count + 4 spacings' worth
+        L_ads, delta = ads_boundary(problem)
+        spacing = np.pi / _tortoise_extent(problem)
+        top = (delta + l + 2 * count + 4) * spacing / 2
+        omegas = np.arange(spacing / 16, top, spacing / 16)
+        layout = _layout(problem, l, float(omegas[-1]))
+        signs = np.sign(_d_value(problem, l, omegas, steps, layout))
+        change = np.nonzero(signs[:-1] * signs[1:] < 0)[0]
+        brackets = [(float(omegas[i]), float(omegas[i + 1])) for i in change[:count]]
+        truncated = True
+    elif brackets is not None:
+        truncated = None
     threshold = continuum_threshold(problem)
     C = tail_strength(problem)
     if brackets is None:
@@ -246,8 +315,6 @@ def _levels(problem, l, steps, count, r0, brackets=None):
         change = np.nonzero(signs[:-1] * signs[1:] < 0)[0]
         brackets = [(float(omegas[i]), float(omegas[i + 1])) for i in change[:count]]
         truncated = coulomb or len(change) > count
-    else:
-        truncated = None
     if not brackets:
         return np.zeros(0), truncated, brackets
     # all brackets bisected together on the layout of the highest (its far radius suits every lower level too:
@@ -278,7 +345,7 @@ def _weights(problem, l, omegas, steps, r0):
     for i, omega in enumerate(omegas):
         r_m = _well_bottom(problem, l, omega)
         layout = _layout(problem, l, omega * (1 + 1e-6), (r0, r_m))
-        h = 1e-5 * (continuum_threshold(problem) - omega)
+        h = 1e-5 * (omega if is_ads(problem) else continuum_threshold(problem) - omega)
         stencil = omega + h * np.array([-2.0, -1.0, 0.0, 1.0, 2.0])
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
             (D, log_D), regular, decaying = _march(problem, l, stencil, steps, layout)
@@ -307,12 +374,15 @@ def _weights(problem, l, omegas, steps, r0):
 
 
 def bound_states(problem, l: int = 0, r0: float = 0.0, tolerance: float = 1e-10, count: int = 6,
-                 steps: int = 64, max_steps: int = 4096) -> BoundStates:
+                 steps: int = 64, max_steps: int = 16384) -> BoundStates:
     """The lowest ``count`` bound states of angular label l, with weights at r0 (see the module docstring)."""
-    check_supported(problem, any_dimension=True)
+    if not is_ads(problem):
+        check_supported(problem, any_dimension=True)
+    elif problem.regions[0].lower_kind != "regular centre":
+        raise Unsupported("normal modes of an AdS spacetime need a regular centre, so far")
     if r0 == 0.0 and problem.dimension != 4:
         raise Unsupported("bound-state weights at the centre are implemented in 3+1; give a radius r0 > 0")
-    if continuum_threshold(problem) == 0.0:
+    if not is_ads(problem) and continuum_threshold(problem) == 0.0:
         return BoundStates(l, r0, *(np.zeros(0) for _ in range(4)), False, tolerance)
     region_at(problem, r0)
     omegas, truncated, brackets = _levels(problem, l, steps, count, r0)
@@ -320,11 +390,14 @@ def bound_states(problem, l: int = 0, r0: float = 0.0, tolerance: float = 1e-10,
         return BoundStates(l, r0, *(np.zeros(0) for _ in range(4)), truncated, tolerance)
     weights = _weights(problem, l, omegas, steps, r0)
     while True:
+        # each level re-bracketed around its last value (the scan's bracket may sit beside the converged level:
+        # the coarse grid's error moved it in)
+        brackets = [(w - (high - low) / 2, w + (high - low) / 2) for w, (low, high) in zip(omegas, brackets)]
         finer, _, _ = _levels(problem, l, 2 * steps, count, r0, brackets)
         finer_weights = _weights(problem, l, finer, 2 * steps, r0)
         omega_error = np.abs(finer - omegas) + 16 * steps * np.finfo(float).eps * finer   # rounding in D's zero
         weight_error = np.abs(finer_weights - weights) + 1e-12 * np.abs(finer_weights)
         omegas, weights, steps = finer, finer_weights, 2 * steps
         result = BoundStates(l, r0, omegas, omega_error, weights, weight_error, truncated, tolerance)
-        if result.ok or steps >= max_steps:
+        if result.ok or steps >= max_steps or not np.all(np.isfinite(omegas)):
             return result

@@ -1,0 +1,104 @@
+"""A reflecting AdS boundary: normal modes, their weights, and a detector at the centre (PHYSICS.md section 6:
+the spectrum is discrete)."""
+
+import json
+import os
+
+import numpy as np
+import pytest
+
+from derive.cli import main
+
+L = 1.0
+ADS = """# Anti-de Sitter space in global coordinates
+format = 1
+title = "AdS4"
+
+[parameters]
+L = {{ value = {L}, positive = true }}
+
+[coordinates]
+names = ["t", "r", "theta", "phi"]
+positive = ["r"]
+
+[definitions]
+f = "1 + r**2/L**2"
+
+[[region]]
+name = "all"
+where = "r >= 0"
+line_element = "-f*dt**2 + dr**2/f + r**2*(dtheta**2 + sin(theta)**2*dphi**2)"
+
+[field]
+mass = "{mass}"
+coupling = "{coupling}"
+
+[detector]
+at = "r = 0"
+switching = {{ shape = "gaussian", width = "{width}" }}
+gaps = [0.0]
+state = "vacuum"
+
+[compare]
+with = "minkowski"
+"""
+
+
+def ads_spec(folder, mass="0", coupling="0", width="0.04") -> str:
+    path = os.path.join(folder, f"ads_{mass}_{coupling.replace('/', '_')}.toml")
+    with open(path, "w") as handle:
+        handle.write(ADS.format(L=L, mass=mass, coupling=coupling, width=width))
+    return path
+
+
+def normal_modes(spec, l, capsys, at=None):
+    argv = ["spectrum", spec, "--l", str(l), "--omega", "1.0", "--json"] + (["--at", str(at)] if at else [])
+    assert main(argv) == 0
+    data = json.loads(capsys.readouterr().out)
+    assert data["density"] == [0.0]            # discrete spectrum: nothing between the modes
+    return data["normal_modes"]
+
+
+def delta(mass, coupling):
+    """Delta = 3/2 + sqrt(9/4 + m^2 L^2), m^2 = mu^2 + xi R, R = -12/L^2 (Breitenlohner & Freedman 1982)."""
+    return 1.5 + np.sqrt(2.25 + (mass ** 2 - 12 * coupling / L ** 2) * L ** 2)
+
+
+def test_normal_modes_and_weights_of_ads(tmp_path, capsys):
+    # Normal modes of a scalar in global AdS4 with reflecting (normalisable, Delta_+) boundary conditions:
+    # omega L = Delta + l + 2n (Avis, Isham & Storey, Phys. Rev. D 18, 3565 (1978); Breitenlohner & Freedman,
+    # Ann. Phys. 144, 249 (1982)).  Conformal coupling: Delta = 2 (minimal and massive: the slow test below).
+    # Conformal, l = 0: V = 0 and u = sin(omega r*) on 0 < r* < pi L/2, so 2 omega int u^2 dr* = 1 gives the
+    # weight at the centre (1/4 pi)|u'(0)|^2 = omega/(2 pi^2 L) (derived here; common practice).
+    conformal = normal_modes(ads_spec(str(tmp_path), coupling="1/6"), 0, capsys)
+    n = np.arange(len(conformal["omega"]))
+    np.testing.assert_allclose(conformal["omega"], (2 + 2 * n) / L, rtol=1e-11)
+    np.testing.assert_allclose(conformal["weight"], np.array(conformal["omega"]) / (2 * np.pi ** 2 * L), rtol=1e-10)
+    assert conformal["ok"] and conformal["truncated"]
+    assert all(e <= 1e-10 * w for e, w in zip(conformal["error"]["weight"], conformal["weight"]))
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("mass, l", [("0", 0), ("0", 1), ("1.2", 0), ("1.2", 2)])
+def test_normal_modes_for_other_l_and_masses(tmp_path, capsys, mass, l):
+    modes = normal_modes(ads_spec(str(tmp_path), mass=mass), l, capsys, at=0.5)
+    n = np.arange(len(modes["omega"]))
+    np.testing.assert_allclose(modes["omega"], (delta(float(mass), 0.0) + l + 2 * n) / L, rtol=1e-11)
+    assert modes["ok"] and all(w > 0 for w in modes["weight"])
+
+
+@pytest.mark.slow
+def test_a_short_detector_at_the_centre_of_ads_sees_flat_space_plus_curvature(tmp_path, capsys):
+    # Conformal coupling: the Wightman function at the centre is the mode sum sum_k (2k/L)/(2 pi^2 L) e^{-2ik u/L}
+    # = -1/(4 pi^2 L^2 sin^2(u/L)) = -1/(4 pi^2 u^2) - 1/(12 pi^2 L^2) + O(u^2) (summed here in closed form;
+    # common practice).  The constant shifts F(0) by -|chi_hat(0)|^2/(12 pi^2 L^2) = -sigma^2/(6 pi L^2) for the
+    # Gaussian exp(-tau^2/2 sigma^2), i.e. by -2 sigma^2/(3 L^2) relative to Minkowski's 1/(4 pi); the next order
+    # is ~sigma^2/L^2 of that.  Light comes back from the boundary after pi L.
+    spec = ads_spec(str(tmp_path), coupling="1/6", width="0.04")
+    assert main(["response", spec, "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    sigma = 0.04
+    assert data["relative_difference"][0] == pytest.approx(-2 * sigma ** 2 / (3 * L ** 2), rel=2e-3)
+    assert data["error"][0] < 1e-10 * data["response"][0]
+    assert data["locality"]["round_trip"] == pytest.approx(np.pi * L, rel=1e-8)
+    assert data["locality"]["local"]
