@@ -322,8 +322,16 @@ def _levels(problem, l, steps, count, r0, brackets=None):
     low, high = (np.array(side, dtype=float) for side in zip(*brackets))
     layout = _layout(problem, l, float(np.max(high)))
     d_low = _d_value(problem, l, low, steps, layout)
-    # a bracket from a coarser grid must still hold a sign change; if not, the level is reported as not found
-    lost = ~(np.sign(d_low) * np.sign(_d_value(problem, l, high, steps, layout)) < 0)
+    # a bracket from another grid (the scan's, or a coarser one) may have lost its sign change by a hair (the
+    # level sits at its edge): widen it by its own width, a few times (levels are 16 widths apart, or more);
+    # a level still not bracketed is reported as not found
+    width = high - low
+    for _ in range(4):
+        lost = ~(np.sign(d_low) * np.sign(_d_value(problem, l, high, steps, layout)) < 0)
+        if not np.any(lost):
+            break
+        low, high = np.where(lost, low - width, low), np.where(lost, high + width, high)
+        d_low = _d_value(problem, l, low, steps, layout)
     for _ in range(BISECTIONS):
         middle = 0.5 * (low + high)
         if np.all((middle == low) | (middle == high)):
