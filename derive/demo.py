@@ -61,8 +61,9 @@ def _plain_summary(results, alpha, coupling, sigmas) -> str:
         "whole spacetime and differs from the Minkowski vacuum even where the geometry is exactly flat (as in a "
         "Casimir cavity). What locality removes is only the part carried by signals that return from the shell.",
         "- Every number above carries its error estimate (modes to about 1e-10, quadrature and tails included). "
-        "What it leaves out: a probe that is not perfectly still, or a field with a mass (its bound states around "
-        "the shell are not computed); off-centre probes and black holes in their three states are in worked/.",
+        "What it leaves out: a probe that is not perfectly still, or a field with a mass (derive spectrum lists its "
+        "bound states around the shell, but they are not yet summed into a response); off-centre probes and black "
+        "holes in their three states are in worked/.",
     ]
     return "\n".join(lines)
 
