@@ -34,7 +34,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from derive.solve.centre import Unsupported, check_supported, continuum_threshold, harmonic_weight, region_at
+from derive.solve.centre import (Unsupported, check_supported, continuum_threshold, coulomb_strength, far_potential,
+                                 harmonic_weight, outer_turning_point, region_at)
 from derive.solve.propagation import region_propagator
 
 BISECTIONS = 60
@@ -68,14 +69,6 @@ class BoundStates:
                 f"{self.omega_error[worst] / self.omega[worst]:.1e} (omega), "
                 f"{self.weight_error[worst] / max(abs(self.weight[worst]), 1e-300):.1e} (weight) miss the "
                 f"tolerance {self.tolerance:.0e}")
-
-
-def tail_strength(problem) -> float:
-    """C in V -> threshold^2 - C/r far away (l = 0)."""
-    threshold = continuum_threshold(problem)
-    R = 1e6 * problem.length_scale
-    V = float(np.asarray(problem.regions[-1].potential(np.array([R]), 0, 0.0)).reshape(-1)[0])
-    return R * (threshold ** 2 - V)
 
 
 def is_ads(problem) -> bool:
@@ -113,23 +106,6 @@ def _tortoise_extent(problem) -> float:
             x = (a + b) / 2 + (b - a) / 2 * nodes
             total += float(np.sum(weights * region.dtortoise_dr(x)) * (b - a) / 2)
     return total
-
-
-def outer_turning_point(problem, l, omega, start) -> float:
-    """The largest radius (from ``start`` outward) where omega^2 >= V, sampled finely and rounded up to the next
-    sample."""
-    turning = start
-    for region in problem.regions:
-        lower = max(region.lower, start)
-        upper = region.upper if region.upper is not None else 1e12 * problem.length_scale
-        if upper <= lower:
-            continue
-        r = np.geomspace(lower, upper, 8001)
-        V = np.asarray(region.potential(r, l, 0.0), dtype=float) * np.ones_like(r)
-        allowed = np.nonzero(V <= omega ** 2)[0]
-        if len(allowed):
-            turning = float(r[min(allowed[-1] + 1, len(r) - 1)])
-    return turning
 
 
 def _lowest_potential(problem, l) -> float:
@@ -260,14 +236,12 @@ def _outer_solution(problem, l, omegas, far):
     kappa'/(2 kappa) (corrected Liouville-Green)."""
     n = len(omegas)
     region = problem.regions[-1]
-    F = 1.0 / float(np.asarray(region.dtortoise_dr(np.array([far]))).reshape(-1)[0])
     if is_ads(problem):
+        F = 1.0 / float(np.asarray(region.dtortoise_dr(np.array([far]))).reshape(-1)[0])
         _, delta = ads_boundary(problem)
         return np.ones(n), np.full(n, F * ((problem.dimension - 2) / 2 - delta) / far)
-    r = far * np.array([1.0, 1 - 1e-3, 1 + 1e-3])
-    V = np.asarray(region.potential(r, l, 0.0), dtype=float) * np.ones(3)
-    dV = F * (V[2] - V[1]) / (2e-3 * far)
-    kappa = np.sqrt(V[0] - omegas ** 2)
+    V, dV = far_potential(region, l, far)
+    kappa = np.sqrt(V - omegas ** 2)
     return np.ones(n), -kappa - dV / (4 * kappa * kappa)
 
 
@@ -294,7 +268,7 @@ def _levels(problem, l, steps, count, r0, brackets=None):
     elif brackets is not None:
         truncated = None
     threshold = continuum_threshold(problem)
-    C = tail_strength(problem)
+    C = coulomb_strength(problem)
     if brackets is None:
         V_min = _lowest_potential(problem, l)
         if not V_min < threshold ** 2:

@@ -264,3 +264,36 @@ def _amplitude2(region, state, omegas, radius):
 def minkowski_density(omegas) -> np.ndarray:
     """Flat 3+1, massless: omega/(4 pi^2) (PHYSICS.md section 7; Birrell & Davies 1982, ch. 3)."""
     return np.asarray(omegas, dtype=float) / (4 * np.pi ** 2)
+
+
+def coulomb_strength(problem) -> float:
+    """C in V -> threshold^2 - C/r far away (l = 0; 2 M mu^2 outside a mass M, about 0 when massless)."""
+    threshold = continuum_threshold(problem)
+    R = 1e6 * problem.length_scale
+    V = float(np.asarray(problem.regions[-1].potential(np.array([R]), 0, 0.0)).reshape(-1)[0])
+    return R * (threshold ** 2 - V)
+
+
+def outer_turning_point(problem, l, omega, start) -> float:
+    """The largest radius (from ``start`` outward) where omega^2 >= V, sampled finely and rounded up to the next
+    sample."""
+    turning = start
+    for region in problem.regions:
+        lower = max(region.lower, start)
+        upper = region.upper if region.upper is not None else 1e12 * problem.length_scale
+        if upper <= lower:
+            continue
+        r = np.geomspace(lower, upper, 8001)
+        V = np.asarray(region.potential(r, l, 0.0), dtype=float) * np.ones_like(r)
+        allowed = np.nonzero(V <= omega ** 2)[0]
+        if len(allowed):
+            turning = float(r[min(allowed[-1] + 1, len(r) - 1)])
+    return turning
+
+
+def far_potential(region, l, far):
+    """V and dV/dr* at the far radius (dV/dr by a central difference: it only enters a correction)."""
+    r = far * np.array([1.0, 1.0 - 1e-3, 1.0 + 1e-3])
+    V = np.asarray(region.potential(r, l, 0.0), dtype=float) * np.ones(3)
+    F = 1.0 / float(np.asarray(region.dtortoise_dr(np.array([far]))).reshape(-1)[0])
+    return float(V[0]), F * float(V[2] - V[1]) / (2e-3 * far)

@@ -24,7 +24,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from derive.solve.centre import FAR, Unsupported, continuum_threshold, rounding_floor, shortfall
+from derive.solve.centre import (FAR, Unsupported, continuum_threshold, coulomb_strength, far_potential,
+                                 outer_turning_point, rounding_floor, shortfall)
 from derive.solve.propagation import outer_pieces, region_propagator
 
 START = 1e-5          # x_0 / r_h
@@ -61,12 +62,9 @@ def check_supported(problem) -> None:
 
 
 def tail(problem) -> tuple[float, float]:
-    """(threshold, C): the continuum starts at omega = threshold = sqrt(V(infinity)), and far away
+    """(threshold, |C|): the continuum starts at omega = threshold = sqrt(V(infinity)), and far away
     V -> threshold^2 - C/r (C = 2 M mu^2 for a massive field outside mass M; about 0 when massless)."""
-    threshold = continuum_threshold(problem)
-    R = FAR * problem.length_scale
-    V = float(np.asarray(problem.regions[-1].potential(np.array([R]), 0, 0.0)).reshape(-1)[0])
-    return threshold, R * abs(threshold ** 2 - V)
+    return continuum_threshold(problem), abs(coulomb_strength(problem))
 
 
 def threshold_rounding(problem, omegas) -> np.ndarray:
@@ -74,22 +72,6 @@ def threshold_rounding(problem, omegas) -> np.ndarray:
     threshold^2/k^2 as omega approaches the mass, and is added to every error estimate there."""
     threshold = continuum_threshold(problem)
     return 4 * np.finfo(float).eps * threshold ** 2 / np.maximum(np.abs(omegas ** 2 - threshold ** 2), 1e-300)
-
-
-def _outer_turning_point(problem, l, omega) -> float:
-    """The largest radius where omega^2 >= V (sampled finely, and rounded up to the next sample): beyond it a
-    frequency below the mass is evanescent all the way out."""
-    horizon = problem.regions[0].lower
-    turning = horizon
-    for region in problem.regions:
-        lower = max(region.lower, horizon * (1 + 1e-9))
-        upper = region.upper if region.upper is not None else 1e12 * problem.length_scale
-        r = np.geomspace(lower, upper, 8001)
-        V = np.asarray(region.potential(r, l, 0.0), dtype=float) * np.ones_like(r)
-        allowed = np.nonzero(V <= omega ** 2)[0]
-        if len(allowed):
-            turning = r[min(allowed[-1] + 1, len(r) - 1)]
-    return float(turning)
 
 
 def far_radius(problem, l, omegas, probe=None) -> float:
@@ -106,7 +88,8 @@ def far_radius(problem, l, omegas, probe=None) -> float:
     omegas = np.asarray(omegas, dtype=float)
     if np.all(omegas < threshold):
         kappa = np.sqrt(threshold ** 2 - float(np.max(omegas)) ** 2)
-        turning = max(_outer_turning_point(problem, l, float(np.max(omegas))), probe or 0.0)
+        start = problem.regions[0].lower * (1 + 1e-9)
+        turning = max(outer_turning_point(problem, l, float(np.max(omegas)), start), probe or 0.0)
         far = max(turning + 40.0 / kappa, 4 * problem.regions[0].lower)
     else:
         k = float(np.sqrt(np.min(omegas) ** 2 - threshold ** 2)) if threshold > 0 else float(np.min(omegas))
@@ -305,7 +288,7 @@ def _march(problem, l, omegas, steps, start, far_factor, probe, fixed) -> March:
     below = omegas < continuum_threshold(problem)
     if np.any(below) and not np.all(below):
         raise ValueError("one march takes frequencies all above or all below the mass threshold")
-    V, dV = _far_potential(problem.regions[-1], l, far)
+    V, dV = far_potential(problem.regions[-1], l, far)
     if np.all(below):
         return _evanescent(omegas, V, dV, state, log_scale, total_det, probe, outer, outer_log, outer_det)
     k = np.sqrt(omegas ** 2 - V)
@@ -330,14 +313,6 @@ def _march(problem, l, omegas, steps, start, far_factor, probe, fixed) -> March:
         result.log_horizon2 = result.log_horizon2 + log_T2
         result.log_infinity2 = result.log_infinity2 + log_T2
     return result
-
-
-def _far_potential(region, l, far):
-    """V and dV/dr* at the far radius (dV/dr by a central difference: it only enters a correction)."""
-    r = far * np.array([1.0, 1.0 - 1e-3, 1.0 + 1e-3])
-    V = np.asarray(region.potential(r, l, 0.0), dtype=float) * np.ones(3)
-    F = 1.0 / float(np.asarray(region.dtortoise_dr(np.array([far]))).reshape(-1)[0])
-    return float(V[0]), F * float(V[2] - V[1]) / (2e-3 * far)
 
 
 def _evanescent(omegas, V, dV, state, log_scale, total_det, probe, outer, outer_log, outer_det) -> March:
