@@ -104,7 +104,7 @@ def round_trip(problem, sqrt_f0: float, r0: float = 0.0) -> float:
     reflecting (AdS) boundary, and back, in the detector's proper time: 2 sqrt(f(r0)) |int_{r0}^{R} dr*/dr dr|
     (for a detector inside a centre region the way in, through the centre, is longer).  A horizon sends nothing
     back; with neither an interface nor a reflecting boundary the round trip is infinite."""
-    from derive.solve.bound import _tortoise_extent, is_ads
+    from derive.solve.bound import is_ads, tortoise_extent
 
     nodes, weights = np.polynomial.legendre.leggauss(60)
 
@@ -120,49 +120,36 @@ def round_trip(problem, sqrt_f0: float, r0: float = 0.0) -> float:
 
     best = float("inf")
     if is_ads(problem):
-        best = _tortoise_extent(problem) - travel(0.0, r0)
+        best = tortoise_extent(problem) - travel(0.0, r0)
     for interface in problem.interfaces:
         best = min(best, travel(*sorted((r0, interface.radius))))
     return float(2 * sqrt_f0 * best)
 
 
-def normal_mode_response(problem, gaps, switching: Switching, r0: float, sqrt_f0: float, tolerance: float,
-                         dimension: int = 4) -> Response:
-    """F(Omega) = sum over l and the normal modes n of w_ln |chi_hat(Omega + nu_ln)|^2 for a spacetime with a
-    reflecting (AdS) boundary: the spectrum is discrete, so the frequency integral is a sum (nu = omega/sqrt(f(r0)),
-    the weights w per mode are invariant).  Modes with nu beyond the switching's reach (plus the largest -Omega)
-    contribute below e^-100 of the Gaussian's peak and are left out, with the first of them (times 10, for the rest
-    of its slowly growing weights) counted in the error; at the centre only l = 0 contributes, elsewhere every l
-    with a mode below that cutoff."""
-    from derive.solve.bound import _tortoise_extent, bound_states
+def normal_mode_response(problem, gaps, switching: Switching, sqrt_f0: float, tolerance: float) -> Response:
+    """F(Omega) = sum over the normal modes n of w_n |chi_hat(Omega + nu_n)|^2 for a detector at the centre of a
+    spacetime with a reflecting (AdS) boundary, where only l = 0 reaches: the spectrum is discrete, so the
+    frequency integral is a sum (nu = omega/sqrt(f(0)); the weight per mode is invariant).  Modes beyond the
+    switching's reach (plus the largest -Omega) contribute below e^-100 of the peak and are left out, with the
+    first of them (times 10, for the rest of its slowly growing weights) counted in the error."""
+    from derive.errors import AccuracyError
+    from derive.solve.bound import bound_states, tortoise_extent
 
     gaps = np.asarray(gaps, dtype=float)
     cutoff = (max(0.0, -float(np.min(gaps))) + switching.reach) * sqrt_f0     # in omega
-    spacing = np.pi / _tortoise_extent(problem)
-    total, error = np.zeros(len(gaps)), np.zeros(len(gaps))
-    power_error = getattr(switching, "power_error", 0.0)
-    for l in range(0, 1000):
-        count = int(np.ceil(cutoff / spacing)) + 2
-        modes = bound_states(problem, l, r0, tolerance, count=count)
-        if not modes.ok:
-            from derive.errors import AccuracyError
-
-            raise AccuracyError("the normal modes did not reach their tolerance: " + modes.message(),
-                                {"tolerance": tolerance})
-        if not len(modes.omega) or modes.omega[0] > cutoff:
-            break
-        nu = modes.omega / sqrt_f0
-        inside = modes.omega <= cutoff
-        if np.all(inside):     # the list must reach past the cutoff, so that nothing below it is missed
-            from derive.errors import AccuracyError
-
-            raise AccuracyError(f"fewer normal modes than needed below omega = {cutoff:.6g} were found", {})
-        power = switching.power(gaps[:, None] + nu[None, inside])
-        total += power @ modes.weight[inside]
-        error += power @ modes.weight_error[inside] + power_error * np.sum(np.abs(modes.weight[inside]))
-        first_out = np.nonzero(~inside)[0][0]
-        error += 10 * np.abs(modes.weight[first_out]) * switching.power(gaps + nu[first_out])
-        if r0 == 0.0:
-            break          # only l = 0 reaches the centre
+    count = int(np.ceil(cutoff * tortoise_extent(problem) / np.pi)) + 2          # modes are ~pi/r*_b apart
+    modes = bound_states(problem, 0, 0.0, tolerance, count=count)
+    if not modes.ok:
+        raise AccuracyError("the normal modes did not reach their tolerance: " + modes.message(),
+                            {"tolerance": tolerance})
+    inside = modes.omega <= cutoff
+    if np.all(inside):     # the list must reach past the cutoff, so that nothing below it is missed
+        raise AccuracyError(f"fewer normal modes than needed below omega = {cutoff:.6g} were found", {})
+    nu = modes.omega / sqrt_f0
+    power = switching.power(gaps[:, None] + nu[None, inside])
+    total = power @ modes.weight[inside]
+    error = (power @ modes.weight_error[inside]
+             + getattr(switching, "power_error", 0.0) * np.sum(np.abs(modes.weight[inside])))
+    first_out = np.nonzero(~inside)[0][0]
+    error = error + 10 * np.abs(modes.weight[first_out]) * switching.power(gaps + nu[first_out])
     return Response(gaps, total, error, np.zeros(len(gaps)), error)
-

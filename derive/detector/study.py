@@ -144,8 +144,7 @@ def detector_response(problem, detector, tolerance: float = 1e-10, gaps=None, st
         from derive.detector.response import normal_mode_response
 
         sqrt_f0 = _sqrt_f(problem, detector.radius)
-        return (normal_mode_response(problem, gaps, switching, detector.radius, sqrt_f0, tolerance, D),
-                switching, sqrt_f0)
+        return normal_mode_response(problem, gaps, switching, sqrt_f0, tolerance), switching, sqrt_f0
     density_at, sqrt_f0, thermal = proper_density(problem, tolerance, detector.radius, state, progress)
     from derive.solve.centre import continuum_threshold
 

@@ -94,7 +94,7 @@ def ads_boundary(problem) -> tuple[float, float]:
     return float(np.sqrt(L2)), (n + 1) / 2 + float(np.sqrt(root))
 
 
-def _tortoise_extent(problem) -> float:
+def tortoise_extent(problem) -> float:
     """r* from the centre to the AdS boundary (finite)."""
     nodes, weights = np.polynomial.legendre.leggauss(20)
     total = 0.0
@@ -257,7 +257,7 @@ def _levels(problem, l, steps, count, r0, brackets=None):
         # normal modes: spaced by about pi/r*_boundary (2/L in pure AdS), the lowest near Delta/L; scanned
         # 16 points per spacing up to Delta + l + 2 count + 4 spacings' worth
         L_ads, delta = ads_boundary(problem)
-        spacing = np.pi / _tortoise_extent(problem)
+        spacing = np.pi / tortoise_extent(problem)
         top = (delta + l + 2 * count + 4) * spacing / 2
         omegas = np.arange(spacing / 16, top, spacing / 16)
         layout = _layout(problem, l, float(omegas[-1]))
