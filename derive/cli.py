@@ -40,10 +40,20 @@ def _emit_json(data) -> None:
 
 
 def _write(path: str, text) -> None:
-    from derive.report.json_output import write_atomic
+    from derive.outputs import write_atomic
 
     write_atomic(path, text)
     print(f"wrote {path}", file=sys.stderr)
+
+
+def _check_outputs(args) -> None:
+    """Refuse output paths derive may not write (exit 2) before any work is done."""
+    from derive.outputs import check_output_file, check_output_folder
+
+    if getattr(args, "out", None) is not None:
+        check_output_folder(args.out, "--out")
+    if getattr(args, "latex", None) is not None:
+        check_output_file(args.latex, "--latex")
 
 
 def _selected_regions(spacetime, name):
@@ -175,6 +185,9 @@ def _omega_grid(text: str):
 def _deliver(args, data, write_files, title, header, rows):
     """The common ending of the numeric commands: files with --out, JSON with --json, else a table."""
     if args.out:
+        from derive.outputs import prepare_folder
+
+        prepare_folder(args.out, "spectrum")
         for path in write_files(args.out, data, title):
             print(f"wrote {path}", file=sys.stderr)
     if args.json:
@@ -426,6 +439,9 @@ def cmd_response(args) -> int:
         raise exc.located(file=spacetime.path) from None
     data = response_json(result)
     if args.out:
+        from derive.outputs import prepare_folder
+
+        prepare_folder(args.out, "response")
         for path in write_response_files(args.out, data, spacetime.title):
             print(f"wrote {path}", file=sys.stderr)
     if args.json:
@@ -456,12 +472,25 @@ def cmd_scan(args) -> int:
     spacetime = _load(args)
     vary = parse_vary(args.vary, list(spacetime.parameters))
     tolerance = _tolerance(args, spacetime, 1e-10)
-    if args.workers is not None and args.workers < 1:
-        raise InputError("--workers must be at least 1", key="--workers")
-    result = run_scan(spacetime, vary, args.out, tolerance, args.executor, args.workers or 0, args.scheduler)
+    workers = _workers(args.workers)
+    result = run_scan(spacetime, vary, args.out, tolerance, args.executor, workers, args.scheduler)
     print(f"scan of {result['points']} points: {result['computed']} computed now, {result['reused']} already "
           f"done; wrote {result['csv']}")
     return 0
+
+
+def _workers(requested: int | None) -> int:
+    """--workers bounded by the machine: at least 1, at most the number of cores (0: one per core)."""
+    if requested is None:
+        return 0
+    if requested < 1:
+        raise InputError(f"--workers must be at least 1, got {requested}", key="--workers")
+    cores = os.cpu_count() or 1
+    if requested > cores:
+        print(f"derive: --workers {requested} capped at {cores}, the number of cores of this machine",
+              file=sys.stderr)
+        return cores
+    return requested
 
 
 def cmd_demo(args) -> int:
@@ -540,11 +569,43 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+EXIT_INTERNAL = 3
+
+
+def _internal_error(exc: BaseException) -> int:
+    """An error derive did not expect: said to be one, the traceback written to a file, exit 3."""
+    import tempfile
+    import traceback
+
+    text = "".join(traceback.format_exception(exc))
+    if os.environ.get("DERIVE_DEBUG"):
+        print(text, file=sys.stderr)
+    try:
+        fd, path = tempfile.mkstemp(prefix="derive-error-", suffix=".txt")
+        with os.fdopen(fd, "w", encoding="utf-8") as handle:
+            handle.write(f"derive {__version__}\n{' '.join(sys.argv)}\n\n{text}")
+        where = f"; the details are in {path}"
+    except OSError:
+        where = ""
+    print(f"derive: internal error ({type(exc).__name__}: {str(exc)[:200]}). This is a bug in derive, not in "
+          f"your input: please report it with the spec file{where}", file=sys.stderr)
+    return EXIT_INTERNAL
+
+
 def main(argv=None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     try:
+        _check_outputs(args)
         return args.func(args)
+    except RecursionError:
+        print("derive: error: the input is nested too deeply to process (an expression or a definition "
+              "refers through too many levels); simplify it", file=sys.stderr)
+        return 2
+    except MemoryError:
+        print("derive: error: the input needs more memory than this machine has (an expression grows too "
+              "large); simplify it", file=sys.stderr)
+        return 2
     except InputError as exc:
         print(f"derive: error: {exc}", file=sys.stderr)
         return 2
@@ -558,6 +619,8 @@ def main(argv=None) -> int:
         return 130
     except BrokenPipeError:
         os._exit(0)
+    except Exception as exc:
+        return _internal_error(exc)
 
 
 if __name__ == "__main__":

@@ -77,6 +77,10 @@ def run_demo(out: str | None = None) -> int:
     from derive.codegen.catalog import KernelSet
     from derive.report.summary import spec_summary
 
+    if out:
+        from derive.outputs import check_output_folder
+
+        check_output_folder(out)
     spacetime = load(demo_spec_path())
     values = spacetime.parameter_values
     M, Q, R = (spacetime.parameters[n].value for n in ("M", "Q", "R"))

@@ -14,7 +14,6 @@ import os
 import platform
 import shutil
 import sys
-import tempfile
 import time
 from importlib import metadata
 
@@ -46,13 +45,11 @@ def run(spacetime, out: str, tolerance: float = 1e-10, progress=print) -> dict:
     from derive.codegen.catalog import KernelSet
     from derive.codegen.export import export
     from derive.report.derivation import Derivation
-    from derive.report.json_output import replace_folder, write_atomic
+    from derive.outputs import check_output_folder, replace_folder, staging_folder, write_atomic
     from derive.report.latex import compile_pdf, field_sections, geometry_sections, junction_sections
 
-    out = os.path.abspath(out)
-    parent = os.path.dirname(out)
-    os.makedirs(parent, exist_ok=True)
-    staging = tempfile.mkdtemp(prefix=".derive-run-", dir=parent)
+    out = check_output_folder(out)
+    staging = staging_folder(out, "run")
     timings, summary = {}, {"spec": spacetime.path, "title": spacetime.title, "skipped": {}}
     values = spacetime.parameter_values
     try:
@@ -107,7 +104,7 @@ def run(spacetime, out: str, tolerance: float = 1e-10, progress=print) -> dict:
                       "written": time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())}
         write_atomic(os.path.join(staging, "summary.json"), json.dumps(_plain(summary), indent=2))
         write_atomic(os.path.join(staging, "provenance.json"), json.dumps(_plain(provenance), indent=2))
-        replace_folder(staging, out)
+        replace_folder(staging, out, "run")
         return summary
     except BaseException:
         shutil.rmtree(staging, ignore_errors=True)

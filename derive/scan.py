@@ -19,7 +19,7 @@ import uuid
 import numpy as np
 
 from derive.errors import InputError
-from derive.report.json_output import write_atomic
+from derive.outputs import write_atomic
 
 
 def parse_vary(items, parameters) -> list[tuple[str, np.ndarray]]:
@@ -114,16 +114,22 @@ class _Progress:
 def run_scan(spacetime, vary, out: str, tolerance: float = 1e-10, executor: str = "local", workers: int = 0,
              scheduler: str | None = None, progress: bool | None = None) -> dict:
     """Compute every missing point and write scan.csv; returns {"points", "computed", "reused", "csv"}."""
+    from derive.outputs import prepare_folder
+
     points = grid_points(vary)
+    out = prepare_folder(out, "scan")
     points_dir = os.path.join(out, "points")
     os.makedirs(points_dir, exist_ok=True)
     manifest = {"spec": os.path.abspath(spacetime.path), "spec_hash": spacetime.source_hash,
                 "vary": {n: list(map(float, v)) for n, v in vary}, "tolerance": tolerance}
     manifest_path = os.path.join(out, "manifest.json")
     if os.path.exists(manifest_path):
-        with open(manifest_path) as handle:
-            earlier = json.load(handle)
-        if {k: earlier.get(k) for k in manifest} != manifest:
+        try:
+            with open(manifest_path, encoding="utf-8") as handle:
+                earlier = json.load(handle)
+        except (OSError, ValueError) as exc:
+            raise InputError(f"{manifest_path} cannot be read ({exc}); use another --out", key="--out") from None
+        if not isinstance(earlier, dict) or {k: earlier.get(k) for k in manifest} != manifest:
             raise InputError(f"{out} holds a different scan (spec or --vary differ); use another --out",
                              key="--out")
     else:
@@ -160,11 +166,28 @@ def _run_local(jobs, spec_path, tolerance, workers, record):
         return
     from concurrent.futures import ProcessPoolExecutor, as_completed
 
-    count = workers or min(len(jobs), os.cpu_count() or 1)
-    with ProcessPoolExecutor(max_workers=count) as pool:
+    count = min(workers or os.cpu_count() or 1, os.cpu_count() or 1, len(jobs))
+    with ProcessPoolExecutor(max_workers=count, initializer=_die_with_parent, initargs=(os.getpid(),)) as pool:
         futures = {pool.submit(scan_point, spec_path, overrides, tolerance): index for index, overrides in jobs}
         for future in as_completed(futures):
             record(futures[future], future.result())
+
+
+def _die_with_parent(parent: int) -> None:
+    """In a worker process: ask the kernel (Linux) to end this process when its parent dies, so a killed scan
+    leaves no workers behind; elsewhere, check once that the parent still runs."""
+    import signal
+
+    try:
+        import ctypes
+
+        libc = ctypes.CDLL(None, use_errno=True)
+        pr_set_pdeathsig = 1
+        libc.prctl(pr_set_pdeathsig, signal.SIGTERM)
+    except (OSError, AttributeError):
+        pass
+    if os.getppid() != parent:   # the parent died before the request took effect
+        os._exit(1)
 
 
 def _run_dask(jobs, spec_path, tolerance, scheduler, record):

@@ -50,8 +50,9 @@ def test_kernel_record_and_generated_file():
     kernel = lowered.kernel
     assert kernel.arguments == ("r", "l", "omega", "M") and kernel.backend == "numpy" and kernel.shape == ()
     lines = kernel.source.splitlines()
-    assert lines[0].startswith("# derive kernel potential_test (numpy backend): potential; region outside")
-    assert "sha256 " + kernel.hash in lines[1]
+    assert lines[0].startswith("# derive kernel potential_test (numpy backend)")
+    assert "sha256 " + kernel.hash in lines[0]
+    assert "QUANTITY = 'potential; region outside'" in lines
     imports = [line for line in lines if line.startswith(("import", "from"))]
     assert imports == ["import numpy as _np"]
     assert kernel.source.count("def ") == 1
@@ -154,8 +155,11 @@ def test_kernels_command_exports_an_importable_folder(tmp_path, capsys):
 def test_export_is_atomic(tmp_path, monkeypatch):
     from derive.codegen import export as export_module
 
+    from derive.outputs import write_marker
+
     out = tmp_path / "kernels"
     out.mkdir()
+    write_marker(str(out), "kernels")   # an earlier export of derive's
     (out / "earlier.txt").write_text("keep me")
     st = derive.load(os.path.join(WORKED, "schwarzschild", "spec.toml"))
 

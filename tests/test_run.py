@@ -33,8 +33,11 @@ def test_run_writes_everything(tmp_path, capsys):
 def test_a_failing_run_leaves_the_earlier_folder(tmp_path, monkeypatch):
     import derive.run as run_module
 
+    from derive.outputs import write_marker
+
     out = tmp_path / "result"
     out.mkdir()
+    write_marker(str(out), "run")   # an earlier run of derive's
     (out / "earlier.txt").write_text("keep")
 
     def interrupted(*args, **kwargs):

@@ -91,7 +91,8 @@ def rationalise_differences(expr):
 
 
 def _identifier(text: str) -> str:
-    name = re.sub(r"\W+", "_", text).strip("_")
+    """A safe ASCII identifier made from a region's name (any text): letters and digits kept, the rest '_'."""
+    name = re.sub(r"[^A-Za-z0-9]+", "_", text).strip("_")
     if not name or name[0].isdigit():
         name = "k_" + name
     return name

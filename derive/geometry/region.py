@@ -50,7 +50,7 @@ class RegionGeometry:
     def _result(self, name: str, compute):
         if name in self._memory:
             return self._memory[name]
-        value = self._disk.get(name)
+        value = self._disk.get(name, expected=(dict, sp.Basic, sp.MatrixBase))
         if value is None:
             value = compute()
             self._disk.put(name, value)

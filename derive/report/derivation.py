@@ -17,8 +17,9 @@ _SPECIAL = {"\\": r"\textbackslash{}", "&": r"\&", "%": r"\%", "$": r"\$", "#": 
 
 
 def escape(text: str) -> str:
-    """Escape plain text for LaTeX."""
-    return "".join(_SPECIAL.get(ch, ch) for ch in str(text))
+    """Escape plain text for LaTeX: the special characters printed as themselves, line breaks and other
+    control characters as spaces (so spec text can end no comment or argument and start no command)."""
+    return "".join(_SPECIAL.get(ch, " " if ch.isspace() or not ch.isprintable() else ch) for ch in str(text))
 
 
 def latex_of(obj) -> str:
@@ -68,7 +69,10 @@ class Derivation:
         return section
 
     def to_latex(self) -> str:
-        lines = [r"\documentclass[10pt]{article}", r"\usepackage{amsmath,amssymb}",
+        from derive import __version__
+        from derive.outputs import LATEX_FIRST_LINE
+
+        lines = [f"{LATEX_FIRST_LINE} {__version__}", r"\documentclass[10pt]{article}", r"\usepackage{amsmath,amssymb}",
                  r"\allowdisplaybreaks", r"\setlength{\textwidth}{6.5in}", r"\setlength{\oddsidemargin}{0in}",
                  r"\setlength{\evensidemargin}{0in}", r"\sloppy",
                  r"\title{" + escape(self.title) + "}", r"\author{derive}", r"\date{}",

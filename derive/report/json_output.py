@@ -4,8 +4,6 @@ from __future__ import annotations
 
 import json
 import math
-import os
-import tempfile
 
 import sympy as sp
 
@@ -60,21 +58,6 @@ def _clean(value):
 
 def dumps(data) -> str:
     return json.dumps(_clean(data), indent=2, sort_keys=False)
-
-
-def write_atomic(path: str, text: str | bytes) -> None:
-    """Write a file so that it either appears whole or not at all."""
-    folder = os.path.dirname(os.path.abspath(path)) or "."
-    os.makedirs(folder, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(dir=folder, prefix=".tmp-")
-    try:
-        with os.fdopen(fd, "wb") as handle:
-            handle.write(text.encode("utf-8") if isinstance(text, str) else text)
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
 
 
 def _textify(value):
@@ -143,19 +126,3 @@ def field_json(problem, l_value=None) -> dict:
                    "derivative_jump": expr_text(m.derivative_jump)} for m in problem.interfaces]
     return {"l": l_value, "mass": expr_text(problem.spacetime.field.mass),
             "coupling": expr_text(problem.spacetime.field.coupling), "regions": regions, "interfaces": interfaces}
-
-
-def replace_folder(staging: str, out: str) -> None:
-    """Move a fully written staging folder into place as ``out``; an earlier ``out`` is swapped away first and
-    removed only after the new one is in place."""
-    import shutil
-
-    parent = os.path.dirname(os.path.abspath(out))
-    backup = None
-    if os.path.exists(out):
-        backup = tempfile.mkdtemp(prefix=".derive-old-", dir=parent)
-        os.rmdir(backup)
-        os.replace(out, backup)
-    os.replace(staging, out)
-    if backup:
-        shutil.rmtree(backup, ignore_errors=True)

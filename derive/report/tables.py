@@ -6,7 +6,7 @@ import csv
 import io
 import os
 
-from derive.report.json_output import write_atomic
+from derive.outputs import write_atomic
 
 
 def _csv(header, rows) -> str:

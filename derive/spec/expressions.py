@@ -306,3 +306,108 @@ def is_identifier(name: str) -> bool:
     return (isinstance(name, str) and name.isidentifier() and name.isascii() and not keyword.iskeyword(name)
             and not name.startswith("_") and name not in CONSTANTS and name not in FUNCTIONS
             and len(name) <= 64)
+
+
+# -- substituting definitions, with the parser's cost bounds applied to the result ------------------------
+MAX_SUBSTITUTED_NODES = 50_000   # nodes of the result written out as a tree (shared parts counted each time)
+MAX_SUBSTITUTED_DEPTH = 200
+
+
+def substitute_bounded(expr, definitions):
+    """``expr`` with ``definitions`` (symbol -> expression) substituted, refused when the result is too costly.
+
+    Each text was bounded when it was parsed, but definitions compose: ``a = 10**100``, ``b = a**a`` or a
+    tower of definitions that each double the size pass every bound on their own.  The substitution is
+    therefore made without evaluation, the unevaluated result is measured (its size written out as a tree,
+    its depth, every numeric power and every integer exponent on a symbolic base, with the same limits as
+    the parser), and only then evaluated.  Raises :class:`~derive.errors.ExpressionError`.
+    """
+    if not definitions or not (getattr(expr, "free_symbols", set()) & set(definitions)):
+        return expr
+    with sp.evaluate(False):
+        raw = expr.xreplace(definitions)
+    _check_cost(raw)
+    return _rebuild(raw)
+
+
+def _check_cost(expr) -> None:
+    sizes: dict = {}
+    depths: dict = {}
+    stack = [(expr, False)]
+    while stack:
+        node, done = stack.pop()
+        if node in sizes:
+            continue
+        if not done:
+            stack.append((node, True))
+            stack.extend((a, False) for a in node.args if a not in sizes)
+            continue
+        sizes[node] = 1 + sum(sizes[a] for a in node.args)
+        depths[node] = 1 + max((depths[a] for a in node.args), default=0)
+        if sizes[node] > MAX_SUBSTITUTED_NODES:
+            raise ExpressionError(f"with the definitions substituted the expression grows past "
+                                  f"{MAX_SUBSTITUTED_NODES} terms; simplify the definitions")
+        if depths[node] > MAX_SUBSTITUTED_DEPTH:
+            raise ExpressionError(f"with the definitions substituted the expression is nested more than "
+                                  f"{MAX_SUBSTITUTED_DEPTH} deep")
+        if isinstance(node, sp.Pow):
+            _check_power(node.args[0], node.args[1])
+        elif isinstance(node, sp.Integer) and abs(int(node)).bit_length() > MAX_RESULT_DIGITS * 3.33:
+            raise ExpressionError(f"an integer of more than {MAX_RESULT_DIGITS} digits")
+
+
+def _numeric(value):
+    """A low-precision mpmath value of a numeric expression whose parts were already bounded, or None."""
+    import mpmath
+
+    if value.free_symbols:
+        return None
+    try:
+        with sp.evaluate(True):
+            number = sp.N(value, 15)
+        if not number.is_number:
+            return None
+        real, imag = number.as_real_imag()
+        return mpmath.mpc(mpmath.mpf(str(sp.N(real, 15))), mpmath.mpf(str(sp.N(imag, 15))))
+    except (TypeError, ValueError, ArithmeticError, RecursionError):
+        return None
+
+
+def _check_power(base, exponent) -> None:
+    import mpmath
+
+    exp_value = _numeric(exponent)
+    if exp_value is None:
+        return
+    if base.free_symbols:
+        if exp_value.imag == 0 and abs(exp_value.real) > MAX_EXPONENT:
+            raise ExpressionError(f"with the definitions substituted an exponent is {mpmath.nstr(exp_value.real, 6)}; "
+                                  f"the limit is {MAX_EXPONENT}")
+        return
+    base_value = _numeric(base)
+    if base_value is None or base_value == 0:
+        return
+    digits = abs(exp_value) * abs(mpmath.log10(abs(base_value)))
+    if not mpmath.isfinite(digits) or digits > MAX_RESULT_DIGITS:
+        raise ExpressionError(f"with the definitions substituted a numeric power is too large (about "
+                              f"{mpmath.nstr(digits, 3)} digits)")
+
+
+def _rebuild(expr):
+    """Evaluate an expression built without evaluation (children first; shared parts once)."""
+    done: dict = {}
+    stack = [(expr, False)]
+    while stack:
+        node, ready = stack.pop()
+        if node in done:
+            continue
+        if not node.args:
+            done[node] = node
+            continue
+        if not ready:
+            stack.append((node, True))
+            stack.extend((a, False) for a in node.args if a not in done)
+            continue
+        with sp.evaluate(True):
+            done[node] = node.func(*[done[a] for a in node.args])
+    return done[expr]

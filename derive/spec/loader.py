@@ -8,19 +8,23 @@ from __future__ import annotations
 
 import difflib
 import hashlib
+import math
 import os
+import stat
 import tomllib
 from typing import Any, Mapping
 
 import sympy as sp
 
 from derive.errors import ExpressionError, InputError, SpecError
-from derive.spec.expressions import ExpressionParser, is_identifier
+from derive.spec.expressions import ExpressionParser, is_identifier, substitute_bounded
 from derive.spec.line_element import differential_name, metric_from_line_element
 from derive.spec.model import (CompareSpec, DetectorSpec, Domain, FieldSpec, Interface, Parameter, Region,
                                Spacetime)
 
 MAX_SPEC_BYTES = 1_000_000
+MAX_NESTING = 8              # tables and arrays inside each other (format 1 needs 4)
+MAX_MAGNITUDE = 1e12         # largest |value| of a parameter, a gap or any other number a spec gives
 ASSUMPTIONS = ("positive", "nonnegative", "negative", "nonpositive", "real", "integer", "nonzero")
 TOP_KEYS = ("format", "title", "parameters", "coordinates", "definitions", "functions", "region",
             "interface", "field", "detector", "compare", "numerics")
@@ -29,7 +33,8 @@ INTERFACE_KEYS = ("between", "at")
 FIELD_KEYS = ("mass", "coupling")
 DETECTOR_KEYS = ("at", "switching", "gaps", "state", "coupling")
 COMPARE_KEYS = ("with", "sigmas")
-NUMERICS_KEYS = ("tolerance", "l_max", "omega_max", "outer_radius")
+NUMERICS_KEYS = ("tolerance",)
+CHOSEN_BY_DERIVE = ("l_max", "omega_max", "outer_radius")   # read by no solver: refused with the reason
 SWITCHING_SHAPES = ("gaussian", "sharp", "bump", "cos2", "sin4", "expression")
 SWITCHING_KEYS = ("shape", "width", "duration", "ramp", "expression", "tail")
 STATES = ("vacuum", "boulware", "hartle-hawking", "unruh")
@@ -77,6 +82,13 @@ class _Reader:
         except ExpressionError as exc:
             raise exc.located(self.path, key) from None
 
+    def substitute(self, expr, definitions, key: str):
+        """The definitions substituted into ``expr``, with the parser's cost bounds on the result."""
+        try:
+            return substitute_bounded(expr, definitions)
+        except ExpressionError as exc:
+            raise exc.located(self.path, key) from None
+
     def number(self, value, key: str) -> float:
         if isinstance(value, bool) or not isinstance(value, (int, float)):
             self.fail(f"expected a number, got {value!r}", key)
@@ -102,32 +114,83 @@ def load(path: str | os.PathLike, overrides: Mapping[str, float] | None = None) 
     path = os.fspath(path)
     reader = _Reader(path)
     try:
-        size = os.path.getsize(path)
+        info = os.stat(path)
+    except (OSError, ValueError) as exc:
+        raise SpecError(f"cannot read the spec file ({getattr(exc, 'strerror', None) or exc})", file=path) from None
+    if stat.S_ISDIR(info.st_mode):
+        reader.fail("is a folder, not a spec file")
+    if not stat.S_ISREG(info.st_mode):
+        reader.fail("is not a regular file (a pipe, device or socket); give the path of a TOML spec file")
+    if info.st_size > MAX_SPEC_BYTES:
+        reader.fail(f"spec file is {info.st_size} bytes; the limit is {MAX_SPEC_BYTES}")
+    try:
+        with open(path, "rb") as handle:
+            raw = handle.read(MAX_SPEC_BYTES + 1)
     except OSError as exc:
         raise SpecError(f"cannot read the spec file ({exc.strerror})", file=path) from None
-    if size > MAX_SPEC_BYTES:
-        reader.fail(f"spec file is {size} bytes; the limit is {MAX_SPEC_BYTES}")
-    with open(path, "rb") as handle:
-        raw = handle.read()
+    if len(raw) > MAX_SPEC_BYTES:
+        reader.fail(f"spec file is larger than {MAX_SPEC_BYTES} bytes")
     try:
         data = tomllib.loads(raw.decode("utf-8"))
     except UnicodeDecodeError:
         reader.fail("spec file is not UTF-8 text")
     except tomllib.TOMLDecodeError as exc:
         reader.fail(f"not valid TOML: {exc}")
+    except (RecursionError, MemoryError):
+        reader.fail(f"the TOML is nested too deeply (the limit is {MAX_NESTING} levels)")
     return from_mapping(data, path=path, overrides=overrides, raw=raw)
+
+
+def _nesting(value, key: str = "") -> tuple[int, str]:
+    """The deepest nesting of tables and arrays in a parsed TOML value, and the key where it occurs."""
+    best, where = 0, key
+    stack = [(value, 0, key)]
+    while stack:
+        item, depth, at = stack.pop()
+        if depth > best:
+            best, where = depth, at
+        if depth > MAX_NESTING:
+            break
+        if isinstance(item, Mapping):
+            stack.extend((v, depth + 1, f"{at}.{k}" if at else str(k)) for k, v in item.items())
+        elif isinstance(item, list):
+            stack.extend((v, depth + 1, f"{at}[{i}]") for i, v in enumerate(item))
+    return best, where
+
+
+def _plain_text(reader, value, key: str, limit: int) -> str:
+    """Free text of a spec (a title, a region's name): any printable characters, no control characters."""
+    if not isinstance(value, str):
+        reader.fail("expected a string", key)
+    if not value.strip():
+        reader.fail("expected a non-empty string", key)
+    if len(value) > limit:
+        reader.fail(f"is {len(value)} characters long; the limit is {limit}", key)
+    bad = next((ch for ch in value if not ch.isprintable()), None)
+    if bad is not None:
+        reader.fail(f"holds the control character {bad!r}; use printable text on one line", key)
+    return value
 
 
 def from_mapping(data: Mapping[str, Any], path: str = "<spec>", overrides: Mapping[str, float] | None = None,
                  raw: bytes | None = None) -> Spacetime:
     """Build a Spacetime from an already parsed TOML mapping (see :func:`load`)."""
     reader = _Reader(path)
+    depth, deepest = _nesting(data)
+    if depth > MAX_NESTING:
+        reader.fail(f"tables and arrays nested more than {MAX_NESTING} deep", deepest)
     reader.check_keys(data, TOP_KEYS, "")
+    for section in ("parameters", "coordinates", "definitions", "functions", "field", "detector", "compare",
+                    "numerics"):
+        if section in data and not isinstance(data[section], Mapping):
+            reader.fail(f"expected a table [{section}], got {type(data[section]).__name__}", section)
+    for section in ("region", "interface"):
+        if section in data and not (isinstance(data[section], list)
+                                    and all(isinstance(t, Mapping) for t in data[section])):
+            reader.fail(f"expected an array of tables [[{section}]]", section)
     if data.get("format") != 1:
         reader.fail(f"expected format = 1, got {data.get('format')!r}", "format")
-    title = data.get("title", os.path.basename(path))
-    if not isinstance(title, str):
-        reader.fail("expected a string", "title")
+    title = _plain_text(reader, data.get("title", os.path.basename(path) or "spec"), "title", 300)
 
     taken: dict[str, str] = {name: "derive (the field's labels and the detector's proper time)"
                              for name in RESERVED}
@@ -211,13 +274,11 @@ def from_mapping(data: Mapping[str, Any], path: str = "<spec>", overrides: Mappi
         reader.name(name, key)
         claim(name, key)
         value = reader.expression(ExpressionParser(display_symbols, functions), text, key)
-        value = value.xreplace(definitions)
+        value = reader.substitute(value, definitions, key)
         symbol = sp.Symbol(name)
         definitions[symbol] = value
         display_symbols[name] = symbol
 
-    def substitute(expr):
-        return expr.xreplace(definitions)
 
     # regions ------------------------------------------------------------------------------------
     region_list = data.get("region")
@@ -227,9 +288,8 @@ def from_mapping(data: Mapping[str, Any], path: str = "<spec>", overrides: Mappi
     for i, table in enumerate(region_list):
         key = f"region[{i}]"
         reader.check_keys(table, REGION_KEYS, key)
-        name = table.get("name", f"region{i}" if len(region_list) > 1 else "spacetime")
-        if not isinstance(name, str) or not name.strip():
-            reader.fail("expected a non-empty string", f"{key}.name")
+        name = _plain_text(reader, table.get("name", f"region{i}" if len(region_list) > 1 else "spacetime"),
+                           f"{key}.name", 64)
         if name in regions:
             reader.fail(f"two regions are named '{name}'", f"{key}.name")
         unknowns = []
@@ -275,7 +335,8 @@ def from_mapping(data: Mapping[str, Any], path: str = "<spec>", overrides: Mappi
                 a, b = diff[0]
                 reader.fail(f"metric matrix is not symmetric: [{a}][{b}] = {display[a, b]} but "
                             f"[{b}][{a}] = {display[b, a]}", f"{key}.metric")
-        metric = display.applyfunc(substitute)
+        metric = display.applyfunc(lambda e: reader.substitute(e, definitions, f"{key}.line_element"
+                                                                   if has_le else f"{key}.metric"))
         _check_not_degenerate(reader, metric, coordinates, f"{key}", name)
         where_text, where, domains = None, None, ()
         if "where" in table:
@@ -284,7 +345,7 @@ def from_mapping(data: Mapping[str, Any], path: str = "<spec>", overrides: Mappi
                 where = ExpressionParser(local, functions).parse_relation(where_text)
             except ExpressionError as exc:
                 raise exc.located(path, f"{key}.where") from None
-            where = where.xreplace(definitions)
+            where = reader.substitute(where, definitions, f"{key}.where")
             domains = _domains(reader, where, coordinates, f"{key}.where")
         regions[name] = Region(name, metric, display, le_text, where, where_text, domains, tuple(unknowns))
 
@@ -322,16 +383,24 @@ def from_mapping(data: Mapping[str, Any], path: str = "<spec>", overrides: Mappi
             if not os.path.isfile(with_):
                 reader.fail(f"no spec file at {with_}", "compare.with")
         sigmas = reader.number(table.get("sigmas", 3.0), "compare.sigmas")
-        if sigmas <= 0:
-            reader.fail("expected a positive number of standard deviations", "compare.sigmas")
+        if not (math.isfinite(sigmas) and 0 < sigmas <= 100):
+            reader.fail(f"expected a positive number of standard deviations (at most 100), got {sigmas}",
+                        "compare.sigmas")
         compare = CompareSpec(with_, sigmas)
     numerics = {}
     if "numerics" in data:
+        for k in data["numerics"] if isinstance(data["numerics"], Mapping) else ():
+            if k in CHOSEN_BY_DERIVE:
+                reader.fail(f"derive chooses {k} itself from the tolerance (and reports it); remove the key and "
+                            "set numerics.tolerance instead", f"numerics.{k}")
         reader.check_keys(data["numerics"], NUMERICS_KEYS, "numerics")
         for k, v in data["numerics"].items():
             numerics[k] = reader.number(v, f"numerics.{k}")
         if "tolerance" in numerics and not (0 < numerics["tolerance"] < 1):
             reader.fail("expected a relative tolerance between 0 and 1", "numerics.tolerance")
+    _check_joined(reader, regions, interfaces)
+    values = {p.symbol: p.value for p in parameters.values() if p.value is not None}
+    _check_numbers(reader, values, coordinates, coord_table.get("positive", []), interfaces, field, detector)
 
     digest = hashlib.sha256()
     digest.update(raw if raw is not None else repr(sorted(data.items(), key=str)).encode())
@@ -342,13 +411,91 @@ def from_mapping(data: Mapping[str, Any], path: str = "<spec>", overrides: Mappi
                      numerics=numerics)
 
 
-def _check_value(reader: _Reader, p: Parameter):
-    import math
+def _check_joined(reader, regions, interfaces) -> None:
+    """Every region is reached from the first through the interfaces."""
+    if len(regions) < 2:
+        return
+    names = list(regions)
+    reached, frontier = {names[0]}, [names[0]]
+    while frontier:
+        here = frontier.pop()
+        for interface in interfaces:
+            if here in interface.between:
+                other = interface.between[1] if interface.between[0] == here else interface.between[0]
+                if other not in reached:
+                    reached.add(other)
+                    frontier.append(other)
+    alone = [n for n in names if n not in reached]
+    if alone:
+        reader.fail(f"no [[interface]] joins region{'s' if len(alone) > 1 else ''} "
+                    f"{', '.join(repr(n) for n in alone)} to region {names[0]!r}; add one with between = "
+                    f"[{names[0]!r}, {alone[0]!r}] and at = \"r = ...\"", "interface")
 
+
+def _value_at(reader, expr, values, key: str) -> float | None:
+    """The real value of ``expr`` at the parameters' values; None when it still holds symbols."""
+    expr = sp.S(expr)
+    if expr.free_symbols - set(values):
+        return None
+    try:
+        number = sp.N(expr.subs(values), 20)
+    except (TypeError, ValueError, ArithmeticError):
+        reader.fail(f"{expr} cannot be evaluated at the parameters' values", key)
+    if number.has(sp.zoo, sp.oo, -sp.oo, sp.nan):
+        reader.fail(f"{expr} is not finite at the parameters' values", key)
+    real, imag = number.as_real_imag()
+    if not (real.is_number and imag.is_number):
+        reader.fail(f"{expr} is not a number at the parameters' values", key)
+    if abs(float(imag)) > 1e-15 * max(1.0, abs(float(real))):
+        reader.fail(f"expected a real value; {expr} is complex ({complex(number)}) at the parameters' values", key)
+    value = float(real)
+    if not math.isfinite(value) or abs(value) > MAX_MAGNITUDE:
+        reader.fail(f"{expr} = {value} at the parameters' values; expected a finite value of magnitude at most "
+                    f"{MAX_MAGNITUDE:g}", key)
+    return value
+
+
+def _check_numbers(reader, values, coordinates, positive, interfaces, field, detector) -> None:
+    """Every number the numerics will need is real, finite and in range at the parameters' values."""
+    radial = {coordinates[1]} | {c for c in coordinates if c.name in positive} if len(coordinates) > 1 else set()
+    for i, interface in enumerate(interfaces):
+        value = _value_at(reader, interface.value, values, f"interface[{i}].at")
+        if value is not None and interface.coordinate in radial and value <= 0:
+            reader.fail(f"the interface is at {interface.coordinate} = {value:g}; a radius must be positive",
+                        f"interface[{i}].at")
+    if field is not None:
+        mass = _value_at(reader, field.mass, values, "field.mass")
+        if mass is not None and mass < 0:
+            reader.fail(f"the mass is {mass:g} at the parameters' values; it must not be negative", "field.mass")
+        _value_at(reader, field.coupling, values, "field.coupling")
+    if detector is None:
+        return
+    if detector.position is not None:
+        value = _value_at(reader, detector.position, values, "detector.at")
+        if value is not None and detector.coordinate in radial and value < 0:
+            reader.fail(f"the detector is at {detector.coordinate} = {value:g}; a radius must not be negative",
+                        "detector.at")
+    for k in ("width", "duration", "ramp", "tail"):
+        if k in detector.switching:
+            value = _value_at(reader, detector.switching[k], values, f"detector.switching.{k}")
+            if value is not None and value <= 0:
+                reader.fail(f"{k} is {value:g}; expected a positive number", f"detector.switching.{k}")
+    for i, gap in enumerate(detector.gaps):
+        if not math.isfinite(gap) or abs(gap) > MAX_MAGNITUDE:
+            reader.fail(f"gap {gap} is not a finite number of magnitude at most {MAX_MAGNITUDE:g}",
+                        f"detector.gaps[{i}]")
+    if detector.coupling is not None and not (math.isfinite(detector.coupling) and 0 < detector.coupling
+                                              <= MAX_MAGNITUDE):
+        reader.fail(f"expected a finite positive coupling, got {detector.coupling}", "detector.coupling")
+
+
+def _check_value(reader: _Reader, p: Parameter):
     v, a = p.value, p.assumptions
     key = f"parameters.{p.name}.value"
     if not math.isfinite(v):
         reader.fail(f"value {v} is not finite", key)
+    if abs(v) > MAX_MAGNITUDE:
+        reader.fail(f"value {v:g} is larger than {MAX_MAGNITUDE:g} in magnitude; rescale the units", key)
     if (a.get("positive") and v <= 0) or (a.get("negative") and v >= 0) or (a.get("nonnegative") and v < 0) \
             or (a.get("nonpositive") and v > 0) or (a.get("nonzero") and v == 0) \
             or (a.get("integer") and v != int(v)):
@@ -375,7 +522,7 @@ def _equation(reader, parser, text, coordinates, key, definitions):
     if left not in coordinates:
         reader.fail(f"the left side of {text!r} must be a coordinate ({', '.join(c.name for c in coordinates)})",
                     key)
-    right = right.xreplace(definitions)
+    right = reader.substitute(right, definitions, key)
     if right.free_symbols & set(coordinates):
         reader.fail(f"the right side of {text!r} must not depend on the coordinates", key)
     return left, right, text
@@ -413,13 +560,15 @@ def _field(reader, parser, table, dimension, definitions):
     if table is None:
         return None
     reader.check_keys(table, FIELD_KEYS, "field")
-    mass = reader.expression(parser, table.get("mass", "0"), "field.mass").xreplace(definitions)
+    mass = reader.substitute(reader.expression(parser, table.get("mass", "0"), "field.mass"), definitions,
+                             "field.mass")
     coupling_value = table.get("coupling", "0")
     if coupling_value in ("conformal", "minimal"):
         coupling = sp.Rational(dimension - 2, 4 * (dimension - 1)) if coupling_value == "conformal" else sp.S(0)
         text = coupling_value
     else:
-        coupling = reader.expression(parser, coupling_value, "field.coupling").xreplace(definitions)
+        coupling = reader.substitute(reader.expression(parser, coupling_value, "field.coupling"), definitions,
+                                     "field.coupling")
         text = str(coupling_value)
     for k, v in (("mass", mass), ("coupling", coupling)):
         if v.is_number and not v.is_real:
@@ -436,8 +585,9 @@ def _detector(reader, parser, table, coordinates, definitions):
     coordinate = position = None
     if "at" in table:
         coordinate, position, _ = _equation(reader, parser, table["at"], coordinates, "detector.at", definitions)
-    switching = dict(table.get("switching", {"shape": "gaussian", "width": 1.0}))
+    switching = table.get("switching", {"shape": "gaussian", "width": 1.0})
     reader.check_keys(switching, SWITCHING_KEYS, "detector.switching")
+    switching = dict(switching)
     shape = switching.get("shape", "gaussian")
     if shape not in SWITCHING_SHAPES:
         close = suggest(shape, SWITCHING_SHAPES)
@@ -446,7 +596,8 @@ def _detector(reader, parser, table, coordinates, definitions):
     switching["shape"] = shape
     for k in ("width", "duration", "ramp", "tail"):
         if k in switching:
-            value = reader.expression(parser, switching[k], f"detector.switching.{k}").xreplace(definitions)
+            value = reader.substitute(reader.expression(parser, switching[k], f"detector.switching.{k}"),
+                                      definitions, f"detector.switching.{k}")
             switching[k] = value
     if shape == "expression":
         if "expression" not in switching:
