@@ -75,8 +75,8 @@ def main():
         twin = lower(expr, arguments, "bench_mp_" + str(abs(hash(label)) % 10 ** 8), "benchmark",
                      backend="mpmath").kernel
         plain = sp.lambdify(arguments, expr, "numpy", cse=False)
-        t_ours = best_of(lambda: ours(*columns))
-        t_plain = best_of(lambda: plain(*columns))
+        t_ours = best_of(lambda: ours(*columns))  # noqa: B023
+        t_plain = best_of(lambda: plain(*columns))  # noqa: B023
         sample = 2000
         start = time.perf_counter()
         with mpmath.workdps(30):

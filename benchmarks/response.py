@@ -29,7 +29,8 @@ def straightforward_density(problem, omega, r_out=200.0):
             V = region.potential(np.array([r]), 0, omega)[0]
             return [y[1] * d, (V - omega ** 2) * y[0] * d]
         return rhs
-    y = solve_ivp(rhs_for(inside), (1e-12, inside.upper), [1e-12, 1.0], method="DOP853", rtol=1e-10, atol=1e-13).y[:, -1]
+    y = solve_ivp(rhs_for(inside), (1e-12, inside.upper), [1e-12, 1.0], method="DOP853", rtol=1e-10,
+                  atol=1e-13).y[:, -1]
     y = np.asarray(transfer(0, np.array([omega])), dtype=float)[:, :, 0] @ y
     y = solve_ivp(rhs_for(outside), (inside.upper, r_out), y, method="DOP853", rtol=1e-10, atol=1e-13).y[:, -1]
     V = outside.potential(np.array([r_out]), 0, omega)[0]

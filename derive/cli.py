@@ -420,11 +420,9 @@ def cmd_response(args) -> int:
     detector = numeric_detector(spacetime)
     gaps = None
     if args.gaps:
-        try:
-            gaps = [float(x) for x in args.gaps.split(",") if x.strip()]
-        except ValueError:
-            raise InputError(f"--gaps expects a comma-separated list of numbers, got {args.gaps!r}",
-                             key="--gaps") from None
+        from derive.values import parse_values
+
+        gaps = [float(g) for g in parse_values(args.gaps, "--gaps")]
     if not (gaps or detector.gaps):
         raise InputError("no gaps: give [detector] gaps = [...] or --gaps", file=spacetime.path, key="detector.gaps")
     tolerance = _tolerance(args, spacetime, 1e-10)

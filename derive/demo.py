@@ -142,7 +142,7 @@ def run_demo(out: str | None = None) -> int:
     for label, width in (("spec", detector.switching["width"]), ("local", 0.15)):
         d = replace(detector, switching={**detector.switching, "width": width})
         results[label] = (study(problem, d), study(problem, replace(d, compare_with="other"), uncharged_problem))
-    for label, (vs_flat, vs_uncharged) in results.items():
+    for label, (vs_flat, vs_uncharged) in results.items():  # noqa: B007
         loc = vs_flat["locality"]
         print(f"   switching width {vs_flat['switching'].width:g}: lasts {loc['duration']:.3f} (all but 1e-12 of "
               f"chi^2); light needs {loc['round_trip']:.3f} to reach the shell and return -> "

@@ -203,7 +203,8 @@ def clean_stale(parent: str) -> list[str]:
         if not (name.startswith(STAGING_PREFIX) or name.startswith(OLD_PREFIX)):
             continue
         path = os.path.join(parent, name)
-        pid_text = name.split("-")[3] if name.count("-") >= 4 else ""
+        prefix = STAGING_PREFIX if name.startswith(STAGING_PREFIX) else OLD_PREFIX
+        pid_text = name[len(prefix):].split("-")[0]
         if not pid_text.isdigit() or os.path.islink(path) or not os.path.isdir(path):
             continue
         if _process_alive(int(pid_text)) or not carries_marker(path):

@@ -222,7 +222,7 @@ def test_flat_massive_gaussian_response_against_direct_quadrature(write_spec):
     sigma, mu = 1.0, 0.5
     for gap, ours, error in zip(result["gaps"], result["response"], result["error"]):
         weight = lambda nu: np.sqrt(nu * nu - mu * mu) / (4 * np.pi ** 2) * 2 * np.pi * sigma ** 2 * np.exp(
-            -(sigma * (gap + nu)) ** 2)
+            -(sigma * (gap + nu)) ** 2)  # noqa: B023
         reference = quad(weight, mu, mu + 40, epsabs=0, epsrel=1e-13, limit=400, points=[max(mu, -gap)])[0]
         assert ours == pytest.approx(reference, rel=1e-9)
         assert error < 1e-8 * ours
@@ -252,7 +252,7 @@ def test_flat_2plus1_gaussian_response(write_spec):
     result = study(numeric_problem(KernelSet(st)), numeric_detector(st), tolerance=1e-9)
     sigma = 1.0
     closed = np.sqrt(np.pi) * sigma / 4 * erfc(sigma * np.array(result["gaps"]))
-    direct = [quad(lambda nu: 2 * np.pi * sigma ** 2 * np.exp(-(sigma * (g + nu)) ** 2) / (4 * np.pi), 0, np.inf,
+    direct = [quad(lambda nu: 2 * np.pi * sigma ** 2 * np.exp(-(sigma * (g + nu)) ** 2) / (4 * np.pi), 0, np.inf,  # noqa: B023
                    epsrel=1e-13)[0] for g in result["gaps"]]
     np.testing.assert_allclose(closed, direct, rtol=1e-12)
     # REFERENCES.md "Detectors" (2+1, sigma = 1; computed independently there): 0.443113462726379 at Omega = 0

@@ -85,7 +85,7 @@ def test_shells_that_cannot_be_glued_name_the_components(write_spec, capsys):
     # g_tt jumps and there is no unknown to absorb it: the first junction condition fails.
     path = write_spec(two_region_spec("1", "1 - 2*M/r", DUST, unknowns="[]", alpha=False))
     with pytest.raises(JunctionError) as info:
-        derive.load(path).shells[0].solved
+        derive.load(path).shells[0].solved  # noqa: B018
     message = str(info.value)
     assert "h_tt" in message and "inside" in message and "outside" in message and "differ by" in message
     assert main(["junction", path]) == 2

@@ -93,7 +93,8 @@ def _readme(kernel_set, document, package: str) -> str:
     for k in document["kernels"]:
         owner = k.get("region") or k.get("interface") or ""
         lines.append(f"| `{k['name']}` | {k['quantity']} | {owner} | {', '.join(k['arguments'])} | {k['units']} | "
-                     f"{k.get('max_relative_error', float('nan')):.1e} ({k.get('points', 0)}) | {k.get('status', '')} |")
+                     f"{k.get('max_relative_error', float('nan')):.1e} ({k.get('points', 0)}) | "
+                     f"{k.get('status', '')} |")
     flagged = [k for k in document["kernels"] if k.get("status") == "flagged"]
     if flagged:
         lines += ["", "Flagged kernels (derive's solver refuses these):", ""]

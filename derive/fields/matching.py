@@ -73,7 +73,8 @@ class Matching:
             return p[side]["P"] * R ** sp.Rational(-n, 2) * (du / p[side]["F"] - n * u / (2 * R))
 
         psi = R ** sp.Rational(-n, 2) * u
-        equation = sp.Eq(flux("second", du2), flux("first", du1) - 2 * p["orientation"] * xi * jump_k * p["first"]["w"] * psi)
+        equation = sp.Eq(flux("second", du2),
+                         flux("first", du1) - 2 * p["orientation"] * xi * jump_k * p["first"]["w"] * psi)
         solution = sp.solve(equation, du2, dict=True)
         if len(solution) != 1:
             raise JunctionError(f"could not solve the matching condition at {self.shell.interface.text}",

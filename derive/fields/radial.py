@@ -5,7 +5,8 @@ separate phi = e^{-i omega t} Y r^{-n/2} u(r), with Delta_Sigma Y = -lambda Y.  
 Schrodinger form from the metric rather than copying a formula:
 
 1. the radial part of Box is (1/W) d/dr (W h dpsi/dr) with W = sqrt(-g)/sqrt(det gamma) = sqrt(f/h) r^n,
-   so (Box - mu^2 - xi R) phi = 0 becomes  h psi'' + h (log(W h))' psi' + (omega^2/f - lambda/r^2 - mu^2 - xi R) psi = 0;
+   so (Box - mu^2 - xi R) phi = 0 becomes
+   h psi'' + h (log(W h))' psi' + (omega^2/f - lambda/r^2 - mu^2 - xi R) psi = 0;
 2. psi = r^{-n/2} u is substituted and the equation multiplied by f;
 3. with d/dr* = F d/dr, F = sqrt(f h), the part F^2 u'' + F F' u' is exactly d^2u/dr*^2, and what is left must be
    (omega^2 - V) u with no derivative of u; the code checks this and reads off V.

@@ -9,7 +9,8 @@ delta-normalised).  Then, with U = du/dr at the centre,
 
 per unit omega of the spec's time coordinate.  The amplitude is read from the WKB invariant
 A^2 = u^2 + u'^2/(omega^2 - V) at a far radius (10^6 length scales, or 10^3 wavelengths if that is farther)
-and again at four times that radius; their difference is the tail error.  Each value carries an error estimate (Richardson correction of the propagation plus the tail).
+and again at four times that radius; their difference is the tail error.  Each value carries an error estimate
+(Richardson correction of the propagation plus the tail).
 
 Supported: a regular centre at r = 0, asymptotically flat; massless or massive (the continuum above the mass:
 k = sqrt(omega^2 - mu^2) replaces omega in the normalisation; below it the density of scattering states is zero).

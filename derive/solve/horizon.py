@@ -158,7 +158,8 @@ def _far_density(problem, omegas) -> float:
 
 
 def _pieces(problem, l, omegas, steps, start, far_factor, fixed=None):
-    """The march from the horizon to the far radius (with far_factor > 1, on to the layout's farther radius): (region index, shift, a, b, kind, steps) per piece, the
+    """The march from the horizon to the far radius (with far_factor > 1, on to the layout's farther radius):
+    (region index, shift, a, b, kind, steps) per piece, the
     start offset x0 and the far radius."""
     horizon = problem.regions[0].lower
     fixed = fixed if fixed is not None else layout(problem, l, omegas)

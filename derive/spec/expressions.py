@@ -121,6 +121,16 @@ class ExpressionParser:
             raise ExpressionError("empty expression", text=text)
         if "\x00" in text:
             raise ExpressionError("NUL character in expression", text=text.replace("\x00", "\\0"))
+        for column, ch in enumerate(text):
+            if not ch.isascii():
+                # Python reads identifiers in NFKC form, so a look-alike such as a full-width letter would
+                # silently become another name: every non-ASCII character is refused, with what it resembles.
+                import unicodedata
+
+                plain = unicodedata.normalize("NFKC", ch)
+                looks = f"; it looks like {plain!r}: type that instead" if plain.isascii() and plain != ch else ""
+                raise ExpressionError(f"character {ch!r} (U+{ord(ch):04X}) is not ASCII{looks}", text=text,
+                                      column=column, fragment=ch)
         depth, deepest = 0, 0
         for ch in text:
             if ch in "([{":
@@ -212,7 +222,8 @@ class ExpressionParser:
         def binary(self, node: ast.BinOp, depth: int):
             op = _BINARY.get(type(node.op))
             if op is None:
-                self.fail("this operator is not allowed (only + - * / **)", node)
+                hint = "; for a power write ** (as in r**2)" if isinstance(node.op, ast.BitXor) else ""
+                self.fail(f"this operator is not allowed (only + - * / **){hint}", node)
             left = self.visit(node.left, depth + 1)
             right = self.visit(node.right, depth + 1)
             if op == "+":

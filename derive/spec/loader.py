@@ -95,6 +95,12 @@ class _Reader:
         return float(value)
 
     def name(self, value, key: str) -> str:
+        if isinstance(value, str) and not value.isascii():
+            import unicodedata
+
+            plain = unicodedata.normalize("NFKC", value)
+            looks = f" (it looks like {plain!r}, which Python would silently read instead)" if plain.isascii() else ""
+            self.fail(f"{value!r} is not a valid name: names are plain ASCII{looks}", key)
         if not is_identifier(value):
             self.fail(f"{value!r} is not a valid name (a letter, then letters, digits or underscores; not a "
                       "Python keyword, not a reserved function or constant name such as pi, E, I, sin)", key)
@@ -242,13 +248,14 @@ def from_mapping(data: Mapping[str, Any], path: str = "<spec>", overrides: Mappi
     names = coord_table.get("names")
     if not isinstance(names, list) or len(names) < 2:
         reader.fail("expected a list of at least two coordinate names", "coordinates.names")
-    positive = coord_table.get("positive", [])
-    if not isinstance(positive, list) or any(p not in names for p in positive):
-        reader.fail("expected a list of coordinate names", "coordinates.positive")
-    coordinates = []
     for i, name in enumerate(names):
         reader.name(name, f"coordinates.names[{i}]")
         claim(name, f"coordinates.names[{i}]")
+    positive = coord_table.get("positive", [])
+    if not isinstance(positive, list) or any(not isinstance(p, str) or p not in names for p in positive):
+        reader.fail("expected a list of coordinate names", "coordinates.positive")
+    coordinates = []
+    for name in names:
         coordinates.append(sp.Symbol(name, positive=True) if name in positive else sp.Symbol(name, real=True))
     coordinates = tuple(coordinates)
 
@@ -328,15 +335,15 @@ def from_mapping(data: Mapping[str, Any], path: str = "<spec>", overrides: Mappi
                                                                      for r in rows):
                 reader.fail(f"expected a {n}x{n} list of lists of expressions", f"{key}.metric")
             region_parser = ExpressionParser(local, functions)
-            display = sp.Matrix(n, n, lambda a, b: reader.expression(region_parser, rows[a][b],
-                                                                       f"{key}.metric[{a}][{b}]"))
+            display = sp.Matrix(n, n, lambda a, b: reader.expression(region_parser, rows[a][b],  # noqa: B023
+                                                                       f"{key}.metric[{a}][{b}]"))  # noqa: B023
             if display != display.T:
                 diff = [(a, b) for a in range(n) for b in range(a + 1, n) if display[a, b] != display[b, a]]
                 a, b = diff[0]
                 reader.fail(f"metric matrix is not symmetric: [{a}][{b}] = {display[a, b]} but "
                             f"[{b}][{a}] = {display[b, a]}", f"{key}.metric")
-        metric = display.applyfunc(lambda e: reader.substitute(e, definitions, f"{key}.line_element"
-                                                                   if has_le else f"{key}.metric"))
+        metric = display.applyfunc(lambda e: reader.substitute(e, definitions, f"{key}.line_element"  # noqa: B023
+                                                                   if has_le else f"{key}.metric"))  # noqa: B023
         _check_not_degenerate(reader, metric, coordinates, f"{key}", name)
         where_text, where, domains = None, None, ()
         if "where" in table:
