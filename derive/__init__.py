@@ -3,17 +3,20 @@
 The public API::
 
     import derive
-    st = derive.load("worked/schwarzschild/spec.toml", overrides={"M": 2.0})
+    st = derive.load("worked/dust_shell/spec.toml", M=0.2)
     geo = st.geometry["outside"]
     geo.kretschmann, geo.christoffel, geo.einstein, geo.energy_conditions
+    s = st.spectrum("0.5:10:20")          # the spectral density at the centre, with errors
+    f = st.response()                     # the detector's response, comparison, locality, runs
+    f.response, f.error, f.to_dataframe(), f.plot()
 """
 
 __version__ = "0.1.0"
 
-from derive.errors import AccuracyError, DeriveError, InputError  # noqa: E402
+from derive.errors import AccuracyError, DeriveError, InputError, NotSupported  # noqa: E402
 
 
-def load(path, overrides=None):
+def load(path, overrides=None, **values):
     """Read a spec file (format 1) and return its :class:`~derive.spec.model.Spacetime`.
 
     Parameters
@@ -22,10 +25,14 @@ def load(path, overrides=None):
         The TOML spec file.
     overrides : mapping of str to float, optional
         Parameter values replacing the file's (what ``--set NAME=VALUE`` does on the command line).
+    **values : float
+        The same, as keywords: ``derive.load(path, M=2.0)``.
     """
     from derive.spec.loader import load as _load
 
-    return _load(path, overrides)
+    merged = dict(overrides or {})
+    merged.update(values)
+    return _load(path, merged or None)
 
 
-__all__ = ["load", "DeriveError", "InputError", "AccuracyError", "__version__"]
+__all__ = ["load", "DeriveError", "InputError", "NotSupported", "AccuracyError", "__version__"]

@@ -182,225 +182,36 @@ def _omega_grid(text: str):
     return values
 
 
-def _deliver(args, data, write_files, title, header, rows):
-    """The common ending of the numeric commands: files with --out, JSON with --json, else a table."""
+def _deliver(args, result, write_files, header, rows) -> int:
+    """The common ending of the numeric commands: files with --out, JSON with --json, else a table; exit 1 with
+    what was reached when the tolerance was missed (everything reached is still written and printed)."""
+    data = result.to_json()
     if args.out:
         from derive.outputs import prepare_folder
 
-        prepare_folder(args.out, "spectrum")
-        for path in write_files(args.out, data, title):
+        prepare_folder(args.out, result.kind)
+        for path in write_files(args.out, data, result.title):
             print(f"wrote {path}", file=sys.stderr)
     if args.json:
         _emit_json(data)
-    else:
+    elif header is not None:
         print(header)
         for row in rows:
             print(row)
-
-
-def _numeric_problem(spacetime):
-    from derive.codegen.catalog import KernelSet
-    from derive.codegen.problem import numeric_problem
-
-    return numeric_problem(KernelSet(spacetime))
-
-
-def _tolerance(args, spacetime, default):
-    value = args.tolerance if args.tolerance is not None else spacetime.numerics.get("tolerance", default)
-    if not (0 < value < 1):
-        raise InputError(f"tolerance must lie between 0 and 1, got {value}", key="--tolerance")
-    return value
-
-
-def cmd_spectrum(args) -> int:
-    from derive.report.tables import write_spectrum_files
-    from derive.solve.api import METHOD, spectrum_at_centre
-    from derive.solve.centre import Unsupported
-
-    spacetime = _load(args)
-    omegas = _omega_grid(args.omega)
-    if args.at is not None and not args.at >= 0.0:
-        raise InputError(f"--at {args.at}: expected a radius >= 0", key="--at")
-    tolerance = _tolerance(args, spacetime, 1e-10)
-    problem = _numeric_problem(spacetime)
-    if problem.regions[0].lower_kind == "horizon":
-        return _scattering_output(args, spacetime, problem, omegas, tolerance)
-    from derive.solve.bound import is_ads
-
-    if is_ads(problem):
-        return _normal_mode_output(args, spacetime, problem, omegas, tolerance)
-    try:
-        if args.at:
-            from derive.solve.api import spectrum_off_centre
-
-            result = spectrum_off_centre(problem, omegas, args.at, tolerance)
-        else:
-            result = spectrum_at_centre(problem, omegas, args.l, tolerance)
-    except Unsupported as exc:
-        raise InputError(f"derive spectrum cannot solve this spacetime yet: {exc}", file=spacetime.path) from None
-    data = {"l": result["l"], "at": float(args.at or 0.0), "omega": list(map(float, omegas)),
-            "density": list(map(float, result["density"])),
-            "error": {"density": list(map(float, result["error"]))},
-            "tolerance": tolerance, "method": METHOD, "units": "per unit omega of the spec's time coordinate",
-            "minkowski_density": list(map(float, result["minkowski"]))}
-    levels = _bound_states(problem, args.l, float(args.at or 0.0), tolerance, spacetime)
-    if levels is not None:
-        data["bound_states"] = levels
-    rows = (f"{w:12.6g} {d:22.15e} {e:10.1e} " + (f"{d / m:14.10f}" if m else "")
-            for w, d, e, m in zip(omegas, result["density"], result["error"], result["minkowski"]))
-    _deliver(args, data, write_spectrum_files, spacetime.title,
-             f"{spacetime.title}: spectral density at r = {args.at or 0:g}, "
-             f"{'l = %d' % result['l'] if result['l'] is not None else 'summed over l'}\n"
-             f"{'omega':>12} {'density':>22} {'error':>10} {'/ Minkowski':>14}", rows)
-    if levels is not None and not args.json:
-        print(f"bound states (l = {args.l}; discrete: a weight per level, per unit omega integrated):\n"
-              f"{'omega':>22} {'error':>10} {'weight':>22} {'error':>10}")
-        for w, we, d, de in zip(levels["omega"], levels["error"]["omega"], levels["weight"],
-                                levels["error"]["weight"]):
-            print(f"{w:22.15e} {we:10.1e} {d:22.15e} {de:10.1e}")
-        if levels["truncated"]:
-            print("  (more levels accumulate at the mass: the lowest are listed)")
-    if not result["ok"] or (levels is not None and not levels["ok"]):
-        from derive.errors import AccuracyError
-
-        message = result["message"] if not result["ok"] else levels["message"]
-        raise AccuracyError(message, {"tolerance": tolerance})
+    if not result.ok:
+        raise AccuracyError(result.message, {"tolerance": result.tolerance, "status": result.status})
     return 0
 
 
-def _normal_mode_output(args, spacetime, problem, omegas, tolerance) -> int:
-    """An asymptotically AdS spacetime: the spectrum is discrete (a reflecting boundary), so the density between
-    the normal modes is zero and the modes of the requested l are listed with their weights at --at."""
-    from derive.errors import AccuracyError
-    from derive.report.tables import write_spectrum_files
-    from derive.solve.api import METHOD, bound_state_table
-    from derive.solve.centre import Unsupported
+def _tolerance(args, spacetime):
+    from derive.pipeline import tolerance_of
 
-    r0 = float(args.at or 0.0)
-    try:
-        modes = bound_state_table(problem, args.l, r0, tolerance)
-    except Unsupported as exc:
-        raise InputError(f"derive spectrum cannot find the normal modes: {exc}", file=spacetime.path) from None
-    zeros = [0.0] * len(omegas)
-    data = {"l": args.l, "at": r0, "omega": list(map(float, omegas)), "density": zeros,
-            "error": {"density": zeros}, "tolerance": tolerance, "method": METHOD, "minkowski_density": zeros,
-            "normal_modes": modes, "bound_states": modes,
-            "units": "discrete spectrum (reflecting AdS boundary): zero density between the normal modes, whose "
-                     "weights are listed under normal_modes"}
-    rows = (f"{w:22.15e} {we:10.1e} {d:22.15e} {de:10.1e}" for w, we, d, de in
-            zip(modes["omega"], modes["error"]["omega"], modes["weight"], modes["error"]["weight"]))
-    _deliver(args, data, write_spectrum_files, spacetime.title,
-             f"{spacetime.title}: normal modes of l = {args.l} (reflecting AdS boundary), weights at r = {r0:g}\n"
-             f"{'omega':>22} {'error':>10} {'weight':>22} {'error':>10}", rows)
-    if not modes["ok"]:
-        raise AccuracyError(modes["message"], {"tolerance": tolerance})
-    return 0
+    return tolerance_of(spacetime, args.tolerance)
 
 
-def _bound_states(problem, l, r0, tolerance, spacetime):
-    """The lowest bound states of the requested l where a massive field has them (None where it has none)."""
-    from derive.solve.api import bound_state_table
-    from derive.solve.centre import Unsupported
-
-    try:
-        return bound_state_table(problem, l, r0, tolerance)
-    except Unsupported as exc:
-        raise InputError(f"derive spectrum cannot find the bound states: {exc}", file=spacetime.path) from None
-
-
-def _scattering_output(args, spacetime, problem, omegas, tolerance) -> int:
-    from derive.errors import AccuracyError
-    from derive.report.tables import write_scattering_files
-    from derive.solve.api import METHOD, scattering
-    from derive.solve.centre import Unsupported
-
-    try:
-        result = scattering(problem, omegas, args.l, tolerance)
-    except Unsupported as exc:
-        raise InputError(f"derive spectrum cannot solve this spacetime yet: {exc}", file=spacetime.path) from None
-    data = {"l": args.l, "omega": list(map(float, omegas)), "transmission": list(map(float, result["transmission"])),
-            "reflection": list(map(float, result["reflection"])), "density": None,
-            "error": {"transmission": list(map(float, result["error"])),
-                      "reflection": list(map(float, result["error"]))},
-            "flux_defect": list(map(float, result["flux_defect"])), "tolerance": tolerance, "method": METHOD}
-    if args.at is None:
-        data["note"] = "give --at R0 (outside the horizon) for the spectral density there"
-    else:
-        from derive.solve.exterior import STATES, exterior_density
-
-        try:
-            outside = exterior_density(problem, omegas, args.at, tolerance, progress=_l_progress())
-        except Unsupported as exc:
-            raise InputError(f"derive spectrum: {exc}", file=spacetime.path, key="--at") from None
-        floats = lambda values: list(map(float, values))
-        data.update({"at": float(args.at), "density": floats(outside.density),
-                     "density_in": floats(outside.inward), "density_up": floats(outside.outward),
-                     "hawking_temperature": outside.temperature, "l_max": outside.l_max,
-                     "units": "per unit omega of the spec's time coordinate; density = Boulware (in + up), "
-                              "summed over l"})
-        data["error"].update({"density": floats(outside.error), "density_in": floats(outside.inward_error),
-                              "density_up": floats(outside.outward_error)})
-        data["states"] = {}
-        for name in STATES:
-            plus, plus_error, minus, minus_error = outside.state(name)
-            data["states"][name] = {"positive": floats(plus), "negative": floats(minus),
-                                    "error": {"positive": floats(plus_error), "negative": floats(minus_error)}}
-        if not outside.ok:
-            _deliver(args, data, write_scattering_files, spacetime.title, "", [])
-            raise AccuracyError(outside.message(), {"tolerance": tolerance})
-    density = data["density"] or [None] * len(omegas)
-    density_error = data["error"].get("density") or [None] * len(omegas)
-    rows = (f"{w:12.6g} {t:22.15e} {e:10.1e} {r:22.15e} {d:15.1e}"
-            + (f" {s:22.15e} {se:10.1e}" if s is not None else "") for w, t, e, r, d, s, se in
-            zip(omegas, result["transmission"], result["error"], result["reflection"], result["flux_defect"],
-                density, density_error))
-    header = f"{'omega':>12} {'|T|^2':>22} {'error':>10} {'|R|^2':>22} {'|R|^2+|T|^2-1':>15}"
-    if data["density"] is not None:
-        header += f" {'density (Boulware)':>22} {'error':>10}"
-    _deliver(args, data, write_scattering_files, spacetime.title,
-             f"{spacetime.title}: scattering of the l = {args.l} field off the horizon"
-             + (f"; spectral density at r = {args.at:g} summed over l" if args.at is not None else "")
-             + "\n" + header, rows)
-    if not result["ok"]:
-        raise AccuracyError(result["message"], {"tolerance": tolerance})
-    return 0
-
-
-def response_json(result) -> dict:
-    """The JSON of `derive response` (keys documented in README.md)."""
-    import numpy as np
-
-    def floats(values):
-        return [None if (v is None or (isinstance(v, float) and not np.isfinite(v))) else float(v)
-                for v in (values if values is not None else [])]
-
-    switching = result["switching"]
-    data = {"gaps": floats(result["gaps"]), "response": floats(result["response"]), "error": floats(result["error"]),
-            "switching": {"shape": switching.shape, "width": switching.width, "tail": switching.tail,
-                          "duration": switching.duration,
-                          "support": None if switching.support is None else list(switching.support)},
-            "state": result["state"], "at": result["at"], "coupling": result["coupling"],
-            "sigmas": result["sigmas"], "locality": result["locality"], "notes": result["notes"]}
-    if "states" in result:
-        data["states"] = {name: {"response": floats(value["response"]), "error": floats(value["error"])}
-                          for name, value in result["states"].items()}
-        data["local_temperature"] = float(result["local_temperature"])
-    if "reference" in result:
-        ref = result["reference"]
-        data["reference"] = {"with": ref["with"], "response": floats(ref["response"]), "error": floats(ref["error"])}
-        data["relative_difference"] = floats(result["relative_difference"])
-        data["relative_difference_error"] = floats(result["relative_difference_error"])
-        trials = result.get("trials_to_distinguish")
-        data["trials_to_distinguish"] = None if trials is None else floats(trials)
-        data["trials_lower_bound"] = floats(result.get("trials_lower_bound"))
-        if "trials_note" in result:
-            data["trials_note"] = result["trials_note"]
-    return data
-
-
-def _l_progress():
-    """A one-line progress report of an l-sum on a terminal (nothing when stderr is not one)."""
-    if not sys.stderr.isatty():
+def _progress(args):
+    """A one-line progress report of an l-sum on a terminal (nothing when stderr is not one, or with --quiet)."""
+    if getattr(args, "quiet", False) or not sys.stderr.isatty():
         return None
 
     def report(l):
@@ -408,56 +219,81 @@ def _l_progress():
     return report
 
 
-def cmd_response(args) -> int:
-    from derive import load
-    from derive.codegen.problem import numeric_detector
-    from derive.detector.study import study
-    from derive.detector.switching import UnsupportedSwitching
-    from derive.report.tables import write_response_files
-    from derive.solve.centre import Unsupported
+def cmd_spectrum(args) -> int:
+    from derive.report.tables import write_scattering_files, write_spectrum_files
 
     spacetime = _load(args)
-    detector = numeric_detector(spacetime)
+    omegas = _omega_grid(args.omega)
+    if args.at is not None and not args.at >= 0.0:
+        raise InputError(f"--at {args.at}: expected a radius >= 0", key="--at")
+    tolerance = _tolerance(args, spacetime)
+    result = spacetime.spectrum(omegas, at=args.at, l=args.l, tolerance=tolerance, progress=_progress(args))
+    data = result.to_json()
+    if "transmission" in data:
+        return _deliver(args, result, write_scattering_files, *_scattering_rows(spacetime, data))
+    if "normal_modes" in data:
+        modes = data["normal_modes"]
+        rows = [f"{w:22.15e} {we:10.1e} {d:22.15e} {de:10.1e}" for w, we, d, de in
+                zip(modes["omega"], modes["error"]["omega"], modes["weight"], modes["error"]["weight"])]
+        return _deliver(args, result, write_spectrum_files,
+                        f"{spacetime.title}: normal modes of l = {data['l']} (reflecting AdS boundary), weights at "
+                        f"r = {data['at']:g}\n{'omega':>22} {'error':>10} {'weight':>22} {'error':>10}", rows)
+    rows = [f"{w:12.6g} {d:22.15e} {e:10.1e} " + (f"{d / m:14.10f}" if m else "")
+            for w, d, e, m in zip(data["omega"], data["density"], data["error"]["density"],
+                                  data["minkowski_density"])]
+    levels = data.get("bound_states")
+    if levels is not None:
+        rows.append(f"bound states (l = {data['l']}; discrete: a weight per level, per unit omega integrated):\n"
+                    f"{'omega':>22} {'error':>10} {'weight':>22} {'error':>10}")
+        rows += [f"{w:22.15e} {we:10.1e} {d:22.15e} {de:10.1e}" for w, we, d, de in
+                 zip(levels["omega"], levels["error"]["omega"], levels["weight"], levels["error"]["weight"])]
+        if levels["truncated"]:
+            rows.append("  (more levels accumulate at the mass: the lowest are listed)")
+    where = f"l = {data['l']}" if data["l"] is not None else "summed over l"
+    return _deliver(args, result, write_spectrum_files,
+                    f"{spacetime.title}: spectral density at r = {data['at']:g}, {where}\n"
+                    f"{'omega':>12} {'density':>22} {'error':>10} {'/ Minkowski':>14}", rows)
+
+
+def _scattering_rows(spacetime, data):
+    n = len(data["omega"])
+    density = data["density"] or [None] * n
+    density_error = data["error"].get("density") or [None] * n
+    rows = [f"{w:12.6g} {t:22.15e} {e:10.1e} {r:22.15e} {d:15.1e}"
+            + (f" {s:22.15e} {se:10.1e}" if s is not None else "") for w, t, e, r, d, s, se in
+            zip(data["omega"], data["transmission"], data["error"]["transmission"], data["reflection"],
+                data["flux_defect"], density, density_error)]
+    header = f"{'omega':>12} {'|T|^2':>22} {'error':>10} {'|R|^2':>22} {'|R|^2+|T|^2-1':>15}"
+    if data["density"] is not None:
+        header += f" {'density (Boulware)':>22} {'error':>10}"
+    title = (f"{spacetime.title}: scattering of the l = {data['l']} field off the horizon"
+             + (f"; spectral density at r = {data['at']:g} summed over l" if data.get("at") is not None else ""))
+    return title + "\n" + header, rows
+
+
+def cmd_response(args) -> int:
+    from derive.report.summary import response_summary
+    from derive.report.tables import write_response_files
+
+    spacetime = _load(args)
     gaps = None
     if args.gaps:
         from derive.values import parse_values
 
         gaps = [float(g) for g in parse_values(args.gaps, "--gaps")]
-    if not (gaps or detector.gaps):
-        raise InputError("no gaps: give [detector] gaps = [...] or --gaps", file=spacetime.path, key="detector.gaps")
-    tolerance = _tolerance(args, spacetime, 1e-10)
-    reference = None
-    if detector.compare_with not in (None, "minkowski"):
-        reference = _numeric_problem(load(detector.compare_with))
-    try:
-        result = study(_numeric_problem(spacetime), detector, reference, tolerance, gaps, progress=_l_progress())
-    except (Unsupported, UnsupportedSwitching) as exc:
-        raise InputError(f"derive response cannot handle this yet: {exc}", file=spacetime.path) from None
-    except InputError as exc:
-        raise exc.located(file=spacetime.path) from None
-    data = response_json(result)
-    if args.out:
-        from derive.outputs import prepare_folder
-
-        prepare_folder(args.out, "response")
-        for path in write_response_files(args.out, data, spacetime.title):
-            print(f"wrote {path}", file=sys.stderr)
-    if args.json:
-        _emit_json(data)
-    else:
-        from derive.report.summary import response_summary
-
-        print(response_summary(spacetime.title, data))
-    return 0
+    tolerance = _tolerance(args, spacetime)
+    result = spacetime.response(gaps, tolerance=tolerance, progress=_progress(args))
+    summary = None if args.json else response_summary(spacetime.title, result.to_json())
+    return _deliver(args, result, write_response_files, summary, [])
 
 
 def cmd_run(args) -> int:
     from derive.run import run
 
     spacetime = _load(args)
-    tolerance = _tolerance(args, spacetime, 1e-10)
+    tolerance = _tolerance(args, spacetime)
     progress = (lambda message: print(message, file=sys.stderr)) if not args.quiet else (lambda message: None)
-    summary = run(spacetime, args.out, tolerance, progress)
+    summary = run(spacetime, args.out, tolerance, progress, l_progress=_progress(args))
     print(f"wrote {args.out}: " + ", ".join(sorted(os.listdir(args.out))))
     for stage, reason in summary["skipped"].items():
         print(f"  skipped {stage}: {reason}")
@@ -469,7 +305,7 @@ def cmd_scan(args) -> int:
 
     spacetime = _load(args)
     vary = parse_vary(args.vary, list(spacetime.parameters))
-    tolerance = _tolerance(args, spacetime, 1e-10)
+    tolerance = _tolerance(args, spacetime)
     workers = _workers(args.workers)
     result = run_scan(spacetime, vary, args.out, tolerance, args.executor, workers, args.scheduler)
     print(f"scan of {result['points']} points: {result['computed']} computed now, {result['reused']} already "
@@ -539,6 +375,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--tolerance", type=float, help="relative tolerance (default: [numerics] or 1e-10)")
     p.add_argument("--json", action="store_true", help="print JSON")
     p.add_argument("--out", metavar="DIR", help="write spectrum.csv and spectrum.png here")
+    p.add_argument("--quiet", action="store_true", help="no progress report")
 
     p = spec_command("response", "response of the static detector, comparison, locality and runs needed",
                      cmd_response)
@@ -546,6 +383,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--tolerance", type=float, help="relative tolerance of the spectral density (default 1e-10)")
     p.add_argument("--json", action="store_true", help="print JSON")
     p.add_argument("--out", metavar="DIR", help="write response.csv and response.png here")
+    p.add_argument("--quiet", action="store_true", help="no progress report")
 
     p = spec_command("run", "the whole job: derivation, kernels, spectrum, response, summary, provenance", cmd_run)
     p.add_argument("--out", required=True, metavar="DIR", help="folder to write (replaced atomically)")

@@ -45,7 +45,7 @@ def _plain_summary(results, alpha, coupling, sigmas) -> str:
         "In plain words:",
         f"- Inside the shell space is flat and clocks run at {alpha:.4f} of the rate far away; a probe measuring in "
         "its own proper time cannot see that rate, and the geometry around it is exactly that of empty space.",
-        f"- With the spec's switching (width {spec_flat['switching'].width:g}) the measurement is "
+        f"- With the spec's switching (width {spec_flat['switching']['width']:g}) the measurement is "
         f"{'local' if spec_flat['locality']['local'] else 'not local'}; the gap that tells it from empty space "
         f"fastest is {spec_flat['gaps'][best]:g}, where the response differs by "
         f"{spec_flat['relative_difference'][best]:+.3e}; at coupling lambda = {coupling}, telling them apart at "
@@ -53,7 +53,7 @@ def _plain_summary(results, alpha, coupling, sigmas) -> str:
         f"- Charged against uncharged shell of the same mass: relative difference "
         f"{spec_charge['relative_difference'][best_charge]:+.3e} (gap {spec_charge['gaps'][best_charge]:g}), "
         f"{_runs(spec_charge, best_charge)}.",
-        f"- With a strictly local switching (width {local_flat['switching'].width:g}, over before light could "
+        f"- With a strictly local switching (width {local_flat['switching']['width']:g}, over before light could "
         f"return from the shell) the difference from empty space at gap {local_flat['gaps'][local_best]:g} is "
         f"{local_flat['relative_difference'][local_best]:+.2e} +- "
         f"{local_flat['relative_difference_error'][local_best]:.0e} ({_runs(local_flat, local_best)}), but not to "
@@ -74,7 +74,6 @@ def _number(expr, values) -> float:
 
 def run_demo(out: str | None = None) -> int:
     from derive import load
-    from derive.codegen.catalog import KernelSet
     from derive.report.summary import spec_summary
 
     if out:
@@ -117,7 +116,7 @@ def run_demo(out: str | None = None) -> int:
     print(f"   matching (u, du/dr*) inside -> outside: T = {T.tolist()}")
 
     print("\n4. Numeric kernels, checked against 40-digit evaluation")
-    kernels = KernelSet(spacetime)
+    kernels = spacetime.kernels
     worst = 0.0
     for entry in kernels.verify_all():
         worst = max(worst, entry.verification.max_relative_error)
@@ -126,25 +125,20 @@ def run_demo(out: str | None = None) -> int:
           f"{worst:.1e} over {kernels.entries[0].verification.points} points each")
 
     print("\n5. The modes and what the probe registers")
-    from dataclasses import replace
-
     import numpy as np
 
-    from derive.codegen.problem import numeric_detector, numeric_problem
-    from derive.detector.study import study
-
-    problem = numeric_problem(kernels)
-    uncharged = load(demo_spec_path(), overrides={"Q": 0.0})
-    uncharged_problem = numeric_problem(KernelSet(uncharged))
-    detector = numeric_detector(spacetime)
+    problem = spacetime.numeric_problem
+    uncharged = load(demo_spec_path(), Q=0.0)
+    detector = spacetime.detector
     alpha = float(np.sqrt(problem.regions[0].metric_f(np.array([0.0]))[0]))
     results = {}
-    for label, width in (("spec", detector.switching["width"]), ("local", 0.15)):
-        d = replace(detector, switching={**detector.switching, "width": width})
-        results[label] = (study(problem, d), study(problem, replace(d, compare_with="other"), uncharged_problem))
+    for label, width in (("spec", None), ("local", 0.15)):
+        switching = None if width is None else {"width": width}
+        results[label] = (spacetime.response(switching=switching, compare="minkowski"),
+                          spacetime.response(switching=switching, compare=uncharged))
     for label, (vs_flat, vs_uncharged) in results.items():  # noqa: B007
         loc = vs_flat["locality"]
-        print(f"   switching width {vs_flat['switching'].width:g}: lasts {loc['duration']:.3f} (all but 1e-12 of "
+        print(f"   switching width {vs_flat['switching']['width']:g}: lasts {loc['duration']:.3f} (all but 1e-12 of "
               f"chi^2); light needs {loc['round_trip']:.3f} to reach the shell and return -> "
               f"{'local' if loc['local'] else 'NOT local'}")
         print(f"   {'gap':>6} {'F (charged shell)':>20} {'vs empty space':>24} {'vs uncharged shell':>24}")
@@ -154,7 +148,7 @@ def run_demo(out: str | None = None) -> int:
                   f"{vs_uncharged['relative_difference'][i]:+13.3e} +- "
                   f"{vs_uncharged['relative_difference_error'][i]:.0e}")
     print()
-    print(_plain_summary(results, alpha, detector.coupling, detector.sigmas))
+    print(_plain_summary(results, alpha, detector.coupling, results['spec'][0].sigmas))
     if out:
         from derive.run import run
 

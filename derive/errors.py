@@ -36,7 +36,7 @@ class InputError(DeriveError):
         if self.file:
             where.append(str(self.file))
         if self.key:
-            where.append(f"key '{self.key}'")
+            where.append(f"option '{self.key}'" if self.key.startswith("--") else f"key '{self.key}'")
         prefix = ", ".join(where)
         return f"{prefix}: {self.problem}" if prefix else self.problem
 
@@ -79,6 +79,10 @@ class GeometryError(InputError):
 
 class JunctionError(InputError):
     """Regions that cannot be glued: the first junction condition fails or leaves an unknown free."""
+
+
+class NotSupported(InputError):
+    """A request derive understands but cannot serve yet for this spacetime (the reason says which part).  Exit 2."""
 
 
 class AccuracyError(DeriveError):

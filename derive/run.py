@@ -40,9 +40,12 @@ def _number(expr, values):
     return float(sp.N(value, 17)) if value.is_number and value.is_real else str(expr)
 
 
-def run(spacetime, out: str, tolerance: float = 1e-10, progress=print) -> dict:
-    """Write everything for ``spacetime`` into the folder ``out``; returns the summary."""
-    from derive.codegen.catalog import KernelSet
+def run(spacetime, out: str, tolerance: float = 1e-10, progress=print, l_progress=None) -> dict:
+    """Write everything for ``spacetime`` into the folder ``out``; returns the summary.
+
+    A value that misses the tolerance does not lose the run: everything reached is written, each value with its
+    error, summary.json says ``"status": "tolerance not met"`` with what was missed, and then AccuracyError
+    (exit 1) names a tolerance that would pass."""
     from derive.codegen.export import export
     from derive.report.derivation import Derivation
     from derive.outputs import check_output_folder, replace_folder, staging_folder, write_atomic
@@ -82,7 +85,7 @@ def run(spacetime, out: str, tolerance: float = 1e-10, progress=print) -> dict:
             timings["field"] = time.perf_counter() - start
             start = time.perf_counter()
             progress("kernels (generated and verified) ...")
-            kernels = KernelSet(spacetime)
+            kernels = spacetime.kernels
             document = export(kernels, os.path.join(staging, "kernels"))
             summary["kernels"] = {k["name"]: {"status": k["status"], "max_relative_error": k["max_relative_error"]}
                                   for k in document["kernels"]}
@@ -97,7 +100,9 @@ def run(spacetime, out: str, tolerance: float = 1e-10, progress=print) -> dict:
             summary["skipped"]["derivation.pdf"] = "pdflatex not found" if "not found" in log else "pdflatex failed"
         timings["latex"] = time.perf_counter() - start
         if kernels is not None:
-            _numerics(spacetime, kernels, staging, tolerance, summary, timings, progress)
+            _numerics(spacetime, staging, tolerance, summary, timings, progress, l_progress)
+        summary["status"] = "tolerance not met" if summary.get("shortfalls") else "ok"
+        summary["tolerance"] = tolerance
         provenance = {"spec": spacetime.path, "spec_hash": spacetime.source_hash, "versions": _versions(),
                       "tolerance": tolerance, "timings_seconds": timings, "command": sys.argv,
                       "parameters": {p.name: p.value for p in spacetime.parameters.values()},
@@ -105,144 +110,103 @@ def run(spacetime, out: str, tolerance: float = 1e-10, progress=print) -> dict:
         write_atomic(os.path.join(staging, "summary.json"), json.dumps(_plain(summary), indent=2))
         write_atomic(os.path.join(staging, "provenance.json"), json.dumps(_plain(provenance), indent=2))
         replace_folder(staging, out, "run")
-        return summary
     except BaseException:
         shutil.rmtree(staging, ignore_errors=True)
         raise
+    if summary.get("shortfalls"):
+        from derive.errors import AccuracyError
+
+        raise AccuracyError(f"{out} holds everything reached, each value with its error; "
+                            + "; ".join(f"{k}: {v}" for k, v in summary["shortfalls"].items()),
+                            {"tolerance": tolerance, "status": summary["status"]})
+    return summary
 
 
-def _numerics(spacetime, kernels, staging, tolerance, summary, timings, progress):
-    from derive.codegen.problem import numeric_problem
-    from derive.report.tables import write_spectrum_files
-    from derive.solve.api import METHOD, spectrum_at_centre
-    from derive.solve.centre import Unsupported
+def _numerics(spacetime, staging, tolerance, summary, timings, progress, l_progress=None):
+    """The spectrum (at the detector's own radius) and the response, through the public API; a value that
+    misses the tolerance is written with the error it reached and recorded in ``summary["shortfalls"]``."""
+    from derive.report.tables import write_scattering_files, write_spectrum_files
 
     start = time.perf_counter()
-    problem = numeric_problem(kernels)
+    problem = spacetime.numeric_problem
     progress("spectral density ...")
     low, high, count = SPECTRUM_GRID
     omegas = np.linspace(low, high, count) / problem.length_scale
+    r0 = _detector_radius(spacetime)
     if problem.regions[0].lower_kind == "horizon":
-        _greybody(spacetime, problem, omegas, staging, tolerance, summary, timings, start)
-        _response(spacetime, kernels, problem, staging, tolerance, summary, timings, progress)
-        return
-    from derive.solve.bound import is_ads
+        results = {l: _try(summary, "spectrum", lambda l=l: spacetime.spectrum(omegas, l=l, tolerance=tolerance))
+                   for l in (0, 1, 2)}
+        if results[0] is not None:
+            write_scattering_files(staging, results[0].to_json(), spacetime.title, pdf=True)
+            summary["spectrum"] = {
+                "kind": "transmission", "omega_range": [float(omegas[0]), float(omegas[-1])], "points": count,
+                "by_l": {str(l): {"largest_relative_error": float(np.max(r.error["transmission"] / r.transmission)),
+                                  "largest_flux_defect": float(np.max(np.abs(r.flux_defect))), "ok": r.ok}
+                         for l, r in results.items() if r is not None}}
+            for l, r in results.items():
+                _note(summary, f"spectrum (l = {l})", r)
+    else:
+        result = _try(summary, "spectrum", lambda: spacetime.spectrum(omegas, at=r0, tolerance=tolerance,
+                                                                       progress=l_progress))
+        if result is not None:
+            data = result.to_json()
+            write_spectrum_files(staging, data, spacetime.title, pdf=True)
+            density, error = result.density, result.error["density"]
+            positive = density > 0      # below a field's mass there is no continuum (density 0, error 0)
+            worst = float(np.max(error[positive] / density[positive])) if np.any(positive) else 0.0
+            summary["spectrum"] = {"at": r0, "l": data["l"], "omega_range": [float(omegas[0]), float(omegas[-1])],
+                                   "points": count, "largest_relative_error": worst, "ok": result.ok}
+            levels = data.get("bound_states")
+            if levels is not None:
+                key = "normal_modes" if "normal_modes" in data else "bound_states"
+                summary["spectrum"][key] = {"omega": levels["omega"], "weight": levels["weight"],
+                                            "ok": levels["ok"], "truncated": levels.get("truncated", False)}
+            _note(summary, "spectrum", result)
+    timings["spectrum"] = time.perf_counter() - start
+    _response(spacetime, staging, tolerance, summary, timings, progress, l_progress)
 
-    if is_ads(problem):
-        _normal_modes(spacetime, problem, omegas, staging, tolerance, summary, timings, start)
-        _response(spacetime, kernels, problem, staging, tolerance, summary, timings, progress)
-        return
+
+def _detector_radius(spacetime) -> float:
+    """The radius the spectrum is written at: the detector's own (the centre without a detector)."""
+    detector = spacetime.detector
+    if detector is None or detector.position is None:
+        return 0.0
+    value = sp.S(detector.position).subs(spacetime.parameter_values)
+    return float(value) if value.is_number else 0.0
+
+
+def _try(summary, stage, compute):
+    """compute(), or None with the reason under summary["skipped"] when derive cannot serve it yet."""
+    from derive.errors import NotSupported
+
     try:
-        result = spectrum_at_centre(problem, omegas, 0, tolerance)
-    except Unsupported as exc:
-        summary["skipped"]["spectrum"] = str(exc)
-        summary["skipped"]["response"] = str(exc)
-        return
-    data = {"l": 0, "at": 0.0, "omega": omegas.tolist(), "density": result["density"].tolist(),
-            "error": {"density": result["error"].tolist()}, "minkowski_density": result["minkowski"].tolist(),
-            "method": METHOD}
-    from derive.solve.api import bound_state_table
-
-    levels = bound_state_table(problem, 0, 0.0, tolerance)
-    if levels is not None:
-        data["bound_states"] = levels
-    write_spectrum_files(staging, data, spacetime.title, pdf=True)
-    positive = result["density"] > 0        # below a field's mass there is no continuum (density 0, error 0)
-    worst = float(np.max(result["error"][positive] / result["density"][positive])) if np.any(positive) else 0.0
-    summary["spectrum"] = {"at": 0.0, "l": 0, "omega_range": [float(omegas[0]), float(omegas[-1])],
-                           "points": count, "largest_relative_error": worst, "ok": bool(result["ok"])}
-    if levels is not None:
-        summary["spectrum"]["bound_states"] = {"omega": levels["omega"], "weight": levels["weight"],
-                                               "ok": levels["ok"], "truncated": levels["truncated"]}
-        result["ok"] = result["ok"] and levels["ok"]
-        if not levels["ok"]:
-            result["message"] = levels["message"]
-    timings["spectrum"] = time.perf_counter() - start
-    if not result["ok"]:
-        from derive.errors import AccuracyError
-
-        raise AccuracyError(result["message"], {"largest relative error": worst, "tolerance": tolerance})
-    _response(spacetime, kernels, problem, staging, tolerance, summary, timings, progress)
+        return compute()
+    except NotSupported as exc:
+        summary["skipped"][stage] = str(exc)
+        return None
 
 
-def _normal_modes(spacetime, problem, omegas, staging, tolerance, summary, timings, start):
-    """A reflecting AdS boundary: the l = 0 normal modes and their weights at the centre (zero density between)."""
-    from derive.errors import AccuracyError
-    from derive.report.tables import write_spectrum_files
-    from derive.solve.api import METHOD, bound_state_table
-
-    modes = bound_state_table(problem, 0, 0.0, tolerance)
-    zeros = [0.0] * len(omegas)
-    data = {"l": 0, "at": 0.0, "omega": omegas.tolist(), "density": zeros, "error": {"density": zeros},
-            "minkowski_density": zeros, "method": METHOD, "bound_states": modes}
-    write_spectrum_files(staging, data, spacetime.title, pdf=True)
-    summary["spectrum"] = {"at": 0.0, "l": 0, "normal_modes": {"omega": modes["omega"], "weight": modes["weight"],
-                                                               "ok": modes["ok"]}, "ok": modes["ok"]}
-    timings["spectrum"] = time.perf_counter() - start
-    if not modes["ok"]:
-        raise AccuracyError(modes["message"], {"tolerance": tolerance})
+def _note(summary, stage, result) -> None:
+    if result is not None and not result.ok:
+        summary.setdefault("shortfalls", {})[stage] = result.message
 
 
-def _response(spacetime, kernels, problem, staging, tolerance, summary, timings, progress):
-    from derive.cli import response_json
-    from derive.codegen.problem import numeric_detector, numeric_problem
-    from derive.detector.study import study
-    from derive.detector.switching import UnsupportedSwitching
-    from derive.errors import InputError
+def _response(spacetime, staging, tolerance, summary, timings, progress, l_progress=None):
     from derive.report.tables import write_response_files
-    from derive.solve.centre import Unsupported
 
     if spacetime.detector is None or not spacetime.detector.gaps:
         summary["skipped"]["response"] = "no [detector] section with gaps"
         return
     start = time.perf_counter()
     progress("detector response ...")
-    detector = numeric_detector(spacetime)
-    reference = None
-    if detector.compare_with not in (None, "minkowski"):
-        from derive import load
-
-        reference = numeric_problem(type(kernels)(load(detector.compare_with)))
-    try:
-        answer = study(problem, detector, reference, tolerance)
-    except (Unsupported, UnsupportedSwitching) as exc:
-        summary["skipped"]["response"] = str(exc)
+    result = _try(summary, "response", lambda: spacetime.response(tolerance=tolerance, progress=l_progress))
+    if result is None:
         return
-    except InputError as exc:
-        raise exc.located(file=spacetime.path) from None
-    data = response_json(answer)
+    data = result.to_json()
     write_response_files(staging, data, spacetime.title, pdf=True)
     summary["response"] = data
+    _note(summary, "response", result)
     timings["response"] = time.perf_counter() - start
-
-
-def _greybody(spacetime, problem, omegas, staging, tolerance, summary, timings, start):
-    from derive.report.tables import write_scattering_files
-    from derive.solve.api import METHOD, scattering
-    from derive.solve.centre import Unsupported
-
-    try:
-        results = {l: scattering(problem, omegas, l, tolerance) for l in (0, 1, 2)}
-    except Unsupported as exc:
-        summary["skipped"]["spectrum"] = str(exc)
-        return
-    first = results[0]
-    data = {"l": 0, "omega": omegas.tolist(), "transmission": first["transmission"].tolist(),
-            "reflection": first["reflection"].tolist(),
-            "error": {"transmission": first["error"].tolist()}, "flux_defect": first["flux_defect"].tolist(),
-            "method": METHOD}
-    write_scattering_files(staging, data, spacetime.title, pdf=True)
-    summary["spectrum"] = {"kind": "transmission", "omega_range": [float(omegas[0]), float(omegas[-1])],
-                           "points": len(omegas),
-                           "by_l": {str(l): {"largest_relative_error": float(np.max(r["error"] / r["transmission"])),
-                                             "largest_flux_defect": float(np.max(np.abs(r["flux_defect"]))),
-                                             "ok": bool(r["ok"])} for l, r in results.items()}}
-    timings["spectrum"] = time.perf_counter() - start
-    bad = [l for l, r in results.items() if not r["ok"]]
-    if bad:
-        from derive.errors import AccuracyError
-
-        raise AccuracyError(results[bad[0]]["message"], {"l": bad[0], "tolerance": tolerance})
 
 
 def _plain(value):

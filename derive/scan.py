@@ -63,30 +63,24 @@ def scan_point(spec_path: str, overrides: dict, tolerance: float) -> dict:
                     row[f"shell{index}_{key}"] = float(number) if number.is_number else None
                     row[f"shell{index}_{key}_error"] = 0.0
         if st.field is not None and st.detector is not None and st.detector.gaps:
-            from derive.codegen.catalog import KernelSet
-            from derive.codegen.problem import numeric_detector, numeric_problem
-            from derive.detector.study import study
-            from derive.detector.switching import UnsupportedSwitching
-            from derive.solve.centre import Unsupported
+            from derive.errors import NotSupported
 
             try:
-                detector = numeric_detector(st)
-                reference = None
-                if detector.compare_with not in (None, "minkowski"):
-                    reference = numeric_problem(KernelSet(load(detector.compare_with)))
-                result = study(numeric_problem(KernelSet(st)), detector, reference, tolerance)
-                for i, gap in enumerate(result["gaps"]):
-                    row[f"F[{gap:g}]"] = float(result["response"][i])
-                    row[f"F[{gap:g}]_error"] = float(result["error"][i])
+                result = st.response(tolerance=tolerance)
+                for i, gap in enumerate(result.gaps):
+                    row[f"F[{gap:g}]"] = float(result.response[i])
+                    row[f"F[{gap:g}]_error"] = float(result.error[i])
                     if "relative_difference" in result:
-                        row[f"reldiff[{gap:g}]"] = float(result["relative_difference"][i])
-                        row[f"reldiff[{gap:g}]_error"] = float(result["relative_difference_error"][i])
+                        row[f"reldiff[{gap:g}]"] = float(result.relative_difference[i])
+                        row[f"reldiff[{gap:g}]_error"] = float(result.relative_difference_error[i])
                 for name, value in (result.get("states") or {}).items():   # outside a horizon: all three states
-                    for i, gap in enumerate(result["gaps"]):
+                    for i, gap in enumerate(result.gaps):
                         row[f"F_{name}[{gap:g}]"] = float(value["response"][i])
                         row[f"F_{name}[{gap:g}]_error"] = float(value["error"][i])
-                row["local"] = bool(result["locality"]["local"])
-            except (Unsupported, UnsupportedSwitching) as exc:
+                row["local"] = bool(result.locality["local"])
+                if not result.ok:
+                    raise AccuracyError(result.message)
+            except NotSupported as exc:
                 row["response_skipped"] = str(exc)
         row["status"] = "ok"
     except AccuracyError as exc:

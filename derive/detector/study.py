@@ -74,10 +74,33 @@ def has_horizon(problem) -> bool:
     return problem.regions[0].lower_kind == "horizon"
 
 
-def proper_density(problem, tolerance, r0: float = 0.0, state: str = "vacuum", progress=None):
+def _missed(shortfalls, result, tolerance: float) -> None:
+    """A density that missed its tolerance: recorded in ``shortfalls`` as (message, largest relative error
+    reached) (the response goes on with the errors it reached, and says so), or an AccuracyError when no list is
+    given."""
+    message = result.message()
+    if shortfalls is None:
+        raise AccuracyError("the spectral density did not reach its tolerance: " + message, {"tolerance": tolerance})
+    density, error = np.asarray(result.density, dtype=float), np.asarray(result.error, dtype=float)
+    keep = density > 0
+    worst = float(np.max(error[keep] / density[keep])) if np.any(keep) else float("inf")
+    if all(message != m for m, _ in shortfalls):
+        shortfalls.append((message, worst if np.isfinite(worst) else float("inf")))
+
+
+def passing_tolerance(shortfalls) -> float | None:
+    """A tolerance the densities did reach (the next power of ten above the largest relative error), or None."""
+    worst = max((w for _, w in shortfalls), default=0.0)
+    if not np.isfinite(worst) or worst >= 0.1:
+        return None
+    return float(10.0 ** np.ceil(np.log10(worst * 1.01)))
+
+
+def proper_density(problem, tolerance, r0: float = 0.0, state: str = "vacuum", progress=None, shortfalls=None):
     """S(nu) per unit proper frequency at r0 and its error: sqrt(f(r0)) density(sqrt(f(r0)) nu).
 
-    Returns (density_at, sqrt_f0, thermal); for a thermal state density_at also gives S(-nu) and its error."""
+    Returns (density_at, sqrt_f0, thermal); for a thermal state density_at also gives S(-nu) and its error.
+    Where the density misses its tolerance the message goes to ``shortfalls`` (a list), else AccuracyError."""
     sqrt_f0 = _sqrt_f(problem, r0)
     if has_horizon(problem):
         if state == "vacuum":
@@ -92,8 +115,7 @@ def proper_density(problem, tolerance, r0: float = 0.0, state: str = "vacuum", p
         def density_at(nu):
             result = _exterior(problem, sqrt_f0 * np.asarray(nu), r0, tolerance, progress)
             if not result.ok:
-                raise AccuracyError("the spectral density did not reach its tolerance: " + result.message(),
-                                    {"tolerance": tolerance})
+                _missed(shortfalls, result, tolerance)
             return tuple(sqrt_f0 * part for part in result.state(state))
         # every state uses the thermal nodes (Boulware's negative part is zero), so that they share one solve
         return density_at, sqrt_f0, True
@@ -113,13 +135,13 @@ def proper_density(problem, tolerance, r0: float = 0.0, state: str = "vacuum", p
     def density_at(nu):
         result = solve(sqrt_f0 * np.asarray(nu))
         if not result.ok:
-            raise AccuracyError("the spectral density did not reach its tolerance: " + result.message(),
-                                {"tolerance": tolerance})
+            _missed(shortfalls, result, tolerance)
         return sqrt_f0 * result.density, sqrt_f0 * result.error
     return density_at, sqrt_f0, False
 
 
-def detector_response(problem, detector, tolerance: float = 1e-10, gaps=None, state=None, progress=None):
+def detector_response(problem, detector, tolerance: float = 1e-10, gaps=None, state=None, progress=None,
+                      shortfalls=None):
     """F(Omega) with errors for a static detector (see module docstring)."""
     state = detector.state if state is None else state
     switching = switching_from_spec({"shape": detector.shape}, detector.switching, detector.profile)
@@ -145,7 +167,7 @@ def detector_response(problem, detector, tolerance: float = 1e-10, gaps=None, st
 
         sqrt_f0 = _sqrt_f(problem, detector.radius)
         return normal_mode_response(problem, gaps, switching, sqrt_f0, tolerance), switching, sqrt_f0
-    density_at, sqrt_f0, thermal = proper_density(problem, tolerance, detector.radius, state, progress)
+    density_at, sqrt_f0, thermal = proper_density(problem, tolerance, detector.radius, state, progress, shortfalls)
     from derive.solve.centre import continuum_threshold
 
     threshold = 0.0 if has_horizon(problem) else continuum_threshold(problem) / sqrt_f0
@@ -154,8 +176,13 @@ def detector_response(problem, detector, tolerance: float = 1e-10, gaps=None, st
 
 def study(problem, detector, reference_problem=None, tolerance: float = 1e-10, gaps=None, progress=None) -> dict:
     """Response, comparison with the reference (Minkowski in closed form, or another problem), locality, trials.
-    Outside a horizon the response in all three states comes along (they share one solve) under "states"."""
-    ours, switching, sqrt_f0 = detector_response(problem, detector, tolerance, gaps, progress=progress)
+    Outside a horizon the response in all three states comes along (they share one solve) under "states".
+
+    A spectral density that misses its tolerance does not stop the study: every value is computed with the error
+    it reached, ``"ok"`` is False and ``"message"`` says what was missed."""
+    shortfalls: list = []
+    ours, switching, sqrt_f0 = detector_response(problem, detector, tolerance, gaps, progress=progress,
+                                                 shortfalls=shortfalls)
     gaps = ours.gaps
     out = {"gaps": gaps, "response": ours.response, "error": ours.error, "switching": switching,
            "state": detector.state, "at": detector.radius, "coupling": detector.coupling,
@@ -166,7 +193,7 @@ def study(problem, detector, reference_problem=None, tolerance: float = 1e-10, g
         out["states"] = {}
         for name in STATES:
             other = ours if name == detector.state else detector_response(problem, detector, tolerance, gaps,
-                                                                           state=name)[0]
+                                                                           state=name, shortfalls=shortfalls)[0]
             out["states"][name] = {"response": other.response, "error": other.error}
         out["local_temperature"] = (problem.regions[0].surface_gravity / (2 * np.pi)) / sqrt_f0
     with_ = detector.compare_with
@@ -181,7 +208,8 @@ def study(problem, detector, reference_problem=None, tolerance: float = 1e-10, g
                                 dimension=problem.dimension)
                 ref, ref_err = flat.response, flat.error
         else:
-            reference, _, _ = detector_response(reference_problem, detector, tolerance, gaps)
+            reference, _, _ = detector_response(reference_problem, detector, tolerance, gaps,
+                                                shortfalls=shortfalls)
             ref, ref_err = reference.response, reference.error
         difference = (ours.response - ref) / ref
         difference_error = ours.error / np.abs(ref) + np.abs(ours.response) * ref_err / ref ** 2
@@ -201,6 +229,15 @@ def study(problem, detector, reference_problem=None, tolerance: float = 1e-10, g
         if largest > PERTURBATIVE_LIMIT:
             out["notes"].append(f"lambda^2 F reaches {largest:.3g}: not small, so leading-order perturbation "
                                 "theory may not hold")
+    out["ok"] = not shortfalls
+    out["message"] = "ok"
+    if shortfalls:
+        passing = passing_tolerance(shortfalls)
+        out["message"] = ("the spectral density did not reach its tolerance " + f"{tolerance:.0e}: "
+                          + "; ".join(m for m, _ in shortfalls)
+                          + (f". Every value is reported with the error it reached; --tolerance {passing:.0e} "
+                             "would pass" if passing else ""))
+        out["passing_tolerance"] = passing
     return out
 
 

@@ -35,44 +35,35 @@ def _save(figure, out: str, stem: str, pdf: bool) -> list[str]:
     return paths
 
 
-def write_spectrum_files(out: str, data: dict, title: str, pdf: bool = False) -> list[str]:
+def _pyplot():
     import matplotlib
 
-    matplotlib.use("Agg")
+    if matplotlib.get_backend().lower() not in ("agg", "pdf", "svg") and not _interactive():
+        matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    rows = zip(data["omega"], data["density"], data["error"]["density"], data["minkowski_density"])
-    csv_path = os.path.join(out, "spectrum.csv")
-    write_atomic(csv_path, _csv(["omega", "density", "density_error", "minkowski_density"], rows))
-    figure, axes = plt.subplots(2, 1, figsize=(6.4, 6.4), sharex=True)
-    axes[0].plot(data["omega"], data["density"], label="derive")
-    axes[0].plot(data["omega"], data["minkowski_density"], "--", label=r"Minkowski $\omega/4\pi^2$")
-    axes[0].set_ylabel(r"density per unit $\omega$")
-    axes[0].legend()
-    ratio = [d / m if m else float("nan") for d, m in zip(data["density"], data["minkowski_density"])]
-    axes[1].plot(data["omega"], ratio)
-    axes[1].set_ylabel("ratio to Minkowski")
-    axes[1].set_xlabel(r"$\omega$ (spec's time coordinate; $G=c=\hbar=1$)")
-    label = f"l = {data['l']}" if data["l"] is not None else "summed over l"
-    axes[0].set_title(f"{title}: {label} at r = {data['at']:g}", fontsize=10)
-    paths = _save(figure, out, "spectrum", pdf)
-    plt.close(figure)
-    if data.get("bound_states"):      # the discrete spectrum below the mass, one row per level
-        levels = data["bound_states"]
-        bound_path = os.path.join(out, "bound_states.csv")
-        write_atomic(bound_path, _csv(["omega", "omega_error", "weight", "weight_error"],
-                                      zip(levels["omega"], levels["error"]["omega"], levels["weight"],
-                                          levels["error"]["weight"])))
-        paths.append(bound_path)
-    return [csv_path] + paths
+    return plt
 
 
-def write_response_files(out: str, data: dict, title: str, pdf: bool = False) -> list[str]:
-    import matplotlib
+def _interactive() -> bool:
+    """True inside IPython/Jupyter, where the notebook's own backend shows figures."""
+    import sys
 
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
+    return "IPython" in sys.modules or "ipykernel" in sys.modules
 
+
+# -- tables: (header, columns) of each result, shared by the CSV files and the notebook's data frames --------
+def spectrum_table(data: dict) -> tuple[list[str], list[list]]:
+    return (["omega", "density", "density_error", "minkowski_density"],
+            [data["omega"], data["density"], data["error"]["density"], data["minkowski_density"]])
+
+
+def bound_state_table(levels: dict) -> tuple[list[str], list[list]]:
+    return (["omega", "omega_error", "weight", "weight_error"],
+            [levels["omega"], levels["error"]["omega"], levels["weight"], levels["error"]["weight"]])
+
+
+def response_table(data: dict) -> tuple[list[str], list[list]]:
     header = ["gap", "response", "error"]
     columns = [data["gaps"], data["response"], data["error"]]
     reference = data.get("reference")
@@ -86,8 +77,42 @@ def write_response_files(out: str, data: dict, title: str, pdf: bool = False) ->
     for name, value in (data.get("states") or {}).items():
         header += [f"response_{name}", f"error_{name}"]
         columns += [value["response"], value["error"]]
-    csv_path = os.path.join(out, "response.csv")
-    write_atomic(csv_path, _csv(header, zip(*columns)))
+    return header, columns
+
+
+def scattering_table(data: dict) -> tuple[list[str], list[list]]:
+    header = ["omega", "transmission", "transmission_error", "reflection", "flux_defect"]
+    columns = [data["omega"], data["transmission"], data["error"]["transmission"], data["reflection"],
+               data["flux_defect"]]
+    if data.get("density") is not None:
+        header += ["density", "density_error", "density_in", "density_up"]
+        columns += [data["density"], data["error"]["density"], data["density_in"], data["density_up"]]
+        for name, value in data["states"].items():
+            header += [f"{name}_positive", f"{name}_negative"]
+            columns += [value["positive"], value["negative"]]
+    return header, columns
+
+
+# -- figures -------------------------------------------------------------------------------------------------
+def spectrum_figure(data: dict, title: str):
+    plt = _pyplot()
+    figure, axes = plt.subplots(2, 1, figsize=(6.4, 6.4), sharex=True)
+    axes[0].plot(data["omega"], data["density"], label="derive")
+    axes[0].plot(data["omega"], data["minkowski_density"], "--", label=r"Minkowski $\omega/4\pi^2$")
+    axes[0].set_ylabel(r"density per unit $\omega$")
+    axes[0].legend()
+    ratio = [d / m if m else float("nan") for d, m in zip(data["density"], data["minkowski_density"])]
+    axes[1].plot(data["omega"], ratio)
+    axes[1].set_ylabel("ratio to Minkowski")
+    axes[1].set_xlabel(r"$\omega$ (spec's time coordinate; $G=c=\hbar=1$)")
+    label = f"l = {data['l']}" if data["l"] is not None else "summed over l"
+    axes[0].set_title(f"{title}: {label} at r = {data['at']:g}", fontsize=10)
+    return figure
+
+
+def response_figure(data: dict, title: str):
+    plt = _pyplot()
+    reference = data.get("reference")
     rows = 2 if reference else 1
     figure, axes = plt.subplots(rows, 1, figsize=(6.4, 3.4 * rows), sharex=True, squeeze=False)
     axes = axes[:, 0]
@@ -109,34 +134,43 @@ def write_response_files(out: str, data: dict, title: str, pdf: bool = False) ->
     axes[-1].set_xlabel(r"gap $\Omega$ (detector's proper time; $G=c=\hbar=1$)")
     axes[0].set_title(f"{title}: static detector, {data['switching']['shape']} switching, "
                       f"{data['state']} state", fontsize=9)
-    paths = _save(figure, out, "response", pdf)
-    plt.close(figure)
-    return [csv_path] + paths
+    return figure
 
 
-def write_scattering_files(out: str, data: dict, title: str, pdf: bool = False) -> list[str]:
-    import matplotlib
-
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    header = ["omega", "transmission", "transmission_error", "reflection", "flux_defect"]
-    columns = [data["omega"], data["transmission"], data["error"]["transmission"], data["reflection"],
-               data["flux_defect"]]
-    if data.get("density") is not None:
-        header += ["density", "density_error", "density_in", "density_up"]
-        columns += [data["density"], data["error"]["density"], data["density_in"], data["density_up"]]
-        for name, value in data["states"].items():
-            header += [f"{name}_positive", f"{name}_negative"]
-            columns += [value["positive"], value["negative"]]
-    csv_path = os.path.join(out, "spectrum.csv")
-    write_atomic(csv_path, _csv(header, zip(*columns)))
+def scattering_figure(data: dict, title: str):
+    plt = _pyplot()
     figure, axis = plt.subplots(figsize=(6.4, 4.0))
     axis.plot(data["omega"], data["transmission"], label=r"$|T|^2$")
     axis.plot(data["omega"], data["reflection"], "--", label=r"$|R|^2$")
     axis.set_xlabel(r"$\omega$ (spec's time coordinate; $G=c=\hbar=1$)")
     axis.set_title(f"{title}: l = {data['l']}", fontsize=10)
     axis.legend()
-    paths = _save(figure, out, "spectrum", pdf)
-    plt.close(figure)
+    return figure
+
+
+# -- files ---------------------------------------------------------------------------------------------------
+def _write_table_and_figure(out, stem, table, figure, pdf) -> list[str]:
+    header, columns = table
+    csv_path = os.path.join(out, f"{stem}.csv")
+    write_atomic(csv_path, _csv(header, zip(*columns)))
+    paths = _save(figure, out, stem, pdf)
+    _pyplot().close(figure)
     return [csv_path] + paths
+
+
+def write_spectrum_files(out: str, data: dict, title: str, pdf: bool = False) -> list[str]:
+    paths = _write_table_and_figure(out, "spectrum", spectrum_table(data), spectrum_figure(data, title), pdf)
+    if data.get("bound_states"):      # the discrete spectrum below the mass, one row per level
+        header, columns = bound_state_table(data["bound_states"])
+        bound_path = os.path.join(out, "bound_states.csv")
+        write_atomic(bound_path, _csv(header, zip(*columns)))
+        paths.append(bound_path)
+    return paths
+
+
+def write_response_files(out: str, data: dict, title: str, pdf: bool = False) -> list[str]:
+    return _write_table_and_figure(out, "response", response_table(data), response_figure(data, title), pdf)
+
+
+def write_scattering_files(out: str, data: dict, title: str, pdf: bool = False) -> list[str]:
+    return _write_table_and_figure(out, "spectrum", scattering_table(data), scattering_figure(data, title), pdf)

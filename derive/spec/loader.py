@@ -214,6 +214,9 @@ def from_mapping(data: Mapping[str, Any], path: str = "<spec>", overrides: Mappi
         claim(name, key)
         if isinstance(spec, (int, float)) and not isinstance(spec, bool):
             spec = {"value": spec}
+        if not isinstance(spec, Mapping):
+            reader.fail(f"expected a number or a table such as {{ value = 1.0, positive = true }}, got {spec!r}",
+                        key)
         reader.check_keys(spec, ("value",) + ASSUMPTIONS, key)
         assumptions = {k: bool(v) for k, v in spec.items() if k in ASSUMPTIONS}
         for k, v in spec.items():

@@ -156,3 +156,35 @@ class Spacetime:
         from derive.fields.radial import FieldProblem
 
         return FieldProblem(self)
+
+    @cached_property
+    def kernels(self):
+        """The :class:`~derive.codegen.catalog.KernelSet`: numeric kernels generated from the field problem."""
+        from derive.codegen.catalog import KernelSet
+
+        return KernelSet(self)
+
+    @cached_property
+    def numeric_problem(self):
+        """What the solver reads: the verified kernels bound to the parameters' values."""
+        from derive.codegen.problem import numeric_problem
+
+        return numeric_problem(self.kernels)
+
+    def spectrum(self, omega, at: float | None = None, l: int = 0, tolerance: float | None = None, progress=None):
+        """The spectral density at a static point: see :func:`derive.pipeline.spectrum`."""
+        from derive.pipeline import spectrum
+
+        return spectrum(self, omega, at, l, tolerance, progress)
+
+    def response(self, gaps=None, tolerance: float | None = None, switching: dict | None = None, compare=None,
+                 progress=None):
+        """The static detector's response, comparison, locality, runs: see :func:`derive.pipeline.response`."""
+        from derive.pipeline import response
+
+        return response(self, gaps, tolerance, switching, compare, progress)
+
+    def __repr__(self) -> str:
+        regions = ", ".join(self.regions)
+        return (f"<Spacetime {self.title!r}: {self.dimension} dimensions, regions {regions}; "
+                f"{len(self.interfaces)} interface(s); from {self.path}>")

@@ -1,0 +1,268 @@
+"""The one place that decides the physics of a numeric request, below the command line.
+
+A loaded spacetime (:func:`derive.load`) goes to verified kernels, then to the numeric problem, then to the
+solver that fits it: a regular centre (the density at r = 0, or the sum over l anywhere else), a horizon (the
+scattering of each l, and the in and up modes summed over l in the Boulware, Hartle-Hawking and Unruh states),
+a reflecting AdS boundary (the normal modes), bound states of a massive field.  The command line, ``derive run``,
+``derive scan`` and ``derive demo`` call only :func:`spectrum` and :func:`response` (and, in a notebook,
+``st.spectrum(...)`` and ``st.response(...)`` call them too).  They return result objects
+(:mod:`derive.results`) that carry their errors and whether the tolerance was met; a request the solver cannot
+serve is refused with :class:`~derive.errors.InputError` (exit 2), naming why.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import replace
+
+import numpy as np
+
+from derive.errors import InputError, NotSupported
+from derive.results import Response, Spectrum
+
+DEFAULT_TOLERANCE = 1e-10
+
+
+def tolerance_of(spacetime, tolerance=None, key: str = "--tolerance") -> float:
+    """The tolerance asked for, else the spec's ``[numerics] tolerance``, else 1e-10; checked."""
+    value = tolerance if tolerance is not None else spacetime.numerics.get("tolerance", DEFAULT_TOLERANCE)
+    if not (isinstance(value, (int, float)) and 0 < value < 1):
+        raise InputError(f"tolerance must lie between 0 and 1, got {value}", key=key)
+    return float(value)
+
+
+def _frequencies(omega) -> np.ndarray:
+    from derive.values import parse_values
+
+    if isinstance(omega, str):
+        values = parse_values(omega, "omega")
+    else:
+        values = np.atleast_1d(np.asarray(omega, dtype=float))
+        if values.size == 0 or not np.all(np.isfinite(values)):
+            raise InputError("omega: expected finite frequencies", key="omega")
+    if np.any(values <= 0):
+        raise InputError(f"omega: frequencies must be positive, got {values[values <= 0][0]:g}", key="omega")
+    return values
+
+
+def _unsupported(spacetime, what: str, exc, key=None):
+    return NotSupported(f"derive cannot {what} yet: {exc}", file=spacetime.path, key=key)
+
+
+def spectrum(spacetime, omega, at: float | None = None, l: int = 0, tolerance: float | None = None,
+             progress=None) -> Spectrum:
+    """The field's spectral density at a static point, per unit omega of the spec's time coordinate.
+
+    Parameters
+    ----------
+    spacetime : Spacetime
+        From :func:`derive.load`.
+    omega : array-like of float, or str "FROM:TO:COUNT" / "a,b,c"
+        Positive frequencies of the spec's time coordinate.
+    at : float, optional
+        The radius of the point (None or 0: the centre, only l = 0; else summed over l).  Around a horizon,
+        without ``at`` only the scattering of ``l`` (greybody factors) is computed.
+    l : int
+        The angular label at the centre (the only nonzero one there is 0) and of the scattering and bound
+        states.
+    tolerance : float, optional
+        Relative tolerance of every value (default: the spec's [numerics] tolerance, else 1e-10).
+    """
+    from derive.solve.bound import is_ads
+    from derive.solve.centre import Unsupported
+
+    omegas = _frequencies(omega)
+    if at is not None and not (isinstance(at, (int, float)) and math.isfinite(at) and at >= 0):
+        raise InputError(f"at = {at}: expected a radius >= 0", key="--at")
+    if not isinstance(l, (int, np.integer)) or l < 0:
+        raise InputError(f"l = {l}: expected a non-negative integer", key="--l")
+    tolerance = tolerance_of(spacetime, tolerance)
+    problem = spacetime.numeric_problem
+    try:
+        if problem.regions[0].lower_kind == "horizon":
+            return _scattering(spacetime, problem, omegas, at, int(l), tolerance, progress)
+        if is_ads(problem):
+            return _normal_modes(spacetime, problem, omegas, at, int(l), tolerance)
+        return _density(spacetime, problem, omegas, at, int(l), tolerance)
+    except Unsupported as exc:
+        raise _unsupported(spacetime, "compute this spectrum", exc) from None
+
+
+def _floats(values):
+    return [None if v is None or not np.isfinite(v) else float(v) for v in np.asarray(values, dtype=float)]
+
+
+def _density(spacetime, problem, omegas, at, l, tolerance) -> Spectrum:
+    from derive.solve.api import METHOD, bound_state_table, spectrum_at_centre, spectrum_off_centre
+
+    if at:
+        result = spectrum_off_centre(problem, omegas, at, tolerance)
+    else:
+        result = spectrum_at_centre(problem, omegas, l, tolerance)
+    data = {"l": result["l"], "at": float(at or 0.0), "omega": _floats(omegas), "density": _floats(result["density"]),
+            "error": {"density": _floats(result["error"])}, "tolerance": tolerance, "method": METHOD,
+            "units": "per unit omega of the spec's time coordinate",
+            "minkowski_density": _floats(result["minkowski"])}
+    ok, message = bool(result["ok"]), result["message"]
+    levels = bound_state_table(problem, l, float(at or 0.0), tolerance)
+    if levels is not None:
+        data["bound_states"] = levels
+        if not levels["ok"] and ok:
+            ok, message = False, levels["message"]
+    return Spectrum(data, spacetime, ok, message, tolerance)
+
+
+def _normal_modes(spacetime, problem, omegas, at, l, tolerance) -> Spectrum:
+    """A reflecting AdS boundary: the spectrum is discrete, so the density between the normal modes is zero and
+    the modes of the requested l are listed with their weights at ``at``."""
+    from derive.solve.api import METHOD, bound_state_table
+
+    r0 = float(at or 0.0)
+    modes = bound_state_table(problem, l, r0, tolerance)
+    zeros = [0.0] * len(omegas)
+    data = {"l": l, "at": r0, "omega": _floats(omegas), "density": zeros, "error": {"density": zeros},
+            "tolerance": tolerance, "method": METHOD, "minkowski_density": zeros, "normal_modes": modes,
+            "bound_states": modes,
+            "units": "discrete spectrum (reflecting AdS boundary): zero density between the normal modes, whose "
+                     "weights are listed under normal_modes"}
+    return Spectrum(data, spacetime, modes["ok"], modes["message"], tolerance)
+
+
+def _scattering(spacetime, problem, omegas, at, l, tolerance, progress) -> Spectrum:
+    from derive.solve.api import METHOD, scattering
+
+    result = scattering(problem, omegas, l, tolerance)
+    data = {"l": l, "omega": _floats(omegas), "transmission": _floats(result["transmission"]),
+            "reflection": _floats(result["reflection"]), "density": None,
+            "error": {"transmission": _floats(result["error"]), "reflection": _floats(result["error"])},
+            "flux_defect": _floats(result["flux_defect"]), "tolerance": tolerance, "method": METHOD}
+    ok, message = bool(result["ok"]), result["message"]
+    if at is None:
+        data["note"] = "give --at R0 (outside the horizon) for the spectral density there"
+        return Spectrum(data, spacetime, ok, message, tolerance)
+    from derive.solve.centre import Unsupported
+    from derive.solve.exterior import STATES, exterior_density
+
+    try:
+        outside = exterior_density(problem, omegas, at, tolerance, progress=progress)
+    except Unsupported as exc:
+        raise _unsupported(spacetime, "compute the density there", exc, key="--at") from None
+    data.update({"at": float(at), "density": _floats(outside.density), "density_in": _floats(outside.inward),
+                 "density_up": _floats(outside.outward), "hawking_temperature": outside.temperature,
+                 "l_max": outside.l_max,
+                 "units": "per unit omega of the spec's time coordinate; density = Boulware (in + up), "
+                          "summed over l"})
+    data["error"].update({"density": _floats(outside.error), "density_in": _floats(outside.inward_error),
+                          "density_up": _floats(outside.outward_error)})
+    data["states"] = {}
+    for name in STATES:
+        plus, plus_error, minus, minus_error = outside.state(name)
+        data["states"][name] = {"positive": _floats(plus), "negative": _floats(minus),
+                                "error": {"positive": _floats(plus_error), "negative": _floats(minus_error)}}
+    if not outside.ok:
+        ok, message = False, outside.message()
+    return Spectrum(data, spacetime, ok, message, tolerance)
+
+
+def _reference(spacetime, detector, compare):
+    """(the numeric detector with its comparison, the reference problem or None) for ``compare``: None (the
+    spec's [compare]), "minkowski", a loaded spacetime or the path of a spec file."""
+    from derive import load
+    from derive.spec.model import Spacetime
+
+    if compare is None:
+        with_ = detector.compare_with
+        other = load(with_) if with_ not in (None, "minkowski") else None
+    elif isinstance(compare, str) and compare == "minkowski":
+        with_, other = "minkowski", None
+    elif isinstance(compare, Spacetime):
+        with_, other = compare.path, compare
+    elif isinstance(compare, str):
+        with_, other = compare, load(compare)
+    else:
+        raise InputError(f"compare: expected 'minkowski', a spacetime or a spec path, got {compare!r}",
+                         key="compare")
+    return replace(detector, compare_with=with_), (other.numeric_problem if other is not None else None)
+
+
+def response(spacetime, gaps=None, tolerance: float | None = None, switching: dict | None = None,
+             compare=None, progress=None) -> Response:
+    """The static detector's response F(Omega) with errors, the comparison, locality and the runs needed.
+
+    Parameters
+    ----------
+    spacetime : Spacetime
+        With a [detector] section.
+    gaps : array-like of float, optional
+        Gaps Omega in the detector's proper time (default: the spec's).
+    tolerance : float, optional
+        Relative tolerance of the spectral density (default: the spec's, else 1e-10).
+    switching : dict, optional
+        Values replacing the spec's switching values, e.g. ``{"width": 0.15}``.
+    compare : "minkowski", Spacetime or str, optional
+        What to compare with (default: the spec's [compare]).
+
+    A density that misses the tolerance does not stop the response: every value carries the error it reached,
+    ``.ok`` is False and ``.message`` names a tolerance that would pass.
+    """
+    from derive.codegen.problem import numeric_detector
+    from derive.detector.study import study
+    from derive.detector.switching import UnsupportedSwitching
+    from derive.solve.centre import Unsupported
+
+    if spacetime.detector is None:
+        raise InputError("no [detector] section: a response needs a detector", file=spacetime.path,
+                         key="detector")
+    detector = numeric_detector(spacetime)
+    if gaps is not None:
+        gaps = np.atleast_1d(np.asarray(gaps, dtype=float))
+        if gaps.size == 0 or not np.all(np.isfinite(gaps)) or np.any(np.abs(gaps) > 1e12):
+            raise InputError("gaps: expected finite numbers of magnitude at most 1e12", key="--gaps")
+    if not ((gaps is not None and len(gaps)) or detector.gaps):
+        raise InputError("no gaps: give [detector] gaps = [...] or --gaps", file=spacetime.path, key="detector.gaps")
+    if switching:
+        for name, value in switching.items():
+            if not (isinstance(value, (int, float)) and math.isfinite(value) and value > 0):
+                raise InputError(f"switching {name} = {value!r}: expected a finite positive number",
+                                 key=f"detector.switching.{name}")
+        detector = replace(detector, switching={**detector.switching, **switching})
+    tolerance = tolerance_of(spacetime, tolerance)
+    detector, reference = _reference(spacetime, detector, compare)
+    try:
+        answer = study(spacetime.numeric_problem, detector, reference, tolerance, gaps, progress=progress)
+    except (Unsupported, UnsupportedSwitching) as exc:
+        raise _unsupported(spacetime, "compute this response", exc) from None
+    except InputError as exc:
+        raise exc.located(file=spacetime.path) from None
+    data = response_json(answer)
+    data["tolerance"] = tolerance
+    return Response(data, spacetime, answer.get("ok", True), answer.get("message", ""), tolerance)
+
+
+def response_json(result) -> dict:
+    """The JSON of `derive response` from a study (keys documented in README.md)."""
+    switching = result["switching"]
+    data = {"gaps": _floats(result["gaps"]), "response": _floats(result["response"]),
+            "error": _floats(result["error"]),
+            "switching": {"shape": switching.shape, "width": switching.width, "tail": switching.tail,
+                          "duration": switching.duration,
+                          "support": None if switching.support is None else list(switching.support)},
+            "state": result["state"], "at": result["at"], "coupling": result["coupling"],
+            "sigmas": result["sigmas"], "locality": result["locality"], "notes": result["notes"]}
+    if "states" in result:
+        data["states"] = {name: {"response": _floats(value["response"]), "error": _floats(value["error"])}
+                          for name, value in result["states"].items()}
+        data["local_temperature"] = float(result["local_temperature"])
+    if "reference" in result:
+        ref = result["reference"]
+        data["reference"] = {"with": ref["with"], "response": _floats(ref["response"]),
+                             "error": _floats(ref["error"])}
+        data["relative_difference"] = _floats(result["relative_difference"])
+        data["relative_difference_error"] = _floats(result["relative_difference_error"])
+        trials = result.get("trials_to_distinguish")
+        data["trials_to_distinguish"] = None if trials is None else _floats(trials)
+        lower = result.get("trials_lower_bound")
+        data["trials_lower_bound"] = [] if lower is None else _floats(lower)
+        if "trials_note" in result:
+            data["trials_note"] = result["trials_note"]
+    return data
