@@ -20,6 +20,7 @@ import numpy as np
 
 from derive.errors import InputError
 from derive.outputs import write_atomic
+from derive.parallel import die_with_parent
 
 
 def parse_vary(items, parameters) -> list[tuple[str, np.ndarray]]:
@@ -161,27 +162,10 @@ def _run_local(jobs, spec_path, tolerance, workers, record):
     from concurrent.futures import ProcessPoolExecutor, as_completed
 
     count = min(workers or os.cpu_count() or 1, os.cpu_count() or 1, len(jobs))
-    with ProcessPoolExecutor(max_workers=count, initializer=_die_with_parent, initargs=(os.getpid(),)) as pool:
+    with ProcessPoolExecutor(max_workers=count, initializer=die_with_parent, initargs=(os.getpid(),)) as pool:
         futures = {pool.submit(scan_point, spec_path, overrides, tolerance): index for index, overrides in jobs}
         for future in as_completed(futures):
             record(futures[future], future.result())
-
-
-def _die_with_parent(parent: int) -> None:
-    """In a worker process: ask the kernel (Linux) to end this process when its parent dies, so a killed scan
-    leaves no workers behind; elsewhere, check once that the parent still runs."""
-    import signal
-
-    try:
-        import ctypes
-
-        libc = ctypes.CDLL(None, use_errno=True)
-        pr_set_pdeathsig = 1
-        libc.prctl(pr_set_pdeathsig, signal.SIGTERM)
-    except (OSError, AttributeError):
-        pass
-    if os.getppid() != parent:   # the parent died before the request took effect
-        os._exit(1)
 
 
 def _run_dask(jobs, spec_path, tolerance, scheduler, record):

@@ -697,8 +697,8 @@ def test_scan_workers_end_when_the_scan_is_killed(tmp_path):
     script.write_text(
         "import os, sys, time\n"
         "from concurrent.futures import ProcessPoolExecutor\n"
-        "from derive.scan import _die_with_parent\n"
-        "pool = ProcessPoolExecutor(1, initializer=_die_with_parent, initargs=(os.getpid(),))\n"
+        "from derive.parallel import die_with_parent\n"
+        "pool = ProcessPoolExecutor(1, initializer=die_with_parent, initargs=(os.getpid(),))\n"
         "print(pool.submit(os.getpid).result(), flush=True)\n"
         "pool.submit(time.sleep, 60)\n"
         "time.sleep(60)\n")

@@ -25,9 +25,11 @@ import numpy as np
 
 from derive.solve.centre import (FAR, DensityResult, Unsupported, check_supported, continuum_threshold,
                                  harmonic_weight, merge, rounding_floor)
+from derive.parallel import split_map
 from derive.solve.propagation import outer_pieces, region_propagator
 
 MAX_L = 400
+SPLIT_FROM = 64     # frequencies from which the set is split in two halves (one per core)
 
 
 def _pieces(problem, l, r0, steps, lowest, highest):
@@ -109,13 +111,18 @@ def _term_values(problem, l, omegas, r0, steps, series, fixed):
         return harmonic_weight(l, n) * np.exp(2 * log_u) / (r0 ** n * np.pi)
 
 
-def _term(problem, l, omegas, r0, series, tolerance, floor, steps=32, max_steps=8192):
-    """(2l+1)/(4 pi) |U_l|^2 and its error, refined per frequency (see the module docstring)."""
+def _term(problem, l, omegas, r0, series, tolerance, floor, fixed, steps=32, max_steps=8192):
+    """(2l+1)/(4 pi) |U_l|^2 and its error, refined per frequency (see the module docstring).
+
+    ``tolerance`` may be an array (one per frequency); ``fixed`` = (lowest, highest) frequency of the whole set,
+    so that the grids do not depend on which frequencies are still summing.  Returns also the step count at
+    which most frequencies converged (the next l starts near it)."""
     n = len(omegas)
-    fixed = (float(np.min(np.sqrt(omegas ** 2 - continuum_threshold(problem) ** 2))), float(np.max(omegas)))
+    tolerance = np.broadcast_to(np.asarray(tolerance, dtype=float), (n,))
     value, error = np.zeros(n), np.zeros(n)
     active = np.arange(n)
     count = steps
+    converged_at = []
     coarse = _term_values(problem, l, omegas, r0, count, series, fixed)
     fine = _term_values(problem, l, omegas, r0, 2 * count, series, fixed)
     while len(active):
@@ -125,7 +132,7 @@ def _term(problem, l, omegas, r0, series, tolerance, floor, steps=32, max_steps=
             after = finest + (finest - fine) / 15
             change = np.abs(after - before)
         scale = np.maximum(np.abs(after), floor[active])
-        done = change <= tolerance * scale
+        done = change <= tolerance[active] * scale
         if 4 * count >= max_steps:
             done[:] = True
         index = active[done]
@@ -133,14 +140,20 @@ def _term(problem, l, omegas, r0, series, tolerance, floor, steps=32, max_steps=
         error[index] = change[done] + rounding_floor(4 * count) * np.abs(after[done])
         bad = ~np.isfinite(value[index] + error[index])
         error[index[bad]] = np.inf
+        converged_at += [count] * int(np.sum(done))
         active = active[~done]
         coarse, fine = fine[~done], finest[~done]
         count *= 2
-    return value, error
+    return value, error, int(np.median(converged_at)) if converged_at else steps
 
 
 def density_off_centre(problem, omegas, r0: float, tolerance: float = 1e-10, series=None) -> DensityResult:
-    """The l-summed density per unit omega at radius r0 (> 0), in any region of a spacetime with a centre."""
+    """The l-summed density per unit omega at radius r0 (> 0), in any region of a spacetime with a centre.
+
+    Each frequency sums its own l: its reach omega r0* (the tortoise distance from the centre) sets how many
+    terms count, its terms are refined to tolerance/(4 + reach) of its sum, and it stops after three quiet terms
+    beyond its reach, while the others go on.  The step count of the next l starts from where most frequencies
+    of this l converged (nested grids: a start that is high only means finer levels are compared)."""
     check_supported(problem, any_dimension=True)
     first = problem.regions[0]
     if not r0 > 0:
@@ -154,27 +167,47 @@ def density_off_centre(problem, omegas, r0: float, tolerance: float = 1e-10, ser
         above = np.nonzero(omegas > threshold)[0]
         parts = [(above, density_off_centre(problem, omegas[above], r0, tolerance, series))] if len(above) else []
         return merge(omegas, tolerance, parts)
-    total = np.zeros(len(omegas))
-    error = np.zeros(len(omegas))
-    quiet = 0
-    reach = 0.0      # omega_max times the tortoise distance from the centre to r0
+    distance = 0.0      # the tortoise distance from the centre to r0
     for region in problem.regions:
         top = min(r0, region.upper) if region.upper is not None else r0
         if top > region.lower:
             nodes, weights = np.polynomial.legendre.leggauss(20)
             half = (top - region.lower) / 2
-            reach += float(np.sum(weights * region.dtortoise_dr(region.lower + (nodes + 1) * half)) * half)
-    reach *= float(np.max(omegas))
+            distance += float(np.sum(weights * region.dtortoise_dr(region.lower + (nodes + 1) * half)) * half)
+    fixed = (float(np.min(np.sqrt(omegas ** 2 - threshold ** 2))), float(np.max(omegas)))
+    # two fixed halves (every other frequency), on both cores where there are two: the same result either way
+    halves = [np.arange(len(omegas))] if len(omegas) < SPLIT_FROM else [np.arange(0, len(omegas), 2),
+                                                                           np.arange(1, len(omegas), 2)]
+    parts = split_map(_l_sum, [(problem, omegas[index], r0, tolerance, series, fixed, distance)
+                               for index in halves])
+    total, error = np.zeros(len(omegas)), np.zeros(len(omegas))
+    for index, (part_total, part_error) in zip(halves, parts):
+        total[index], error[index] = part_total, part_error
+    return DensityResult(omegas, total, error, np.zeros_like(total), error / total, np.zeros_like(total), tolerance)
+
+
+def _l_sum(problem, omegas, r0, tolerance, series, fixed, distance):
+    """The sum over l for each frequency (see :func:`density_off_centre`): (total, error)."""
+    n = len(omegas)
+    total = np.zeros(n)
+    error = np.zeros(n)
+    quiet = np.zeros(n, dtype=int)
+    reach = omegas * distance
+    summing = np.arange(n)
+    steps = 32
     for l in range(MAX_L + 1):
         # each term to a share of the tolerance (of itself or of the sum so far): about reach + 1 terms count
-        term, term_error = _term(problem, l, omegas, r0, series, tolerance / (4 + reach), total)
-        total += term
-        error += term_error
-        small = np.all(term <= 0.01 * tolerance * total)
-        quiet = quiet + 1 if (small and l > reach) else 0
-        if quiet >= 3:
-            error += term   # the first neglected terms are smaller than the last one kept
-            break
-    else:
-        raise Unsupported(f"the l-sum did not converge by l = {MAX_L}")
-    return DensityResult(omegas, total, error, np.zeros_like(total), error / total, np.zeros_like(total), tolerance)
+        term, term_error, converged = _term(problem, l, omegas[summing], r0, series,
+                                            tolerance / (4 + reach[summing]), total[summing], fixed,
+                                            steps=steps)
+        steps = max(32, converged // 2)
+        total[summing] += term
+        error[summing] += term_error
+        small = term <= 0.01 * tolerance * total[summing]
+        quiet[summing] = np.where(small & (l > reach[summing]), quiet[summing] + 1, 0)
+        finished = quiet[summing] >= 3
+        error[summing[finished]] += term[finished]   # the first neglected terms are smaller than the last kept
+        summing = summing[~finished]
+        if not len(summing):
+            return total, error
+    raise Unsupported(f"the l-sum did not converge by l = {MAX_L}")

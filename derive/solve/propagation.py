@@ -17,7 +17,7 @@ nodes from Gauss-Legendre quadrature of dr*/dr on each step.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -33,6 +33,7 @@ class Grid:
     r: np.ndarray
     steps: np.ndarray
     midpoints: np.ndarray
+    gauss_points: np.ndarray | None = None    # r at three Gauss points in r* of each step (steps, 3)
 
 
 def radial_nodes(lower: float, upper: float, count: int, geometric: bool) -> tuple[np.ndarray, np.ndarray]:
@@ -45,13 +46,38 @@ def radial_nodes(lower: float, upper: float, count: int, geometric: bool) -> tup
     return lower + (upper - lower) * s, lower + (upper - lower) * mid
 
 
+_GRIDS: dict = {}        # (id(region), lower, upper, count, geometric) -> (region, Grid)
+_GRID_LIMIT = 512
+
+
 def make_grid(region, lower: float, upper: float, count: int, geometric: bool) -> Grid:
+    """The steps of a piece, with the radii of each step's three Gauss points in r* (the potential is sampled
+    there).  A grid depends on the piece only, not on l or omega, so it is kept for reuse (every l of an l-sum
+    and every refinement that comes back to the same piece share it); entries are checked to belong to the same
+    region object, and the store is emptied when it grows past a few hundred grids."""
+    key = (id(region), float(lower), float(upper), int(count), bool(geometric))
+    hit = _GRIDS.get(key)
+    if hit is not None and hit[0] is region:
+        return hit[1]
     r, mid = radial_nodes(lower, upper, count, geometric)
     a, b = r[:-1], r[1:]
     half = (b - a) / 2
     points = (a + b)[:, None] / 2 + half[:, None] * GAUSS_NODES[None, :]
     increments = half * np.sum(GAUSS_WEIGHTS[None, :] * region.dtortoise_dr(points), axis=1)
-    return Grid(r, increments, mid)
+    grid = Grid(r, increments, mid)
+    grid = replace(grid, gauss_points=_gauss_points(region, grid))
+    if len(_GRIDS) >= _GRID_LIMIT:
+        _GRIDS.clear()
+    _GRIDS[key] = (region, grid)
+    return grid
+
+
+def _gauss_points(region, grid) -> np.ndarray:
+    """r at the three Gauss points (in r*) of every step: shape (steps, 3)."""
+    h = grid.steps
+    gauss = np.sqrt(3.0 / 5.0) / 2
+    offsets = (h / 2)[:, None] + np.array([-gauss, 0.0, gauss])[None, :] * h[:, None]
+    return tortoise_points(region, grid.r[:-1], grid.r[1:], offsets)
 
 
 def step_matrices(k2: np.ndarray, h: np.ndarray) -> np.ndarray:
@@ -71,24 +97,34 @@ def step_matrices(k2: np.ndarray, h: np.ndarray) -> np.ndarray:
     return out
 
 
-def ordered_product(matrices: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def ordered_product(matrices) -> tuple[np.ndarray, np.ndarray]:
     """M_{N-1} ... M_1 M_0 over the first axis, by pairwise reduction (log N vectorised products).
 
-    Every partial product is kept at unit size with its own log scale (evanescent stretches would overflow
-    otherwise); returns (product / exp(log_scale), log_scale), one per trailing index."""
-    logs = np.zeros(matrices.shape[:-2])
-    while matrices.shape[0] > 1:
-        if matrices.shape[0] % 2:
-            identity = np.broadcast_to(np.eye(2), (1,) + matrices.shape[1:])
-            matrices = np.concatenate([matrices, identity], axis=0)
-            logs = np.concatenate([logs, np.zeros((1,) + logs.shape[1:])], axis=0)
-        matrices = matrices[1::2] @ matrices[0::2]
-        logs = logs[1::2] + logs[0::2]
-        size = np.max(np.abs(matrices), axis=(-2, -1))
-        size = np.where(size > 0, size, 1.0)
-        matrices = matrices / size[..., None, None]
-        logs = logs + np.log(size)
-    return matrices[0], logs[0]
+    ``matrices`` is an array (N, ..., 2, 2) or the tuple of its four components (m00, m01, m10, m11), each
+    (N, ...): the 2x2 products are written out on the components, which is several times faster than a
+    matrix multiplication of tiny matrices.  Every partial product is kept at unit size with its own log scale
+    (evanescent stretches would overflow otherwise); returns (product / exp(log_scale) as (..., 2, 2),
+    log_scale), one per trailing index."""
+    if isinstance(matrices, np.ndarray):
+        a, b, c, d = (matrices[..., i, j] for i, j in ((0, 0), (0, 1), (1, 0), (1, 1)))
+    else:
+        a, b, c, d = matrices
+    logs = np.zeros(a.shape)
+    while a.shape[0] > 1:
+        if a.shape[0] % 2:
+            one, zero = np.ones((1,) + a.shape[1:]), np.zeros((1,) + a.shape[1:])
+            a, b, c, d = (np.concatenate([x, y]) for x, y in ((a, one), (b, zero), (c, zero), (d, one)))
+            logs = np.concatenate([logs, zero])
+        a1, b1, c1, d1 = a[1::2], b[1::2], c[1::2], d[1::2]
+        a0, b0, c0, d0 = a[0::2], b[0::2], c[0::2], d[0::2]
+        a, b, c, d = a1 * a0 + b1 * c0, a1 * b0 + b1 * d0, c1 * a0 + d1 * c0, c1 * b0 + d1 * d0
+        size = np.maximum(np.maximum(np.abs(a), np.abs(b)), np.maximum(np.abs(c), np.abs(d)))
+        size[size == 0] = 1.0
+        a, b, c, d = a / size, b / size, c / size, d / size
+        logs = logs[1::2] + logs[0::2] + np.log(size)
+    out = np.empty(a.shape[1:] + (2, 2))
+    out[..., 0, 0], out[..., 0, 1], out[..., 1, 0], out[..., 1, 1] = a[0], b[0], c[0], d[0]
+    return out, logs[0]
 
 
 def _trig_pair(k2, x):
@@ -123,44 +159,37 @@ _K_SERIES = [-4.0 * (2 / (float(np.prod(np.arange(1, 2 * m + 1))) * (2 * m + 3))
                      - (2.0 / 3.0) / float(np.prod(np.arange(1, 2 * m + 2)))) for m in range(1, 10)]
 
 
-def step_integrals(k2, h):
+def step_integrals(k2, h, c=None, so=None):
     """For a step of length h in r*, k^2 = omega^2 - V0, a = h/2, beta = 2k:
     S = int_0^a x sin(beta x) dx / k  and  Kq = int_-a^a (x^2 - h^2/12) cos(beta x) dx / k^2,
-    in real arithmetic (trigonometric or hyperbolic closed forms; series in beta^2 a^2 below 0.25)."""
+    in real arithmetic (series in beta^2 a^2 below 0.25; closed forms above).
+
+    The closed forms need sin(beta a)/beta and cos(beta a) only, which are (sin(k a)/k) cos(k a) and
+    2 cos(k a)^2 - 1: given c = cos(k a) and so = sin(k a)/k (or cosh and sinh/gamma, from
+    :func:`_trig_pair`), no further trigonometric function is evaluated, and one formula serves k^2 of
+    either sign."""
     a = np.broadcast_to(h / 2, np.broadcast(k2, h).shape)
+    if c is None or so is None:
+        c, so = _trig_pair(k2, a)
     beta2 = 4 * k2
     u = -beta2 * a * a                      # the series variable (-beta^2 a^2)
-    S = np.empty(a.shape)
-    Kq = np.empty(a.shape)
+    total_s = np.zeros(u.shape)
+    for coefficient in reversed(_S_SERIES):
+        total_s = total_s * u + coefficient
+    total_k = np.zeros(u.shape)
+    for coefficient in reversed(_K_SERIES):
+        total_k = total_k * u + coefficient
+    a2 = a * a
     small = np.abs(u) < 0.25
-    if np.any(small):
-        us, aa = u[small], a[small]
-        total_s = np.zeros_like(us)
-        for coefficient in reversed(_S_SERIES):
-            total_s = total_s * us + coefficient
-        total_k = np.zeros_like(us)
-        for coefficient in reversed(_K_SERIES):
-            total_k = total_k * us + coefficient
-        S[small] = total_s * aa ** 3
-        Kq[small] = total_k * aa ** 5
-    pos = (beta2 > 0) & ~small
-    if np.any(pos):
-        b, aa = np.sqrt(beta2[pos]), a[pos]
-        z = b * aa
-        sin, cos = np.sin(z), np.cos(z)
-        S[pos] = 2 * (sin - z * cos) / b ** 3
-        c2 = aa * aa * sin / b + 2 * aa * cos / b ** 2 - 2 * sin / b ** 3
-        K = 2 * c2 - (2 * aa * aa / 3) * sin / b
-        Kq[pos] = 4 * K / b ** 2
-    neg = (beta2 < 0) & ~small
-    if np.any(neg):
-        B, aa = np.sqrt(-beta2[neg]), a[neg]
-        z = B * aa
-        sinh, cosh = np.sinh(z), np.cosh(z)
-        S[neg] = 2 * (z * cosh - sinh) / B ** 3
-        c2 = aa * aa * sinh / B - 2 * aa * cosh / B ** 2 + 2 * sinh / B ** 3
-        K = 2 * c2 - (2 * aa * aa / 3) * sinh / B
-        Kq[neg] = -4 * K / B ** 2
+    with np.errstate(divide="ignore", invalid="ignore"):
+        sb = so * c                          # sin(beta a)/beta (sinh(B a)/B for beta^2 < 0)
+        cz = 2 * c * c - 1                   # cos(beta a) (cosh)
+        inverse = 1 / np.where(small, 1.0, beta2)
+        S_closed = 2 * (sb - a * cz) * inverse
+        c2 = a2 * sb + 2 * (a * cz - sb) * inverse
+        Kq_closed = 4 * (2 * c2 - (2 / 3) * a2 * sb) * inverse
+    S = np.where(small, total_s * a2 * a, S_closed)
+    Kq = np.where(small, total_k * a2 * a2 * a, Kq_closed)
     return S, Kq
 
 
@@ -179,8 +208,9 @@ def tortoise_points(region, r_lo, r_hi, offsets):
     return r
 
 
-def corrected_matrices(region, l, omegas, grid: Grid) -> np.ndarray:
-    """Fourth-order steps: the exact frozen-potential propagator with a first-order (interaction-picture Magnus)
+def corrected_matrices(region, l, omegas, grid: Grid) -> tuple[np.ndarray, ...]:
+    """The step matrices as their four components (m00, m01, m10, m11), each (steps, omegas).  Fourth-order
+    steps: the exact frozen-potential propagator with a first-order (interaction-picture Magnus)
     correction for the potential's variation over the step, integrated in closed form.
 
     On a step of length h in r* (x measured from its middle), V = V0 + b x + c (x^2 - h^2/12) + O(h^3) from
@@ -192,11 +222,9 @@ def corrected_matrices(region, l, omegas, grid: Grid) -> np.ndarray:
     I_sc = int dV sin(kx) cos(kx) dx,  I_ss = int dV sin^2(kx) dx,  I_cc = int dV cos^2(kx) dx.
 
     Because the variation enters only through oscillatory integrals, the error does not grow with omega."""
-    r_lo, r_hi = grid.r[:-1], grid.r[1:]
     h = grid.steps
     gauss = np.sqrt(3.0 / 5.0) / 2
-    offsets = (h / 2)[:, None] + np.array([-gauss, 0.0, gauss])[None, :] * h[:, None]
-    r_points = tortoise_points(region, r_lo, r_hi, offsets)
+    r_points = grid.gauss_points if grid.gauss_points is not None else _gauss_points(region, grid)
     V = np.broadcast_to(np.asarray(region.potential(r_points, l, 0.0), dtype=float), r_points.shape)
     xg = gauss * h
     b = (V[:, 2] - V[:, 0]) / (2 * xg)
@@ -207,7 +235,7 @@ def corrected_matrices(region, l, omegas, grid: Grid) -> np.ndarray:
         w2 = omegas[start:start + CHUNK][None, :] ** 2
         k2 = w2 - V0[:, None]
         c, so = _trig_pair(k2, (h / 2)[:, None])
-        S, Kq = step_integrals(k2, h[:, None])
+        S, Kq = step_integrals(k2, h[:, None], c, so)
         # Omega = [[A, B], [C, -A]]: A = -I_sc/k = -b S, B = -I_ss/k^2 = c Kq/2, C = I_cc = c Kq k^2/2
         A = -b[:, None] * S
         B = c_coef[:, None] * Kq / 2
@@ -225,13 +253,10 @@ def corrected_matrices(region, l, omegas, grid: Grid) -> np.ndarray:
         # E X E, written out
         y00, y01 = x00 * c + x01 * e10, x00 * so + x01 * c
         y10, y11 = x10 * c + x11 * e10, x10 * so + x11 * c
-        m = np.empty(k2.shape + (2, 2))
-        m[..., 0, 0] = c * y00 + so * y10
-        m[..., 0, 1] = c * y01 + so * y11
-        m[..., 1, 0] = e10 * y00 + c * y10
-        m[..., 1, 1] = e10 * y01 + c * y11
-        out.append(m)
-    return np.concatenate(out, axis=1)
+        out.append((c * y00 + so * y10, c * y01 + so * y11, e10 * y00 + c * y10, e10 * y01 + c * y11))
+    if len(out) == 1:
+        return out[0]
+    return tuple(np.concatenate([part[i] for part in out], axis=1) for i in range(4))
 
 
 def region_propagator(region, l: int, omegas: np.ndarray, lower: float, upper: float, count: int,
