@@ -185,6 +185,7 @@ def _omega_grid(text: str):
 def _deliver(args, result, write_files, header, rows) -> int:
     """The common ending of the numeric commands: files with --out, JSON with --json, else a table; exit 1 with
     what was reached when the tolerance was missed (everything reached is still written and printed)."""
+    _end_progress(args)
     data = result.to_json()
     if args.out:
         from derive.outputs import prepare_folder
@@ -210,13 +211,21 @@ def _tolerance(args, spacetime):
 
 
 def _progress(args):
-    """A one-line progress report of an l-sum on a terminal (nothing when stderr is not one, or with --quiet)."""
+    """A one-line progress report of an l-sum on a terminal (the l reached and the share of frequencies done);
+    nothing when stderr is not a terminal, or with --quiet."""
     if getattr(args, "quiet", False) or not sys.stderr.isatty():
         return None
 
-    def report(l):
-        print(f"\r  summing over l: l = {l} done", end="", file=sys.stderr, flush=True)
+    def report(l, share=None):
+        done = f", {share:.0%} of frequencies done" if share is not None else ""
+        print(f"\r  summing over l: l = {l}{done}   ", end="", file=sys.stderr, flush=True)
     return report
+
+
+def _end_progress(args) -> None:
+    """End the progress line (it may have been written by a worker process, so the parent cannot tell)."""
+    if _progress(args) is not None:
+        print("\r" + " " * 60 + "\r", end="", file=sys.stderr, flush=True)
 
 
 def cmd_spectrum(args) -> int:

@@ -83,7 +83,7 @@ def spectrum(spacetime, omega, at: float | None = None, l: int = 0, tolerance: f
             return _scattering(spacetime, problem, omegas, at, int(l), tolerance, progress)
         if is_ads(problem):
             return _normal_modes(spacetime, problem, omegas, at, int(l), tolerance)
-        return _density(spacetime, problem, omegas, at, int(l), tolerance)
+        return _density(spacetime, problem, omegas, at, int(l), tolerance, progress)
     except Unsupported as exc:
         raise _unsupported(spacetime, "compute this spectrum", exc) from None
 
@@ -92,11 +92,11 @@ def _floats(values):
     return [None if v is None or not np.isfinite(v) else float(v) for v in np.asarray(values, dtype=float)]
 
 
-def _density(spacetime, problem, omegas, at, l, tolerance) -> Spectrum:
+def _density(spacetime, problem, omegas, at, l, tolerance, progress=None) -> Spectrum:
     from derive.solve.api import METHOD, bound_state_table, spectrum_at_centre, spectrum_off_centre
 
     if at:
-        result = spectrum_off_centre(problem, omegas, at, tolerance)
+        result = spectrum_off_centre(problem, omegas, at, tolerance, progress)
     else:
         result = spectrum_at_centre(problem, omegas, l, tolerance)
     data = {"l": result["l"], "at": float(at or 0.0), "omega": _floats(omegas), "density": _floats(result["density"]),

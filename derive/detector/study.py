@@ -130,7 +130,7 @@ def proper_density(problem, tolerance, r0: float = 0.0, state: str = "vacuum", p
                           "of each l with their weights, but their infinitely many levels and l are not yet "
                           "summed into a response, so a response would be incomplete")
 
-    solve = density_function(problem, r0, tolerance)
+    solve = density_function(problem, r0, tolerance, progress)
 
     def density_at(nu):
         result = solve(sqrt_f0 * np.asarray(nu))

@@ -24,22 +24,22 @@ def spectrum_at_centre(problem, omegas, l: int = 0, tolerance: float = 1e-10) ->
             "tail_error": result.tail_error, "propagation_error": result.propagation_error}
 
 
-def spectrum_off_centre(problem, omegas, r0: float, tolerance: float = 1e-10) -> dict:
+def spectrum_off_centre(problem, omegas, r0: float, tolerance: float = 1e-10, progress=None) -> dict:
     """The l-summed spectral density per unit omega at radius r0 > 0 (derive.solve.offcentre)."""
     from derive.solve.offcentre import density_off_centre
 
-    result = density_off_centre(problem, np.asarray(omegas, dtype=float), r0, tolerance)
+    result = density_off_centre(problem, np.asarray(omegas, dtype=float), r0, tolerance, progress=progress)
     return {"l": None, "at": r0, "omega": result.omega, "density": result.density, "error": result.error,
             "ok": result.ok, "message": result.message(), "minkowski": minkowski_density(result.omega)}
 
 
-def density_function(problem, r0: float, tolerance: float):
+def density_function(problem, r0: float, tolerance: float, progress=None):
     """omega -> DensityResult at radius r0 (the centre, or the l-sum off it)."""
     if r0 == 0.0:
         return lambda omegas: centre_density(problem, omegas, tolerance)
     from derive.solve.offcentre import density_off_centre
 
-    return lambda omegas: density_off_centre(problem, omegas, r0, tolerance)
+    return lambda omegas: density_off_centre(problem, omegas, r0, tolerance, progress=progress)
 
 
 def scattering(problem, omegas, l: int, tolerance: float = 1e-10) -> dict:

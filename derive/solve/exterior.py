@@ -34,10 +34,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from derive.parallel import split_map
+
 from derive.solve.centre import (Unsupported, continuum_threshold, harmonic_weight, region_at, rounding_floor,
                                  shortfall)
 from derive.solve.horizon import START, _run, check_supported, layout, threshold_rounding
 
+SPLIT_FROM = 64     # frequencies from which the set is split in two halves (one per core)
 MAX_L = 400
 STATES = ("boulware", "hartle-hawking", "unruh")
 
@@ -120,6 +123,7 @@ def mode_term(problem, l, omegas, r0, tolerance, floor=None, steps=64, max_steps
     a rounding floor."""
     n = len(omegas)
     floor = np.zeros(n) if floor is None else floor
+    tolerance = np.broadcast_to(np.asarray(tolerance, dtype=float), (n,))
     groups = _batches(problem, omegas)
     if len(np.unique(groups)) > 1:
         # frequencies above the mass and below it (up modes only, evanescent far away) are marched separately,
@@ -127,7 +131,7 @@ def mode_term(problem, l, omegas, r0, tolerance, floor=None, steps=64, max_steps
         merged = tuple(np.zeros(n) for _ in range(4))
         for group in np.unique(groups):
             index = groups == group
-            part = mode_term(problem, l, omegas[index], r0, tolerance, floor[index], steps, max_steps)
+            part = mode_term(problem, l, omegas[index], r0, tolerance[index], floor[index], steps, max_steps)
             for whole, piece in zip(merged, part):
                 whole[index] = piece
         return merged
@@ -145,7 +149,7 @@ def mode_term(problem, l, omegas, r0, tolerance, floor=None, steps=64, max_steps
             after = [finest[p] + (finest[p] - fine[p]) / 15 for p in (0, 1)]
             change = [np.abs(after[p] - before[p]) for p in (0, 1)]
         scale = np.maximum(np.abs(after[0]) + np.abs(after[1]), floor[active])
-        done = change[0] + change[1] <= tolerance * scale
+        done = change[0] + change[1] <= tolerance[active] * scale
         last = 4 * count >= max_steps
         if last:
             done[:] = True
@@ -165,7 +169,7 @@ def mode_term(problem, l, omegas, r0, tolerance, floor=None, steps=64, max_steps
                                 + (rounding_floor(4 * count) + threshold_rounding(problem, wd))
                                 * np.abs(after[part][done]))
             if not last:   # not there yet with every source of error counted: refine further
-                short = e_in[index] + e_out[index] > tolerance * scale[done]
+                short = e_in[index] + e_out[index] > tolerance[index] * scale[done]
                 done[np.nonzero(done)[0][short]] = False
         finished = active[done]
         bad = ~np.isfinite(e_in[finished] + e_out[finished] + inward[finished] + outward[finished])
@@ -178,8 +182,41 @@ def mode_term(problem, l, omegas, r0, tolerance, floor=None, steps=64, max_steps
     return inward, outward, e_in, e_out
 
 
+def _l_sum(problem, omegas, r0, tolerance, f0, progress):
+    """The sum over l for each frequency: (in, up, their errors, the largest l reached).  Each frequency sums
+    its own l: its reach omega r0/sqrt(f(r0)) sets its share of the tolerance, and it stops after three quiet
+    terms beyond its reach while the others go on."""
+    n = len(omegas)
+    reach = omegas * r0 / np.sqrt(f0)
+    inward, outward, e_in, e_out = (np.zeros(n) for _ in range(4))
+    quiet = np.zeros(n, dtype=int)
+    summing = np.arange(n)
+    for l in range(MAX_L + 1):
+        # each term to a share of the tolerance (of itself, or of the sum so far): about reach + 1 terms count
+        w = omegas[summing]
+        t_in, t_out, te_in, te_out = mode_term(problem, l, w, r0, tolerance / (4 + reach[summing]),
+                                               floor=inward[summing] + outward[summing])
+        inward[summing] += t_in
+        outward[summing] += t_out
+        e_in[summing] += te_in
+        e_out[summing] += te_out
+        total = inward[summing] + outward[summing]
+        small = t_in + t_out <= 0.01 * tolerance * total
+        quiet[summing] = np.where(small & (l > reach[summing]), quiet[summing] + 1, 0)
+        finished = quiet[summing] >= 3
+        e_in[summing[finished]] += t_in[finished]     # the first neglected terms are smaller than the last kept
+        e_out[summing[finished]] += t_out[finished]
+        summing = summing[~finished]
+        if progress is not None:
+            progress(l, 1.0 - len(summing) / n)
+        if not len(summing):
+            return inward, outward, e_in, e_out, l
+    raise Unsupported(f"the l-sum did not converge by l = {MAX_L}")
+
+
 def exterior_density(problem, omegas, r0: float, tolerance: float = 1e-10, progress=None) -> ExteriorDensity:
-    """The in and up spectral densities at radius r0 outside the horizon, summed over l to the tolerance."""
+    """The in and up spectral densities at radius r0 outside the horizon, summed over l to the tolerance
+    (each frequency to its own l; see :func:`_l_sum`)."""
     check_supported(problem)
     first = problem.regions[0]
     if not r0 > first.lower:
@@ -189,27 +226,16 @@ def exterior_density(problem, omegas, r0: float, tolerance: float = 1e-10, progr
         raise ValueError("frequencies must be positive and finite")
     region = region_at(problem, r0)
     f0 = float(np.asarray(region.metric_f(np.array([r0]))).reshape(-1)[0])
-    reach = float(np.max(omegas)) * r0 / np.sqrt(f0)
+    # two fixed halves (every other frequency), on both cores where there are two: the same result either way
+    halves = [np.arange(len(omegas))] if len(omegas) < SPLIT_FROM else [np.arange(0, len(omegas), 2),
+                                                                           np.arange(1, len(omegas), 2)]
+    parts = split_map(_l_sum, [(problem, omegas[index], r0, tolerance, f0, progress if i == 0 else None)
+                               for i, index in enumerate(halves)])
     n = len(omegas)
     inward, outward, e_in, e_out = (np.zeros(n) for _ in range(4))
-    quiet = 0
-    for l in range(MAX_L + 1):
-        # each term to a share of the tolerance (of itself, or of the sum so far): about reach + 1 terms count
-        t_in, t_out, te_in, te_out = mode_term(problem, l, omegas, r0, tolerance / (4 + reach),
-                                               floor=inward + outward)
-        inward += t_in
-        outward += t_out
-        e_in += te_in
-        e_out += te_out
-        if progress is not None:
-            progress(l)
-        small = np.all(t_in + t_out <= 0.01 * tolerance * (inward + outward))
-        quiet = quiet + 1 if (small and l > reach) else 0
-        if quiet >= 3:
-            e_in += t_in
-            e_out += t_out
-            break
-    else:
-        raise Unsupported(f"the l-sum did not converge by l = {MAX_L}")
+    for index, part in zip(halves, parts):
+        for whole, piece in zip((inward, outward, e_in, e_out), part[:4]):
+            whole[index] = piece
+    l = max(part[4] for part in parts)
     kappa = problem.regions[0].surface_gravity
     return ExteriorDensity(omegas, r0, inward, e_in, outward, e_out, float(kappa) / (2 * np.pi), tolerance, l)

@@ -147,7 +147,8 @@ def _term(problem, l, omegas, r0, series, tolerance, floor, fixed, steps=32, max
     return value, error, int(np.median(converged_at)) if converged_at else steps
 
 
-def density_off_centre(problem, omegas, r0: float, tolerance: float = 1e-10, series=None) -> DensityResult:
+def density_off_centre(problem, omegas, r0: float, tolerance: float = 1e-10, series=None,
+                       progress=None) -> DensityResult:
     """The l-summed density per unit omega at radius r0 (> 0), in any region of a spacetime with a centre.
 
     Each frequency sums its own l: its reach omega r0* (the tortoise distance from the centre) sets how many
@@ -165,7 +166,8 @@ def density_off_centre(problem, omegas, r0: float, tolerance: float = 1e-10, ser
     threshold = continuum_threshold(problem)
     if threshold > 0 and np.any(omegas <= threshold):   # no continuum below the mass (see centre.py)
         above = np.nonzero(omegas > threshold)[0]
-        parts = [(above, density_off_centre(problem, omegas[above], r0, tolerance, series))] if len(above) else []
+        parts = [(above, density_off_centre(problem, omegas[above], r0, tolerance, series, progress))
+                 ] if len(above) else []
         return merge(omegas, tolerance, parts)
     distance = 0.0      # the tortoise distance from the centre to r0
     for region in problem.regions:
@@ -178,16 +180,17 @@ def density_off_centre(problem, omegas, r0: float, tolerance: float = 1e-10, ser
     # two fixed halves (every other frequency), on both cores where there are two: the same result either way
     halves = [np.arange(len(omegas))] if len(omegas) < SPLIT_FROM else [np.arange(0, len(omegas), 2),
                                                                            np.arange(1, len(omegas), 2)]
-    parts = split_map(_l_sum, [(problem, omegas[index], r0, tolerance, series, fixed, distance)
-                               for index in halves])
+    parts = split_map(_l_sum, [(problem, omegas[index], r0, tolerance, series, fixed, distance,
+                                progress if i == 0 else None) for i, index in enumerate(halves)])
     total, error = np.zeros(len(omegas)), np.zeros(len(omegas))
     for index, (part_total, part_error) in zip(halves, parts):
         total[index], error[index] = part_total, part_error
     return DensityResult(omegas, total, error, np.zeros_like(total), error / total, np.zeros_like(total), tolerance)
 
 
-def _l_sum(problem, omegas, r0, tolerance, series, fixed, distance):
-    """The sum over l for each frequency (see :func:`density_off_centre`): (total, error)."""
+def _l_sum(problem, omegas, r0, tolerance, series, fixed, distance, progress=None):
+    """The sum over l for each frequency (see :func:`density_off_centre`): (total, error).  ``progress(l,
+    share)`` is told the l reached and the share of frequencies done."""
     n = len(omegas)
     total = np.zeros(n)
     error = np.zeros(n)
@@ -208,6 +211,8 @@ def _l_sum(problem, omegas, r0, tolerance, series, fixed, distance):
         finished = quiet[summing] >= 3
         error[summing[finished]] += term[finished]   # the first neglected terms are smaller than the last kept
         summing = summing[~finished]
+        if progress is not None:
+            progress(l, 1.0 - len(summing) / n)
         if not len(summing):
             return total, error
     raise Unsupported(f"the l-sum did not converge by l = {MAX_L}")
