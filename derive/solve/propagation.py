@@ -255,9 +255,30 @@ def corrected_matrices(region, l, omegas, grid: Grid) -> np.ndarray:
     return np.concatenate(out, axis=1)
 
 
+_PROPAGATORS: dict = {}   # everything that fixes a propagator -> (region, product, log scale)
+_PROPAGATOR_LIMIT = 1024
+
+
 def region_propagator(region, l: int, omegas: np.ndarray, lower: float, upper: float, count: int,
                       geometric: bool) -> tuple[np.ndarray, np.ndarray]:
-    """The propagator across [lower, upper] on ``count`` steps for every omega: (2, 2) per omega, log scale."""
+    """The propagator across [lower, upper] on ``count`` steps for every omega: (2, 2) per omega, log scale.
+
+    Kept for reuse, keyed on everything that fixes it (the region object, l, the exact frequencies, the piece,
+    the step count and spacing): refinements and the error checks (a moved start, a farther end) march many
+    pieces again exactly.  Callers get copies, so the kept arrays cannot be changed."""
+    omegas = np.asarray(omegas, dtype=float)
+    key = (id(region), int(l), omegas.tobytes(), float(lower), float(upper), int(count), bool(geometric))
+    hit = _PROPAGATORS.get(key)
+    if hit is not None and hit[0] is region:
+        return hit[1].copy(), hit[2].copy()
+    product, log_scale = _propagate(region, l, omegas, lower, upper, count, geometric)
+    if len(_PROPAGATORS) >= _PROPAGATOR_LIMIT:
+        _PROPAGATORS.clear()
+    _PROPAGATORS[key] = (region, product, log_scale)
+    return product.copy(), log_scale.copy()
+
+
+def _propagate(region, l, omegas, lower, upper, count, geometric):
     results, scales = [], []
     grid = make_grid(region, lower, upper, count, geometric)
     for start in range(0, len(omegas), CHUNK):
