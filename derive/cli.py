@@ -1,6 +1,6 @@
 """The command line: parses arguments, calls the public API, writes files.  Nothing else lives here.
 
-Exit codes (DESIGN.md): 0 success; 2 bad input (message names the file, key and problem); 1 a requested
+Exit codes (README.md): 0 success; 2 bad input (message names the file, key and problem); 1 a requested
 accuracy not reached (message says what was reached).
 """
 

@@ -1,4 +1,4 @@
-"""A reflecting AdS boundary: normal modes, their weights, and a detector at the centre (PHYSICS.md section 6:
+"""A reflecting AdS boundary: normal modes, their weights, and a detector at the centre (docs/conventions.md section 6:
 the spectrum is discrete)."""
 
 import json

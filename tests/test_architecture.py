@@ -1,4 +1,4 @@
-"""DESIGN.md: derive/solve and derive/detector never import sympy; only kernels cross to the numeric side."""
+"""DEVELOPERS.md: derive/solve and derive/detector never import sympy; only kernels cross to the numeric side."""
 
 import os
 import subprocess

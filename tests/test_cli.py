@@ -28,7 +28,7 @@ def test_check_summarises(capsys):
 
 
 def test_geometry_json_contract(capsys):
-    # DESIGN.md / issue contract: {"regions": {NAME: {"coordinates", "metric", "ricci_scalar", "kretschmann",
+    # README.md / issue contract: {"regions": {NAME: {"coordinates", "metric", "ricci_scalar", "kretschmann",
     # "ricci_squared", "einstein", "stress_energy", "energy_conditions"}}}, expressions sympy reads back.
     code, out, _ = run(capsys, "geometry", SCHWARZSCHILD, "--json", "--set", "M=2")
     assert code == 0

@@ -1,4 +1,4 @@
-"""Curvature of exact spacetimes against published values (PHYSICS.md section 1; REFERENCES.md)."""
+"""Curvature of exact spacetimes against published values (docs/conventions.md section 1; REFERENCES.md)."""
 
 import mpmath
 import pytest

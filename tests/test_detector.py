@@ -1,4 +1,4 @@
-"""Detector response at a regular centre (PHYSICS.md sections 7-9; REFERENCES.md "Detectors")."""
+"""Detector response at a regular centre (docs/conventions.md sections 7-9; REFERENCES.md "Detectors")."""
 
 import json
 import os
@@ -67,7 +67,7 @@ def test_small_shell_difference_is_linear_in_its_mass(write_spec):
 
 @pytest.mark.parametrize("k", [0.0, 0.7, 3.0])
 def test_gaussian_transform_against_direct_quadrature(k):
-    # |chi_hat(k)|^2 = 2 pi sigma^2 exp(-sigma^2 k^2) (PHYSICS.md section 8) against scipy's quad of
+    # |chi_hat(k)|^2 = 2 pi sigma^2 exp(-sigma^2 k^2) (docs/conventions.md section 8) against scipy's quad of
     # int chi(tau) e^{-i k tau} dtau (the imaginary part vanishes by symmetry).
     switching = Switching("gaussian", 0.8)
     real, _ = quad(switching.chi, -12 * 0.8, 12 * 0.8, weight="cos", wvar=k, epsabs=1e-14, epsrel=1e-12)
@@ -79,7 +79,7 @@ def test_gaussian_transform_against_direct_quadrature(k):
 
 
 def test_locality_of_a_centred_detector():
-    # PHYSICS.md section 9: from the centre of a flat interior of radius R the light round trip is 2R in the
+    # docs/conventions.md section 9: from the centre of a flat interior of radius R the light round trip is 2R in the
     # interior's proper units; the Gaussian's duration is 2 sigma erfcinv(1e-12).
     result = run_study(os.path.join(ROOT, "worked", "dust_shell", "spec.toml"))
     assert result["locality"]["round_trip"] == pytest.approx(2.0, rel=1e-13)
@@ -88,7 +88,7 @@ def test_locality_of_a_centred_detector():
 
 
 def test_trials_formula():
-    # PHYSICS.md section 9 (normal approximation to the binomial; common practice), by hand:
+    # docs/conventions.md section 9 (normal approximation to the binomial; common practice), by hand:
     p_a, p_b, z = 1.0e-3, 1.1e-3, 3.0
     expected = z ** 2 * (np.sqrt(p_a * (1 - p_a)) + np.sqrt(p_b * (1 - p_b))) ** 2 / (p_a - p_b) ** 2
     assert trials_to_distinguish(p_a, p_b, z) == pytest.approx(expected, rel=1e-15)
@@ -181,7 +181,7 @@ def test_switching_shapes_know_their_decay_and_duration():
 
 def test_compact_switching_flat_response_from_the_mode_sum(write_spec):
     # Flat space from the mode sum (centre density) against the same switching with the exact flat density
-    # nu/(4 pi^2) (PHYSICS.md section 7): the solver's density enters, nothing else differs.
+    # nu/(4 pi^2) (docs/conventions.md section 7): the solver's density enters, nothing else differs.
     st = derive.load(write_spec(FLAT + DETECTOR.format(width=1, gaps="-1.0, 0.0, 1.0").replace(
         'shape = "gaussian", width = "1"', 'shape = "sin4", duration = "3", ramp = "1"')))
     result = study(numeric_problem(KernelSet(st)), numeric_detector(st), tolerance=1e-10)
@@ -207,7 +207,7 @@ def test_user_expression_switching_through_the_spec(write_spec):
 def test_off_centre_flat_detector_responds_like_a_centred_one(write_spec):
     # Issue 6 check: in flat space the l-summed density off the centre is the centre's (addition theorem,
     # sum_l (2l+1) j_l^2 = 1, DLMF 10.60.12), so a detector at r0 = 0.7 gives the closed-form Gaussian response
-    # (Birrell & Davies 1982, ch. 3; PHYSICS.md section 8) to the tolerance.
+    # (Birrell & Davies 1982, ch. 3; docs/conventions.md section 8) to the tolerance.
     text = FLAT + DETECTOR.format(width=2, gaps="-1.0, 0.0, 1.0").replace('at = "r = 0"', 'at = "r = 0.7"')
     result = run_study(write_spec(text))
     assert np.all(np.abs(result["relative_difference"]) <= 1e-9)
@@ -215,7 +215,7 @@ def test_off_centre_flat_detector_responds_like_a_centred_one(write_spec):
 
 
 def test_flat_massive_gaussian_response_against_direct_quadrature(write_spec):
-    # F = int_mu^inf dnu sqrt(nu^2 - mu^2)/(4 pi^2) |chi_hat(Omega + nu)|^2 (PHYSICS.md sections 7-8) by scipy's
+    # F = int_mu^inf dnu sqrt(nu^2 - mu^2)/(4 pi^2) |chi_hat(Omega + nu)|^2 (docs/conventions.md sections 7-8) by scipy's
     # QUADPACK, independently of derive's mode sum and panels.
     text = FLAT.replace('mass = "0"', 'mass = "1/2"') + DETECTOR.format(width=1, gaps="-2.0, 0.0, 1.0")
     result = run_study(write_spec(text))
@@ -241,7 +241,7 @@ def test_massive_field_with_bound_states_is_refused(capsys, tmp_path):
 
 
 def test_flat_2plus1_gaussian_response(write_spec):
-    # Flat 2+1, massless: S = 1/(4 pi) (PHYSICS.md section 7), so F = int_0^inf S 2 pi sigma^2 e^{-sigma^2 (W+nu)^2}
+    # Flat 2+1, massless: S = 1/(4 pi) (docs/conventions.md section 7), so F = int_0^inf S 2 pi sigma^2 e^{-sigma^2 (W+nu)^2}
     # dnu = (sqrt(pi) sigma/4) erfc(sigma W) (integrated here; checked below by QUADPACK too).
     from scipy.special import erfc
 

@@ -1,4 +1,4 @@
-"""The Klein-Gordon field: potentials, tortoise coordinates, ends and matching (PHYSICS.md sections 4-6)."""
+"""The Klein-Gordon field: potentials, tortoise coordinates, ends and matching (docs/conventions.md sections 4-6)."""
 
 import json
 
@@ -81,7 +81,7 @@ line_element = "-dt**2 + dr**2 + r**2*dphi**2"
 
 
 def test_tangherlini_potential_in_five_dimensions(write_spec):
-    # Source: PHYSICS.md section 4 (any D): V = f (lambda/r^2 + mu^2 + xi R) + (n/2) F F'/r
+    # Source: docs/conventions.md section 4 (any D): V = f (lambda/r^2 + mu^2 + xi R) + (n/2) F F'/r
     # + (n/2)(n/2 - 1) F^2/r^2, lambda = l(l + n - 1), n = 3 for D = 5 (Tangherlini, Nuovo Cimento 27, 636, 1963).
     text = """
 format = 1
@@ -128,7 +128,7 @@ def test_tortoise_coordinates(write_spec, f, where, expected):
 
 
 def test_horizon_end_of_schwarzschild(write_spec):
-    # Source: Hawking, Commun. Math. Phys. 43, 199 (1975): kappa = 1/(4M), T_H = 1/(8 pi M); PHYSICS.md
+    # Source: Hawking, Commun. Math. Phys. 43, 199 (1975): kappa = 1/(4M), T_H = 1/(8 pi M); docs/conventions.md
     # section 6: u ~ (r - r_h)^(-+ i omega/(2 kappa)).
     st, field = region_field(write_spec, with_field(static_spec("1 - 2*M/r", where="r > 2*M")))
     M = st.symbol("M")
@@ -168,7 +168,7 @@ def test_regular_centre_series_matches_riccati_bessel(write_spec):
 
 
 def test_massive_field_has_a_coulomb_tail(write_spec):
-    # Source: PHYSICS.md section 6: a massive field outside mass M has V ~ mu^2 - 2 M mu^2 / r.
+    # Source: docs/conventions.md section 6: a massive field outside mass M has V ~ mu^2 - 2 M mu^2 / r.
     params = "M = { value = 1.0, positive = true }\nmu = { value = 0.1, positive = true }"
     st, field = region_field(write_spec, with_field(static_spec("1 - 2*M/r", parameters=params, where="r > 2*M"),
                                                     mass="mu"))
@@ -179,14 +179,14 @@ def test_massive_field_has_a_coulomb_tail(write_spec):
 
 
 def test_anti_de_sitter_boundary(write_spec):
-    # Source: PHYSICS.md section 6: AdS has a reflecting conformal boundary (discrete spectrum).
+    # Source: docs/conventions.md section 6: AdS has a reflecting conformal boundary (discrete spectrum).
     _, field = region_field(write_spec, with_field(static_spec(
         "1 + r**2/L**2", parameters="L = { value = 1.0, positive = true }")))
     assert field.ends["upper"]["tail"] == "AdS-like"
 
 
 def test_minimal_coupling_matching_is_continuity_of_sqrt_h_dpsi_dr(write_spec):
-    # Source: PHYSICS.md section 5: for xi = 0, psi and sqrt(h) dpsi/dr are continuous across the shell.
+    # Source: docs/conventions.md section 5: for xi = 0, psi and sqrt(h) dpsi/dr are continuous across the shell.
     st = derive.load(write_spec(two_region_spec("1", "1 - 2*M/r", DUST)))
     problem = st.field_problem
     T = problem.interfaces[0].transfer_matrix
@@ -224,7 +224,7 @@ def _ricci_scalar_static(f, h, r):
 
 
 def test_curvature_coupled_matching_against_a_smoothed_shell(write_spec):
-    # Independent check (issue 3; PHYSICS.md section 5): replace the thin shell by a thick one of width eps
+    # Independent check (issue 3; docs/conventions.md section 5): replace the thin shell by a thick one of width eps
     # (tanh profile in f and h), integrate the radial equation in flux form (P psi')' = W(-omega^2/f + lambda/r^2
     # + mu^2 + xi R) psi across it with scipy, and let eps -> 0: the result must approach derive's transfer
     # matrix (computed from the weak form), and must not approach the matching that ignores the delta term.

@@ -20,7 +20,7 @@ def schwarzschild():
 
 
 def test_flux_is_conserved(schwarzschild):
-    # |R|^2 + |T|^2 = 1 (PHYSICS.md section 4: a check, not an assumption).
+    # |R|^2 + |T|^2 = 1 (docs/conventions.md section 4: a check, not an assumption).
     result = transmission(schwarzschild, 1, np.array([0.05, 0.2, 0.35, 0.8]))
     assert result.ok, result.message()
     assert np.max(np.abs(result.flux_defect)) < 1e-10

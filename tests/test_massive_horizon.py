@@ -1,4 +1,4 @@
-"""Massive fields outside a horizon (PHYSICS.md sections 4, 6 and 7; issue 5: Coulomb-like tail, evanescent
+"""Massive fields outside a horizon (docs/conventions.md sections 4, 6 and 7; issue 5: Coulomb-like tail, evanescent
 below the mass)."""
 
 import json
@@ -143,7 +143,7 @@ def test_massive_modes_against_an_independent_mpmath_solution(heavy):
 
 
 def test_flux_and_the_mass_threshold(heavy):
-    # Below the mass nothing reaches infinity (|T|^2 = 0, |R|^2 = 1; PHYSICS.md section 6: evanescent); above it
+    # Below the mass nothing reaches infinity (|T|^2 = 0, |R|^2 = 1; docs/conventions.md section 6: evanescent); above it
     # |R|^2 + |T|^2 = 1 is a check, not imposed; and in modes exist only above the mass.
     problem, _ = heavy
     omegas = np.array([0.1, 0.39, 0.4001, 0.45, 0.8, 2.0])

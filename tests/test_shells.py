@@ -1,4 +1,4 @@
-"""Israel junction conditions against published thin-shell results (PHYSICS.md section 3, REFERENCES.md)."""
+"""Israel junction conditions against published thin-shell results (docs/conventions.md section 3, REFERENCES.md)."""
 
 import json
 
@@ -75,7 +75,7 @@ def test_de_sitter_bubble_inside_schwarzschild(write_spec):
 
 def test_ricci_delta_of_the_dust_shell(write_spec):
     # Source: REFERENCES.md (computed independently): for the flat/Schwarzschild shell at M = 1, R = 4 the
-    # integral of R across the shell is -2[K] = 0.116116523516816 (PHYSICS.md section 3).
+    # integral of R across the shell is -2[K] = 0.116116523516816 (docs/conventions.md section 3).
     st = derive.load(write_spec(two_region_spec("1", "1 - 2*M/r", DUST)))
     value = st.shells[0].ricci_delta.subs({st.symbol("M"): 1, st.symbol("R"): 4})
     assert float(value) == pytest.approx(0.116116523516816, rel=1e-13)

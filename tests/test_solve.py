@@ -1,4 +1,4 @@
-"""The radial mode solver at a regular centre (PHYSICS.md sections 4 and 7)."""
+"""The radial mode solver at a regular centre (docs/conventions.md sections 4 and 7)."""
 
 import os
 
@@ -39,7 +39,7 @@ def problem_of(path):
 
 
 def test_flat_space_density(write_spec):
-    # Source: PHYSICS.md section 7; Birrell & Davies, Quantum Fields in Curved Space (1982), ch. 3:
+    # Source: docs/conventions.md section 7; Birrell & Davies, Quantum Fields in Curved Space (1982), ch. 3:
     # flat 3+1, massless, at the centre the density per unit omega is omega/(4 pi^2).
     result = centre_density(problem_of(write_spec(FLAT)), OMEGAS)
     assert result.ok, result.message()
@@ -72,7 +72,7 @@ def test_error_estimates_bound_the_true_error():
 
 
 def test_high_frequencies_see_the_interior_clock_rate():
-    # PHYSICS.md section 7: in the detector's proper time the interior is flat; at frequencies far above the
+    # docs/conventions.md section 7: in the detector's proper time the interior is flat; at frequencies far above the
     # shell's scale the modes cross it unreflected, so the density per unit t tends to omega/(4 pi^2 alpha^2)
     # with alpha^2 = 1 - 2M/R (here 1/2): the ratio to Minkowski tends to 2, oscillating with decaying amplitude.
     problem = problem_of(os.path.join(ROOT, "worked", "dust_shell", "spec.toml"))
@@ -127,7 +127,7 @@ def test_unsupported_problems_say_what_is_missing():
 
 
 def test_off_centre_flat_density_is_the_centre_density(write_spec):
-    # Source: the addition theorem sum_l (2l+1) j_l(x)^2 = 1 (DLMF 10.60.12; PHYSICS.md section 7): off the
+    # Source: the addition theorem sum_l (2l+1) j_l(x)^2 = 1 (DLMF 10.60.12; docs/conventions.md section 7): off the
     # centre of flat space the l-sum must reproduce omega/(4 pi^2).
     from derive.solve.offcentre import density_off_centre
 
@@ -152,7 +152,7 @@ def test_off_centre_density_tends_to_the_centre():
 
 
 def test_flat_massive_density_at_and_off_the_centre(write_spec):
-    # PHYSICS.md section 7 (Birrell & Davies 1982, ch. 3): flat 3+1, mass mu: S = sqrt(omega^2 - mu^2)/(4 pi^2)
+    # docs/conventions.md section 7 (Birrell & Davies 1982, ch. 3): flat 3+1, mass mu: S = sqrt(omega^2 - mu^2)/(4 pi^2)
     # above the mass and no continuum below it; the l-sum off the centre gives the same (addition theorem).
     from derive.solve.offcentre import density_off_centre
 
@@ -166,7 +166,7 @@ def test_flat_massive_density_at_and_off_the_centre(write_spec):
 
 
 def test_flat_2plus1_density_at_the_centre(write_spec):
-    # PHYSICS.md section 7: flat 2+1, massless: S = 1/(4 pi) at every frequency (the m = 0 mode, u = r^(1/2) J0).
+    # docs/conventions.md section 7: flat 2+1, massless: S = 1/(4 pi) at every frequency (the m = 0 mode, u = r^(1/2) J0).
     text = FLAT.replace('names = ["t", "r", "theta", "phi"]', 'names = ["t", "r", "phi"]').replace(
         "r**2*(dtheta**2 + sin(theta)**2*dphi**2)", "r**2*dphi**2")
     assert 'names = ["t", "r", "phi"]' in text and "r**2*dphi**2" in text

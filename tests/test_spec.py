@@ -1,4 +1,4 @@
-"""Spec files: format 1 is read as DESIGN.md says, and every mistake is named by file and key."""
+"""Spec files: format 1 is read as README.md says, and every mistake is named by file and key."""
 
 import pytest
 import sympy as sp
@@ -36,7 +36,7 @@ def test_load_reads_parameters_coordinates_and_metric(write_spec):
 
 
 def test_cross_term_gives_half_the_coefficient(write_spec):
-    # DESIGN.md: a term c*dx*dy with x != y gives g_xy = c/2.
+    # README.md (spec format): a term c*dx*dy with x != y gives g_xy = c/2.
     text = BASE.replace('line_element = "-(1 - 2*M/r)*dt**2',
                         'line_element = "6*M*dt*dr - (1 - 2*M/r)*dt**2')
     g = derive.load(write_spec(text)).regions["outside"].metric

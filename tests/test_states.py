@@ -1,4 +1,4 @@
-"""Modes and states outside a horizon (PHYSICS.md sections 4 and 7; REFERENCES.md "Scattering")."""
+"""Modes and states outside a horizon (docs/conventions.md sections 4 and 7; REFERENCES.md "Scattering")."""
 
 import os
 
@@ -81,7 +81,7 @@ def test_in_and_up_modes_against_an_independent_mpmath_solution(schwarzschild):
 
 
 def test_thermal_states_obey_the_kms_condition(schwarzschild):
-    # PHYSICS.md section 7: a thermal mode contributes (1 + n) at +omega and n at -omega, n = 1/(e^{omega/T_H}-1)
+    # docs/conventions.md section 7: a thermal mode contributes (1 + n) at +omega and n at -omega, n = 1/(e^{omega/T_H}-1)
     # with T_H = 1/(8 pi M) (Hawking, Commun. Math. Phys. 43, 199 (1975)); so in Hartle-Hawking
     # S(-omega)/S(omega) = e^{-omega/T_H}, and in Unruh only the up modes are thermal.
     problem, _ = schwarzschild

@@ -82,7 +82,7 @@ def test_schwarzschild_example_temperature():
 
 
 def test_tangherlini_example():
-    # Source: Tangherlini (1963): Ricci flat; horizon surface gravity f'(r_h)/2 = 1 at m = 1 (PHYSICS.md sec. 6).
+    # Source: Tangherlini (1963): Ricci flat; horizon surface gravity f'(r_h)/2 = 1 at m = 1 (docs/conventions.md sec. 6).
     st = derive.load(spec("tangherlini_5d"))
     assert st.geometry["outside"].ricci == sp.zeros(5, 5)
     end = st.field_problem.regions["outside"].ends["lower"]
@@ -93,7 +93,7 @@ def test_tangherlini_example():
 def test_schwarzschild_example_response_in_three_states(capsys):
     # The README's key figures for worked/schwarzschild (derive's own results, stated there to 4 digits), and
     # the physics they must show: the Boulware value at zero gap is near the local vacuum 1/(4 pi) (equivalence
-    # principle, common practice), and Boulware < Unruh < Hartle-Hawking (thermal factors, PHYSICS.md sec. 7).
+    # principle, common practice), and Boulware < Unruh < Hartle-Hawking (thermal factors, docs/conventions.md sec. 7).
     assert main(["response", spec("schwarzschild"), "--json"]) == 0
     data = json.loads(capsys.readouterr().out)
     zero = data["gaps"].index(0.0)

@@ -1,4 +1,4 @@
-"""Response of a static Unruh-DeWitt detector (PHYSICS.md sections 7-9).  Numeric only: no sympy here.
+"""Response of a static Unruh-DeWitt detector (docs/conventions.md sections 7-9).  Numeric only: no sympy here.
 
 F(Omega) = int_0^inf dnu S(nu) |chi_hat(Omega + nu)|^2 in the vacuum (positive frequencies only), where
 S(nu) = sqrt(f(r0)) * density(omega = sqrt(f(r0)) nu) is the spectral density per unit proper frequency and
@@ -92,7 +92,7 @@ def response(gaps, switching: Switching, density_at, thermal: bool = False, thre
 
 def trials_to_distinguish(p_a, p_b, sigmas: float):
     """N = z^2 (sqrt(P_A(1-P_A)) + sqrt(P_B(1-P_B)))^2 / (P_A - P_B)^2 (normal approximation to the binomial;
-    common practice; PHYSICS.md section 9)."""
+    common practice; docs/conventions.md section 9)."""
     p_a, p_b = np.asarray(p_a, dtype=float), np.asarray(p_b, dtype=float)
     spread = np.sqrt(p_a * (1 - p_a)) + np.sqrt(p_b * (1 - p_b))
     with np.errstate(divide="ignore"):

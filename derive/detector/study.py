@@ -23,7 +23,7 @@ PERTURBATIVE_LIMIT = 0.1
 
 def minkowski_gaussian_response(gaps, sigma: float) -> np.ndarray:
     """Flat 3+1, massless, inertial, Gaussian switching: F = [e^{-s^2 W^2} - sqrt(pi) s W erfc(s W)]/(4 pi)
-    (PHYSICS.md section 8; from the Minkowski Wightman function, Birrell & Davies 1982, ch. 3), at 30 digits
+    (docs/conventions.md section 8; from the Minkowski Wightman function, Birrell & Davies 1982, ch. 3), at 30 digits
     (the two terms cancel for large s W)."""
     out = []
     with mpmath.workdps(30):
@@ -51,8 +51,8 @@ def _exterior(problem, omegas, r0, tolerance, progress):
 def flat_density(dimension: int, mu: float):
     """Minkowski's spectral density per unit proper frequency in D dimensions, from
     W = int d^(D-1)k/((2 pi)^(D-1) 2 omega_k) e^{-i omega_k t}: S = area(S^(D-2)) k^(D-3)/(2 (2 pi)^(D-1)) for
-    nu > mu, k = sqrt(nu^2 - mu^2); sqrt(nu^2 - mu^2)/(4 pi^2) in 3+1 and 1/(4 pi) in 2+1 (PHYSICS.md section 7;
-    Birrell & Davies 1982, ch. 3)."""
+    nu > mu, k = sqrt(nu^2 - mu^2); sqrt(nu^2 - mu^2)/(4 pi^2) in 3+1 and 1/(4 pi) in 2+1
+    (docs/conventions.md section 7; Birrell & Davies 1982, ch. 3)."""
     from derive.solve.centre import sphere_area
 
     factor = sphere_area(dimension - 2) / (2 * (2 * np.pi) ** (dimension - 1))
@@ -203,7 +203,7 @@ def study(problem, detector, reference_problem=None, tolerance: float = 1e-10, g
             if switching.shape == "gaussian" and mu == 0.0 and problem.dimension == 4:
                 ref = minkowski_gaussian_response(gaps, switching.width)
                 ref_err = 1e-15 * np.abs(ref)
-            else:   # the same quadrature with the exact flat density (PHYSICS.md section 7)
+            else:   # the same quadrature with the exact flat density (docs/conventions.md section 7)
                 flat = response(gaps, switching, flat_density(problem.dimension, mu), threshold=mu,
                                 dimension=problem.dimension)
                 ref, ref_err = flat.response, flat.error

@@ -1,4 +1,4 @@
-"""Switching functions chi(tau) in the detector's proper time, and |chi_hat(k)|^2 (PHYSICS.md section 8).
+"""Switching functions chi(tau) in the detector's proper time, and |chi_hat(k)|^2 (docs/conventions.md section 8).
 
 chi_hat(k) = int chi(tau) e^{-i k tau} dtau.  Every switching knows its support (None for the Gaussian), its
 effective duration (the shortest interval centred on the peak that holds all but ``tail`` of int chi^2), the

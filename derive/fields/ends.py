@@ -1,4 +1,4 @@
-"""The ends of a region's radial problem (PHYSICS.md section 6).
+"""The ends of a region's radial problem (docs/conventions.md section 6).
 
 Written as u'' + p u' + q u = 0 in r, with p = (F^2)'/(2 F^2) and q = (omega^2 - V)/F^2, each finite end r0
 is classified and, where it is a regular singular point, its Frobenius exponents (roots of

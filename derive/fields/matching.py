@@ -1,7 +1,7 @@
 """Modes across a thin shell, from the weak (distributional) form of the Klein-Gordon equation.
 
 Multiply (Box - mu^2 - xi R) phi = 0 by sqrt(-g) and integrate in r across the shell at r = R.  Only two terms
-survive as the interval shrinks (PHYSICS.md section 5):
+survive as the interval shrinks (docs/conventions.md section 5):
 
 * the radial flux term d_r(sqrt(-g) g^rr d_r psi) integrates to the jump of P psi_r, P = W h, W = sqrt(f/h) r^n;
 * the delta part of the Ricci scalar, R = -2 [K] delta(l), with delta(l) = sqrt(h) delta(r - R), gives
@@ -11,7 +11,7 @@ Integrating in the direction of increasing r, with s = +1 when the second region
 larger r: psi is continuous and (P psi_r)(second) = (P psi_r)(first) - 2 s xi [K] w psi.
 (Orientation: [K] is unchanged when the normal and the sides are both swapped, so -2[K]delta is too.)
 With psi = r^{-n/2} u and u_r = u'/F (u' = du/dr*), this is solved by sympy for u' on the second side, giving
-the transfer matrix on the column (u, du/dr*).  PHYSICS.md's [d psi/dl] = -2 xi [K] psi is the check.
+the transfer matrix on the column (u, du/dr*).  docs/conventions.md's [d psi/dl] = -2 xi [K] psi is the check.
 """
 
 from __future__ import annotations
@@ -87,6 +87,6 @@ class Matching:
 
     @cached_property
     def derivative_jump(self):
-        """[d psi/dl]/psi implied by the transfer matrix (PHYSICS.md section 5: -2 xi [K])."""
+        """[d psi/dl]/psi implied by the transfer matrix (docs/conventions.md section 5: -2 xi [K])."""
         xi = self.problem.spacetime.field.coupling
         return sp.simplify(-2 * xi * self.shell.extrinsic_curvature["trace_jump"])

@@ -1,6 +1,6 @@
 """The Klein-Gordon field on a static region, reduced to a radial Schrodinger problem.
 
-Field equation (PHYSICS.md section 4): (Box - mu^2 - xi R) phi = 0.  For ds^2 = -f dt^2 + dr^2/h + r^2 dSigma^2
+Field equation (docs/conventions.md section 4): (Box - mu^2 - xi R) phi = 0.  For ds^2 = -f dt^2 + dr^2/h + r^2 dSigma^2
 separate phi = e^{-i omega t} Y r^{-n/2} u(r), with Delta_Sigma Y = -lambda Y.  The code *derives* the
 Schrodinger form from the metric rather than copying a formula:
 
@@ -11,7 +11,7 @@ Schrodinger form from the metric rather than copying a formula:
 3. with d/dr* = F d/dr, F = sqrt(f h), the part F^2 u'' + F F' u' is exactly d^2u/dr*^2, and what is left must be
    (omega^2 - V) u with no derivative of u; the code checks this and reads off V.
 
-The result is checked in the tests against PHYSICS.md's V = f (lambda/r^2 + mu^2 + xi R) + (n/2) F F'/r
+The result is checked in the tests against docs/conventions.md's V = f (lambda/r^2 + mu^2 + xi R) + (n/2) F F'/r
 + (n/2)(n/2 - 1) F^2/r^2 and the published potentials (Regge & Wheeler 1957 for Schwarzschild).
 """
 
@@ -222,7 +222,7 @@ class RegionField:
         return classify_ends(self)
 
     def inner_product_weight(self):
-        """(phi_1, phi_2) = (omega_1 + omega_2) int u_1 u_2 dr*, dr* = dr/F (PHYSICS.md section 4)."""
+        """(phi_1, phi_2) = (omega_1 + omega_2) int u_1 u_2 dr*, dr* = dr/F (docs/conventions.md section 4)."""
         return self.dtortoise_dr
 
 

@@ -1,6 +1,6 @@
 """Curvature of one region: Christoffel symbols, Riemann, Ricci, Einstein, Weyl and the invariants.
 
-Conventions (PHYSICS.md section 1; Misner, Thorne & Wheeler 1973; Wald 1984):
+Conventions (docs/conventions.md section 1; Misner, Thorne & Wheeler 1973; Wald 1984):
 
 * Gamma^a_bc = 1/2 g^ad (d_b g_dc + d_c g_db - d_d g_bc)
 * R^a_bcd = d_c Gamma^a_db - d_d Gamma^a_cb + Gamma^a_ce Gamma^e_db - Gamma^a_de Gamma^e_cb

@@ -1,6 +1,6 @@
 """Stress-energy read off the Einstein tensor, and the classical energy conditions.
 
-T^a_b = G^a_b / (8 pi) (geometric units, PHYSICS.md section 2).  For a diagonal metric whose first coordinate
+T^a_b = G^a_b / (8 pi) (geometric units, docs/conventions.md section 2).  For a diagonal metric whose first coordinate
 is time, the static orthonormal frame gives the energy density rho = -T^t_t and the principal pressures
 p_i = T^i_i.  The conditions (Hawking & Ellis 1973, sec. 4.3; Visser 1995, ch. 12):
 

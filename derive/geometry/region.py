@@ -125,7 +125,7 @@ class RegionGeometry:
     @property
     def stress_energy(self) -> dict:
         """T^a_b = G^a_b/(8 pi); for a diagonal metric also rho = -T^t_t and p_i = T^i_i (first coordinate
-        is time, static orthonormal frame; PHYSICS.md section 2)."""
+        is time, static orthonormal frame; docs/conventions.md section 2)."""
         def compute():
             mixed = (self.einstein / (8 * sp.pi)).applyfunc(sp.factor)
             result = {"mixed": mixed, "frame": None, "energy_density": None, "pressures": None}

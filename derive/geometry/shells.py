@@ -1,6 +1,6 @@
 """Thin shells: the first and second (Israel) junction conditions at a static hypersurface x = X.
 
-Conventions (PHYSICS.md section 3; W. Israel, Nuovo Cimento B 44, 1 (1966); E. Poisson, A Relativist's
+Conventions (docs/conventions.md section 3; W. Israel, Nuovo Cimento B 44, 1 (1966); E. Poisson, A Relativist's
 Toolkit (2004), ch. 3):
 
 * The hypersurface Sigma is x = X for one coordinate x; its intrinsic coordinates are the others, with tangent

@@ -1,4 +1,4 @@
-"""Recognise the static form ds^2 = -f(r) dt^2 + dr^2/h(r) + r^2 dSigma^2_{k,n} (PHYSICS.md section 4).
+"""Recognise the static form ds^2 = -f(r) dt^2 + dr^2/h(r) + r^2 dSigma^2_{k,n} (docs/conventions.md section 4).
 
 The coordinates must be ordered (t, r, angles...).  dSigma^2_{k,n} is the unit n-sphere (k = 1), flat n-space
 (k = 0) or hyperbolic n-space (k = -1), told apart by its Ricci scalar n(n-1)k; for n = 1 (D = 3) it is the

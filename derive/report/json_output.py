@@ -1,4 +1,4 @@
-"""JSON of the symbolic stages: expressions as strings sympy reads back (DESIGN.md), numbers as floats."""
+"""JSON of the symbolic stages: expressions as strings sympy reads back (README.md), numbers as floats."""
 
 from __future__ import annotations
 

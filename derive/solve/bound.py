@@ -1,4 +1,4 @@
-"""Bound states of a massive field with a regular centre: the discrete spectrum below the mass (PHYSICS.md
+"""Bound states of a massive field with a regular centre: the discrete spectrum below the mass (docs/conventions.md
 sections 4 and 6).
 
 Where V dips below mu^2 (around any gravitating body: the tail V -> mu^2 - C/r is attractive) the field has
@@ -79,7 +79,7 @@ def ads_boundary(problem) -> tuple[float, float]:
     """(L, Delta) of an asymptotically AdS end: f -> r^2/L^2, and the normalisable falloff psi ~ r^-Delta with
     Delta = (D-1)/2 + sqrt((D-1)^2/4 + m^2 L^2) (Breitenlohner & Freedman, Ann. Phys. 144, 249 (1982); the
     reflecting, 'Dirichlet' choice), the effective mass from the potential itself: with n = D - 2 and F = f,
-    V/f -> m^2 + (n/2)(1 + n/2)/L^2 far out (PHYSICS.md section 4)."""
+    V/f -> m^2 + (n/2)(1 + n/2)/L^2 far out (docs/conventions.md section 4)."""
     last = problem.regions[-1]
     R = 1e6 * problem.length_scale
     f = float(np.asarray(last.metric_f(np.array([R]))).reshape(-1)[0])

@@ -1,4 +1,4 @@
-"""Spectral density of the field at a regular centre (PHYSICS.md sections 4 and 7).
+"""Spectral density of the field at a regular centre (docs/conventions.md sections 4 and 7).
 
 At r0 = 0 only l = 0 contributes.  The regular solution starts as u = 0, du/dr* = 1 at r = 0, is carried
 outward through every region (propagation.py) and every interface (the transfer matrices), and is normalised
@@ -263,7 +263,7 @@ def _amplitude2(region, state, omegas, radius):
 
 
 def minkowski_density(omegas) -> np.ndarray:
-    """Flat 3+1, massless: omega/(4 pi^2) (PHYSICS.md section 7; Birrell & Davies 1982, ch. 3)."""
+    """Flat 3+1, massless: omega/(4 pi^2) (docs/conventions.md section 7; Birrell & Davies 1982, ch. 3)."""
     return np.asarray(omegas, dtype=float) / (4 * np.pi ** 2)
 
 

@@ -1,5 +1,5 @@
 """Spectral densities at a static point outside a horizon: in and up modes, and the Boulware, Hartle-Hawking
-and Unruh states (PHYSICS.md sections 4 and 7).
+and Unruh states (docs/conventions.md sections 4 and 7).
 
 Modes (full line, delta-normalised, prefactor 1/sqrt(4 pi omega)):
   in:  u_in -> e^{-i omega r*} + R e^{+i omega r*} far away,  T e^{-i omega r*} at the horizon;

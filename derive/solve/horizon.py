@@ -1,4 +1,4 @@
-"""Scattering off a black hole: transmission (greybody factors) and reflection (PHYSICS.md sections 4 and 6).
+"""Scattering off a black hole: transmission (greybody factors) and reflection (docs/conventions.md sections 4 and 6).
 
 The solution that is purely ingoing at the horizon, u -> e^{-i omega r*} (unit amplitude), starts from the
 derived Frobenius series u = x^s (1 + a_1 x + a_2 x^2), x = r - r_h, s = -i omega/(2 kappa), at a small x_0;

@@ -1,4 +1,4 @@
-"""Spectral density at a static point off the centre: the l-sum (PHYSICS.md section 7).
+"""Spectral density at a static point off the centre: the l-sum (docs/conventions.md section 7).
 
     density(omega; r0) = sum_l (2l+1)/(4 pi) |U_l|^2,   U_l = u_l(r0)/(r0 A_l sqrt(pi k)),
     k = sqrt(omega^2 - mu^2) (omega when massless),

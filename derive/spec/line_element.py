@@ -2,7 +2,7 @@
 
 A line element is an expression quadratic in the differentials ``d<coordinate>``:
 ``-f*dt**2 + dr**2/f + r**2*(dtheta**2 + sin(theta)**2*dphi**2)``.  A term ``c*dx*dy`` with x != y
-gives g_xy = g_yx = c/2 (DESIGN.md).  A term that is not quadratic in the differentials is an error
+gives g_xy = g_yx = c/2 (README.md).  A term that is not quadratic in the differentials is an error
 naming the term.
 """
 

@@ -1,4 +1,4 @@
-"""Read and validate a spec file (format 1, DESIGN.md) into a :class:`~derive.spec.model.Spacetime`.
+"""Read and validate a spec file (format 1, README.md) into a :class:`~derive.spec.model.Spacetime`.
 
 Every problem is an :class:`~derive.errors.InputError` naming the file, the key and what was expected; an
 unknown key suggests the nearest valid one.  Expressions go through :class:`ExpressionParser` only.

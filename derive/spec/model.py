@@ -1,6 +1,6 @@
 """The Spacetime: what a spec file describes, as frozen records of sympy objects.
 
-These records are the first stage of the pipeline (DESIGN.md).  They hold no derived quantities; later
+These records are the first stage of the pipeline (DEVELOPERS.md).  They hold no derived quantities; later
 stages (geometry, shells, fields) are reached through :attr:`Spacetime.geometry` and the functions of
 :mod:`derive.api`, computed lazily and cached there.
 """
