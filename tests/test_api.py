@@ -43,6 +43,7 @@ def test_flat_limit_through_the_api():
     np.testing.assert_allclose(result.density, np.array([1.0, 3.0]) / (4 * np.pi ** 2), rtol=1e-8)
 
 
+@pytest.mark.slow
 def test_a_missed_tolerance_still_delivers_every_value(capsys):
     st = derive.load(SHELL)
     result = st.spectrum([0.7, 1.3], tolerance=1e-15)
@@ -57,6 +58,7 @@ def test_a_missed_tolerance_still_delivers_every_value(capsys):
     assert "accuracy not reached" in captured.err
 
 
+@pytest.mark.slow
 def test_run_writes_everything_reached_and_exits_1(tmp_path, monkeypatch, capsys):
     # The plumbing of a missed tolerance through `derive run`: the response study reports a shortfall (forced
     # here, so the test is fast); the run still writes every file and says what was missed.

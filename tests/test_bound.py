@@ -42,6 +42,7 @@ def binding(n, l):
     return ALPHA ** 2 / (2 * n * n) + a4 / (8 * n ** 4) - (2 * l - 3 * n + 1) * a4 / (n ** 4 * (l + 0.5))
 
 
+@pytest.mark.slow
 def test_p_levels_and_weights_of_a_gravitational_atom(tmp_path, capsys):
     # derive spectrum lists the bound states of the requested l with their weights at --at.  The levels carry
     # the alpha^4 fine structure: agreement to 1% of the alpha^4 part (higher orders are ~alpha^2 of it).

@@ -89,6 +89,7 @@ def test_mpmath_twin_is_exact_at_high_precision():
         assert abs(value - mpmath.mpf(str(exact))) < mpmath.mpf(10) ** -45
 
 
+@pytest.mark.slow
 def test_charged_shell_kernels_verify_to_1e_12():
     # Every kernel against its mpmath twin at 40 digits (itself checked against sympy evalf) at >= 200 points.
     st = derive.load(os.path.join(WORKED, "charged_shell", "spec.toml"))
@@ -117,6 +118,7 @@ def test_horizon_cancellation_is_found_and_rewritten():
     assert v.status == "verified" and v.max_relative_error < 1e-14 and v.form == "horizon roots factored out"
 
 
+@pytest.mark.slow
 def test_flagged_kernels_are_refused_by_the_solver_gate():
     st = derive.load(os.path.join(WORKED, "charged_shell", "spec.toml"))
     kernels = KernelSet(st)

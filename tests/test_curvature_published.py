@@ -97,6 +97,7 @@ line_element = "-(1 - 2*M*r/Sigma)*dt**2 - 4*M*a*r*sin(theta)**2/Sigma*dt*dphi +
 """
 
 
+@pytest.mark.slow
 def test_kerr_ricci_flat_and_kretschmann(write_spec):
     # Source: R. C. Henry, Astrophys. J. 535, 350 (2000):
     # K = 48 M^2 (r^6 - 15 a^2 r^4 c^2 + 15 a^4 r^2 c^4 - a^6 c^6)/Sigma^6, c = cos(theta);

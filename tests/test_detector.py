@@ -78,6 +78,7 @@ def test_gaussian_transform_against_direct_quadrature(k):
     assert 1 - inside / total == pytest.approx(switching.tail, rel=1e-3)
 
 
+@pytest.mark.slow
 def test_locality_of_a_centred_detector():
     # docs/conventions.md section 9: from the centre of a flat interior of radius R the light round trip is 2R in the
     # interior's proper units; the Gaussian's duration is 2 sigma erfcinv(1e-12).
@@ -94,6 +95,7 @@ def test_trials_formula():
     assert trials_to_distinguish(p_a, p_b, z) == pytest.approx(expected, rel=1e-15)
 
 
+@pytest.mark.slow
 def test_response_command_json_contract(tmp_path, capsys):
     # Issue 6 contract: {"gaps", "response", "error", "reference": {"with", "response", "error"},
     # "relative_difference", "locality": {"duration", "round_trip", "local"}, "trials_to_distinguish"}
@@ -179,6 +181,7 @@ def test_switching_shapes_know_their_decay_and_duration():
     assert 1 - inner / whole == pytest.approx(1e-6, rel=0.05)
 
 
+@pytest.mark.slow
 def test_compact_switching_flat_response_from_the_mode_sum(write_spec):
     # Flat space from the mode sum (centre density) against the same switching with the exact flat density
     # nu/(4 pi^2) (docs/conventions.md section 7): the solver's density enters, nothing else differs.
@@ -189,6 +192,7 @@ def test_compact_switching_flat_response_from_the_mode_sum(write_spec):
     assert np.all(result["error"] < 1e-8 * np.abs(result["response"]))
 
 
+@pytest.mark.slow
 def test_user_expression_switching_through_the_spec(write_spec):
     # A user chi(tau) from the spec is lowered to a kernel (checked against its mpmath twin) and gives the same
     # response as the built-in shape it equals: cos^2(pi tau/4) on |tau| < 2 is the cos2 switching with ramps 2.
@@ -204,6 +208,7 @@ def test_user_expression_switching_through_the_spec(write_spec):
     assert a["switching"].decay == 6 and np.all(np.abs(a["relative_difference"]) <= a["relative_difference_error"] + 1e-9)
 
 
+@pytest.mark.slow
 def test_off_centre_flat_detector_responds_like_a_centred_one(write_spec):
     # Issue 6 check: in flat space the l-summed density off the centre is the centre's (addition theorem,
     # sum_l (2l+1) j_l^2 = 1, DLMF 10.60.12), so a detector at r0 = 0.7 gives the closed-form Gaussian response
@@ -240,6 +245,7 @@ def test_massive_field_with_bound_states_is_refused(capsys, tmp_path):
     assert "bound states" in capsys.readouterr().err
 
 
+@pytest.mark.slow
 def test_flat_2plus1_gaussian_response(write_spec):
     # Flat 2+1, massless: S = 1/(4 pi) (docs/conventions.md section 7), so F = int_0^inf S 2 pi sigma^2 e^{-sigma^2 (W+nu)^2}
     # dnu = (sqrt(pi) sigma/4) erfc(sigma W) (integrated here; checked below by QUADPACK too).

@@ -223,6 +223,7 @@ def _ricci_scalar_static(f, h, r):
     return sp.simplify(sum(gi[i, i] * ricci[i, i] for i in range(n)))
 
 
+@pytest.mark.slow
 def test_curvature_coupled_matching_against_a_smoothed_shell(write_spec):
     # Independent check (issue 3; docs/conventions.md section 5): replace the thin shell by a thick one of width eps
     # (tanh profile in f and h), integrate the radial equation in flux form (P psi')' = W(-omega^2/f + lambda/r^2

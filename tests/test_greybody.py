@@ -59,6 +59,7 @@ def test_high_frequency_absorption_cross_section(schwarzschild):
     assert sigma == pytest.approx(expected, rel=2e-3)
 
 
+@pytest.mark.slow
 def test_hawking_emission_rate_of_a_massless_scalar(schwarzschild):
     # REFERENCES.md "Scattering and spectra": dE/dt = 7.44e-5/M^2 for a massless scalar (from memory there;
     # recomputed independently as 7.4387e-5), about 90% from l = 0 (Page, Phys. Rev. D 13, 198 (1976)):

@@ -12,6 +12,7 @@ from derive.cli import main
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 
 
+@pytest.mark.slow
 def test_run_writes_everything(tmp_path, capsys):
     out = tmp_path / "result"
     assert main(["run", os.path.join(ROOT, "worked", "charged_shell", "spec.toml"), "--out", str(out),
@@ -50,6 +51,7 @@ def test_a_failing_run_leaves_the_earlier_folder(tmp_path, monkeypatch):
     assert sorted(p.name for p in tmp_path.iterdir()) == ["result"]
 
 
+@pytest.mark.slow
 def test_run_on_a_black_hole_writes_greybody_factors_and_the_three_states(tmp_path, capsys):
     # The worked example with a longer switching and two gaps (fewer frequencies, fewer l): same code path.
     text = open(os.path.join(ROOT, "worked", "schwarzschild", "spec.toml")).read()

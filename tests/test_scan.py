@@ -27,6 +27,7 @@ def run(args, **kwargs):
                           cwd=ROOT, env={**os.environ, "PYTHONPATH": ROOT}, **kwargs)
 
 
+@pytest.mark.slow
 def test_scan_resumes_after_kill_9(tmp_path):
     spec = tmp_path / "spec.toml"
     spec.write_text(SPEC)
@@ -58,6 +59,7 @@ def test_scan_resumes_after_kill_9(tmp_path):
                                                          rel=1e-13)
 
 
+@pytest.mark.slow
 def test_a_different_scan_in_the_same_folder_is_refused(tmp_path):
     spec = tmp_path / "spec.toml"
     spec.write_text(SPEC)
@@ -67,6 +69,7 @@ def test_a_different_scan_in_the_same_folder_is_refused(tmp_path):
     assert refused.returncode == 2 and "different scan" in refused.stderr
 
 
+@pytest.mark.slow
 def test_scan_on_a_dask_local_cluster(tmp_path):
     distributed = pytest.importorskip("dask.distributed")
     from derive import load

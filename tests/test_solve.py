@@ -82,6 +82,7 @@ def test_high_frequencies_see_the_interior_clock_rate():
     assert np.all(np.abs(ratio - 2.0) < [2e-3, 6e-4, 2e-4])
 
 
+@pytest.mark.slow
 def test_independent_mpmath_solution():
     # Issue 5 check: an independent solution at 30 digits (mpmath's Taylor-series ODE solver on the mpmath twin
     # kernels, in r) agrees with the propagator to 1e-10 at a handful of frequencies.

@@ -67,6 +67,7 @@ def reference_modes(l, omega, r0, R=60.0, dps=20):
         return float(abs(u_h) ** 2 / abs(A) ** 2), float(abs(u_inf) ** 2 / abs(A) ** 2)
 
 
+@pytest.mark.slow
 def test_in_and_up_modes_against_an_independent_mpmath_solution(schwarzschild):
     # Issue 5 check: |u_in(r0)|^2 and |u_up(r0)|^2 from derive's propagator agree with an independent
     # 20-digit solution (reference_modes above) to 1e-10.

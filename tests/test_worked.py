@@ -29,7 +29,8 @@ def test_there_are_six_worked_examples():
         assert os.path.isfile(os.path.join(WORKED, name, "README.md"))
 
 
-@pytest.mark.parametrize("name", EXAMPLES)
+@pytest.mark.parametrize("name", [pytest.param(n, marks=pytest.mark.slow) if n == "constant_density_star" else n
+                                  for n in EXAMPLES])
 def test_every_example_checks_and_has_geometry(name, capsys):
     assert main(["check", spec(name)]) == 0
     assert "valid spec" in capsys.readouterr().out
