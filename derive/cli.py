@@ -264,6 +264,24 @@ def cmd_spectrum(args) -> int:
                     f"{'omega':>12} {'density':>22} {'error':>10} {'/ Minkowski':>14}", rows)
 
 
+def cmd_two_point(args) -> int:
+    from derive.report.tables import write_two_point_files
+
+    spacetime = _load(args)
+    omegas = _omega_grid(args.omega)
+    tolerance = _tolerance(args, spacetime)
+    result = spacetime.two_point(omegas, args.between, tolerance=tolerance, progress=_progress(args))
+    data = result.to_json()
+    points = " and ".join(p["text"] for p in data["between"])
+    rows = [f"{w:12.6g} {re:22.15e} {im:22.15e} {e:10.1e} {c:22.15e}" for w, re, im, e, c in
+            zip(data["omega"], data["wightman"]["re"], data["wightman"]["im"], data["error"]["wightman"],
+                data["scale"])]
+    title = (f"{spacetime.title}: spectral two-point function ({data['state']}) between {points} "
+             f"(cos angle {data['cos_angle']:.10g})\n"
+             f"{'omega':>12} {'Re':>22} {'Im':>22} {'error':>10} {'scale':>22}")
+    return _deliver(args, result, write_two_point_files, title, rows)
+
+
 def _scattering_rows(spacetime, data):
     n = len(data["omega"])
     density = data["density"] or [None] * n
@@ -384,6 +402,16 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--tolerance", type=float, help="relative tolerance (default: [numerics] or 1e-10)")
     p.add_argument("--json", action="store_true", help="print JSON")
     p.add_argument("--out", metavar="DIR", help="write spectrum.csv and spectrum.png here")
+    p.add_argument("--quiet", action="store_true", help="no progress report")
+
+    p = spec_command("two-point", "spectral two-point (Wightman) function between two static points, with errors",
+                     cmd_two_point)
+    p.add_argument("--omega", required=True, metavar="LIST|FROM:TO:COUNT", help="frequencies (spec time)")
+    p.add_argument("--between", required=True, nargs=2, metavar="POINT",
+                   help='the two points, e.g. "r = 1" "r = 2, theta = pi/3" (angles left out are zero)')
+    p.add_argument("--tolerance", type=float, help="tolerance relative to the scale (default: [numerics] or 1e-10)")
+    p.add_argument("--json", action="store_true", help="print JSON")
+    p.add_argument("--out", metavar="DIR", help="write two_point.csv and two_point.png here")
     p.add_argument("--quiet", action="store_true", help="no progress report")
 
     p = spec_command("response", "response of the static detector, comparison, locality and runs needed",

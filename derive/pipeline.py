@@ -164,6 +164,86 @@ def _scattering(spacetime, problem, omegas, at, l, tolerance, progress) -> Spect
     return Spectrum(data, spacetime, ok, message, tolerance)
 
 
+TWO_POINT_CONVENTION = (
+    "W(t - t'; x1, x2) = <phi(t, x1) phi(t', x2)> = integral over omega > 0 of "
+    "[S_+(omega) exp(-i omega (t - t')) + S_-(omega) exp(+i omega (t - t'))], t the spec's time coordinate; "
+    "S_+ = sum over modes of phi_omega(x1) conj(phi_omega(x2)) weighted by the state (1 + n in a thermal state), "
+    "S_- = n conj(S_mode); per unit omega; errors absolute; the tolerance is relative to 'scale', the sum of the "
+    "terms' sizes h_l (|U_l(x1)|^2 + |U_l(x2)|^2)/2, at most the mean of the two points' densities")
+
+
+def two_point(spacetime, omega, between, tolerance: float | None = None, progress=None):
+    """The field's spectral two-point (Wightman) function between two static points, per unit omega.
+
+    Parameters
+    ----------
+    spacetime : Spacetime
+        From :func:`derive.load`.
+    omega : array-like of float, or str "FROM:TO:COUNT" / "a,b,c"
+        Positive frequencies of the spec's time coordinate.
+    between : pair of positions
+        Each a radius, a text such as ``"r = 2, theta = pi/2, phi = 0"`` or a mapping {coordinate: value}
+        (angles left out are zero; see :mod:`derive.spec.positions`).  The same point twice gives the density.
+    tolerance : float, optional
+        Relative to the scale (the mean of the two points' densities, term by term), default as for spectra.
+
+    Returns a :class:`~derive.results.TwoPoint`: ``.omega``, ``.wightman`` ({"re", "im"}), ``.error``,
+    ``.scale``, ``.cos_angle``, ``.between``; around a horizon also ``.states`` (Boulware, Hartle-Hawking,
+    Unruh: positive and negative frequency parts).
+    """
+    from derive.results import TwoPoint
+    from derive.solve.api import METHOD
+    from derive.solve.bound import is_ads
+    from derive.solve.centre import Unsupported, bound_states_possible
+    from derive.spec.positions import cos_angle, parse_position
+
+    omegas = _frequencies(omega)
+    if isinstance(between, (str, bytes)) or not hasattr(between, "__len__") or len(between) != 2:
+        raise InputError("between: expected two positions, e.g. (\"r = 1\", \"r = 2, theta = pi/3\")",
+                         key="between")
+    first, second = (parse_position(spacetime, p, key=f"between[{i}]") for i, p in enumerate(between))
+    tolerance = tolerance_of(spacetime, tolerance)
+    problem = spacetime.numeric_problem
+    c = cos_angle(first, second)
+    data = {"between": [first.to_json(), second.to_json()], "cos_angle": c, "omega": _floats(omegas),
+            "tolerance": tolerance, "method": METHOD, "convention": TWO_POINT_CONVENTION,
+            "units": "per unit omega of the spec's time coordinate"}
+    try:
+        if is_ads(problem):
+            raise Unsupported("the two-point function with a reflecting AdS boundary (normal modes) is not built")
+        if problem.regions[0].lower_kind == "horizon":
+            from derive.solve.exterior import STATES, exterior_two_point
+
+            result = exterior_two_point(problem, omegas, first.radius, second.radius, c, tolerance,
+                                        progress=progress)
+            data["hawking_temperature"] = result.temperature
+            data["states"] = {}
+            for name in STATES:
+                plus, plus_error, minus, minus_error = result.state(name)
+                data["states"][name] = {"positive": _complex(plus), "negative": _complex(minus),
+                                        "error": {"positive": _floats(plus_error), "negative": _floats(minus_error)}}
+            data["state"] = "boulware"
+        else:
+            if problem.regions[0].lower_kind == "regular centre" and bound_states_possible(problem):
+                raise Unsupported("the bound states' part of the two-point function is not built (the spectral "
+                                  "density lists them: derive spectrum)")
+            from derive.solve.offcentre import two_point as regular_two_point
+
+            result = regular_two_point(problem, omegas, first.radius, second.radius, c, tolerance,
+                                       progress=progress)
+            data["state"] = "vacuum"
+    except Unsupported as exc:
+        raise _unsupported(spacetime, "compute this two-point function", exc, key="between") from None
+    data.update({"wightman": _complex(result.value), "error": {"wightman": _floats(result.error)},
+                 "scale": _floats(result.scale), "l_max": result.l_max})
+    return TwoPoint(data, spacetime, result.ok, result.message(), tolerance)
+
+
+def _complex(values) -> dict:
+    values = np.asarray(values)
+    return {"re": _floats(values.real), "im": _floats(np.imag(values))}
+
+
 def _reference(spacetime, detector, compare):
     """(the numeric detector with its comparison, the reference problem or None) for ``compare``: None (the
     spec's [compare]), "minkowski", a loaded spacetime or the path of a spec file."""

@@ -37,8 +37,17 @@ class Result:
     """The common part of every numeric result (see the module docstring)."""
 
     kind = "result"
-    _table = None       # a function data -> (header, columns)
-    _figure = None      # a function (data, title) -> Figure
+    _tables = ("", "")  # names in derive.report.tables: data -> (header, columns), and (data, title) -> Figure
+
+    def _table(self, data):
+        from derive.report import tables
+
+        return getattr(tables, self._tables[0])(data)
+
+    def _figure(self, data, title):
+        from derive.report import tables
+
+        return getattr(tables, self._tables[1])(data, title)
 
     def __init__(self, data: dict, spacetime, ok: bool = True, message: str = "", tolerance: float | None = None):
         self._data = data
@@ -97,12 +106,12 @@ class Result:
         """The table of the result (the CSV the command writes), as a pandas DataFrame."""
         import pandas as pd
 
-        header, columns = type(self)._table(self._data)
+        header, columns = self._table(self._data)
         return pd.DataFrame({h: [np.nan if x is None or x == "" else x for x in c] for h, c in zip(header, columns)})
 
     def plot(self):
         """The figure the command writes, as a matplotlib Figure."""
-        return type(self)._figure(self._data, self.title)
+        return self._figure(self._data, self.title)
 
     def _summary(self) -> str:
         return ""
@@ -131,17 +140,11 @@ class Spectrum(Result):
 
     kind = "spectrum"
 
-    @staticmethod
-    def _table(data):
-        from derive.report.tables import scattering_table, spectrum_table
-
-        return scattering_table(data) if "transmission" in data else spectrum_table(data)
-
-    @staticmethod
-    def _figure(data, title):
-        from derive.report.tables import scattering_figure, spectrum_figure
-
-        return scattering_figure(data, title) if "transmission" in data else spectrum_figure(data, title)
+    @property
+    def _tables(self):
+        if "transmission" in self._data:
+            return ("scattering_table", "scattering_figure")
+        return ("spectrum_table", "spectrum_figure")
 
     def _summary(self) -> str:
         data = self._data
@@ -157,18 +160,7 @@ class Response(Result):
     """The static detector's response F(Omega), the comparison, locality and the runs to tell apart."""
 
     kind = "response"
-
-    @staticmethod
-    def _table(data):
-        from derive.report.tables import response_table
-
-        return response_table(data)
-
-    @staticmethod
-    def _figure(data, title):
-        from derive.report.tables import response_figure
-
-        return response_figure(data, title)
+    _tables = ("response_table", "response_figure")
 
     def _summary(self) -> str:
         data = self._data
@@ -176,3 +168,19 @@ class Response(Result):
         return (f"{len(data['gaps'])} gaps at r = {data['at']:g}, {data['switching']['shape']} switching, "
                 f"{data['state']} state, {verdict}, largest relative error "
                 f"{_worst_relative(data['response'], data['error']):.1e}")
+
+
+class TwoPoint(Result):
+    """The field's spectral two-point function between two static points (per unit omega), with errors."""
+
+    kind = "two-point"
+    _tables = ("two_point_table", "two_point_figure")
+
+    def _summary(self) -> str:
+        data = self._data
+        points = " and ".join(p["text"] for p in data["between"])
+        scale = np.asarray(data["scale"], dtype=float)
+        error = np.asarray(data["error"]["wightman"], dtype=float)
+        worst = float(np.nanmax(error / np.where(scale > 0, scale, np.inf))) if len(scale) else 0.0
+        return (f"{len(data['omega'])} frequencies between {points} (cos angle {data['cos_angle']:.6g}), "
+                f"{data['state']} state, largest error / scale {worst:.1e}")

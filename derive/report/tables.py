@@ -93,6 +93,18 @@ def scattering_table(data: dict) -> tuple[list[str], list[list]]:
     return header, columns
 
 
+def two_point_table(data: dict) -> tuple[list[str], list[list]]:
+    header = ["omega", "wightman_re", "wightman_im", "error", "scale"]
+    columns = [data["omega"], data["wightman"]["re"], data["wightman"]["im"], data["error"]["wightman"],
+               data["scale"]]
+    for name, value in (data.get("states") or {}).items():
+        name = name.replace("-", "_")
+        header += [f"{name}_positive_re", f"{name}_positive_im", f"{name}_negative_re", f"{name}_negative_im"]
+        columns += [value["positive"]["re"], value["positive"]["im"], value["negative"]["re"],
+                    value["negative"]["im"]]
+    return header, columns
+
+
 # -- figures -------------------------------------------------------------------------------------------------
 def spectrum_figure(data: dict, title: str):
     plt = _pyplot()
@@ -148,6 +160,30 @@ def scattering_figure(data: dict, title: str):
     return figure
 
 
+def two_point_figure(data: dict, title: str):
+    """The real part of the two-point function with its error band, against the scale that bounds it."""
+    import numpy as np
+
+    plt = _pyplot()
+    figure, axis = plt.subplots(figsize=(6.4, 4.2))
+    omega = np.asarray(data["omega"], dtype=float)
+    value = np.asarray(data["wightman"]["re"], dtype=float)
+    error = np.asarray(data["error"]["wightman"], dtype=float)
+    scale = np.asarray(data["scale"], dtype=float)
+    axis.plot(omega, value, label=r"Re $S_+(\omega; x_1, x_2)$")
+    axis.fill_between(omega, value - error, value + error, alpha=0.3, label="error")
+    if np.any(np.asarray(data["wightman"]["im"], dtype=float) != 0):
+        axis.plot(omega, data["wightman"]["im"], label=r"Im $S_+$")
+    axis.plot(omega, scale, ":", color="grey", label="scale (bound on |S|)")
+    axis.plot(omega, -scale, ":", color="grey")
+    axis.set_xlabel(r"$\omega$ (spec's time coordinate; $G=c=\hbar=1$)")
+    axis.set_ylabel(r"two-point function per unit $\omega$")
+    points = " and ".join(p["text"] for p in data["between"])
+    axis.set_title(f"{title}: {data['state']} state, between {points}", fontsize=10)
+    axis.legend(fontsize=8)
+    return figure
+
+
 # -- files ---------------------------------------------------------------------------------------------------
 def _write_table_and_figure(out, stem, table, figure, pdf) -> list[str]:
     header, columns = table
@@ -170,6 +206,10 @@ def write_spectrum_files(out: str, data: dict, title: str, pdf: bool = False) ->
 
 def write_response_files(out: str, data: dict, title: str, pdf: bool = False) -> list[str]:
     return _write_table_and_figure(out, "response", response_table(data), response_figure(data, title), pdf)
+
+
+def write_two_point_files(out: str, data: dict, title: str, pdf: bool = False) -> list[str]:
+    return _write_table_and_figure(out, "two_point", two_point_table(data), two_point_figure(data, title), pdf)
 
 
 def write_scattering_files(out: str, data: dict, title: str, pdf: bool = False) -> list[str]:

@@ -45,59 +45,32 @@ MAX_L = 400
 STATES = ("boulware", "hartle-hawking", "unruh")
 
 
-@dataclass
-class ExteriorDensity:
-    """The in and up parts of the spectral density per unit omega (of t) at radius r0, with errors."""
+def _values(problem, march, l, omegas, pair, cos_gamma):
+    """The l-terms of the in and up parts between the radii ``pair`` (r1 <= r2; the probes of ``march`` are the
+    distinct ones, increasing), and their sizes: (in, up, size_in, size_up), complex values and real sizes, each
+    (n,).  With the harmonics' weight h_l and G_l(cos gamma) (derive.solve.offcentre.angular_factor):
 
-    omega: np.ndarray
-    radius: float
-    inward: np.ndarray
-    inward_error: np.ndarray
-    outward: np.ndarray
-    outward_error: np.ndarray
-    temperature: float          # Hawking temperature kappa/(2 pi), in units of t
-    tolerance: float
-    l_max: int
+        in = h_l G_l u_in(r1) conj(u_in(r2)) / (4 pi omega (r1 r2)^(n/2)),
+        size_in = h_l (|u_in(r1)|^2/r1^n + |u_in(r2)|^2/r2^n) / (8 pi omega),
 
-    def thermal_factor(self) -> np.ndarray:
-        """n(omega) = 1/(e^{omega/T_H} - 1)."""
-        return 1.0 / np.expm1(self.omega / self.temperature)
+    and the same for up.  On the diagonal (r1 = r2, gamma = 0) the values are real and equal their sizes."""
+    from derive.solve.offcentre import angular_factor
 
-    def state(self, name: str):
-        """(density at +omega, its error, density at -omega, its error) for the named state."""
-        if name not in STATES:
-            raise Unsupported(f"state {name!r} outside a horizon: one of {', '.join(STATES)}")
-        n = self.thermal_factor()
-        zero = np.zeros_like(self.omega)
-        if name == "boulware":
-            return (self.inward + self.outward, self.inward_error + self.outward_error, zero, zero)
-        if name == "hartle-hawking":
-            both, both_error = self.inward + self.outward, self.inward_error + self.outward_error
-            return ((1 + n) * both, (1 + n) * both_error, n * both, n * both_error)
-        return (self.inward + (1 + n) * self.outward, self.inward_error + (1 + n) * self.outward_error,
-                n * self.outward, n * self.outward_error)
-
-    @property
-    def density(self) -> np.ndarray:
-        """The Boulware (vacuum) density in + up at omega > 0."""
-        return self.inward + self.outward
-
-    @property
-    def error(self) -> np.ndarray:
-        return self.inward_error + self.outward_error
-
-    @property
-    def ok(self) -> bool:
-        return bool(np.all(self.error <= self.tolerance * self.density))
-
-    def message(self) -> str:
-        return shortfall(self.omega, self.density, self.error, self.tolerance)
-
-
-def _values(problem, march, l, omegas, r0):
     n = problem.dimension - 2
-    weight = harmonic_weight(l, n) / (4 * np.pi * omegas * r0 ** n)
-    return weight * np.exp(march.log_horizon2), weight * np.exp(march.log_infinity2)
+    radii = sorted(set(pair))
+    k1, k2 = radii.index(pair[0]), radii.index(pair[1])
+    weight = harmonic_weight(l, n) / (4 * np.pi * omegas)
+    angular = angular_factor(l, n, cos_gamma)
+    out = []
+    for logs, phases in ((march.log_in, march.phase_in), (march.log_up, march.phase_up)):
+        first = logs[k1] - 0.5 * n * np.log(pair[0])
+        second = logs[k2] - 0.5 * n * np.log(pair[1])
+        if k1 == k2:
+            value = weight * angular * np.exp(first + second) + 0j
+        else:
+            value = weight * angular * np.exp(first + second + 1j * (phases[k1] - phases[k2]))
+        out.append((value, weight * (np.exp(2 * first) + np.exp(2 * second)) / 2))
+    return out[0][0], out[1][0], out[0][1], out[1][1]
 
 
 def _batches(problem, omegas) -> np.ndarray:
@@ -112,9 +85,10 @@ def _batches(problem, omegas) -> np.ndarray:
     return labels
 
 
-def mode_term(problem, l, omegas, r0, tolerance, floor=None, steps=64, max_steps=16384):
-    """(2l+1)/(4 pi) |u_in(r0)|^2/(4 pi omega r0^2) and the same for up, with errors, refined by grid doubling
-    until each is within the tolerance of itself or of ``floor`` (the sum so far), whichever is larger.
+def mode_term(problem, l, omegas, pair, cos_gamma, tolerance, floor=None, steps=64, max_steps=16384):
+    """The l-terms of the in and up parts between the radii ``pair`` (see :func:`_values`), their sizes and
+    errors, refined by grid doubling until each is within the tolerance of its size or of ``floor`` (the size of
+    the sum so far), whichever is larger: (in, up, size_in, size_up, error_in, error_up).
 
     The grids of N, 2N and 4N steps are nested (derive.solve.horizon), so the fourth-order error falls cleanly
     as N^-4 and each pair extrapolates (Richardson): e(2N) = v(2N) + (v(2N) - v(N))/15.  The value is e(4N);
@@ -128,27 +102,36 @@ def mode_term(problem, l, omegas, r0, tolerance, floor=None, steps=64, max_steps
     if len(np.unique(groups)) > 1:
         # frequencies above the mass and below it (up modes only, evanescent far away) are marched separately,
         # those below in half-decades of their decay rate, so that each batch's far radius suits all of it
-        merged = tuple(np.zeros(n) for _ in range(4))
+        merged = (np.zeros(n, complex), np.zeros(n, complex)) + tuple(np.zeros(n) for _ in range(4))
         for group in np.unique(groups):
             index = groups == group
-            part = mode_term(problem, l, omegas[index], r0, tolerance[index], floor[index], steps, max_steps)
+            part = mode_term(problem, l, omegas[index], pair, cos_gamma, tolerance[index], floor[index], steps,
+                             max_steps)
             for whole, piece in zip(merged, part):
                 whole[index] = piece
         return merged
-    inward, outward, e_in, e_out = (np.zeros(n) for _ in range(4))
+    inward, outward = np.zeros(n, complex), np.zeros(n, complex)
+    size_in, size_out, e_in, e_out = (np.zeros(n) for _ in range(4))
+    probes = tuple(sorted(set(pair)))
     active = np.arange(n)
     count = steps
-    fixed = layout(problem, l, omegas, probe=r0)
-    coarse = _values(problem, _run(problem, l, omegas, count, START, probe=r0, fixed=fixed), l, omegas, r0)
-    fine = _values(problem, _run(problem, l, omegas, 2 * count, START, probe=r0, fixed=fixed), l, omegas, r0)
+    fixed = layout(problem, l, omegas, probe=probes[-1])
+
+    def values(w, count, start=START, far_factor=1.0):
+        march = _run(problem, l, w, count, start, far_factor=far_factor, probe=probes, fixed=fixed)
+        return _values(problem, march, l, w, pair, cos_gamma)
+
+    coarse = values(omegas, count)
+    fine = values(omegas, 2 * count)
     while len(active):
         w = omegas[active]
-        finest = _values(problem, _run(problem, l, w, 4 * count, START, probe=r0, fixed=fixed), l, w, r0)
+        finest = values(w, 4 * count)
         with np.errstate(invalid="ignore", over="ignore"):
             before = [fine[p] + (fine[p] - coarse[p]) / 15 for p in (0, 1)]
             after = [finest[p] + (finest[p] - fine[p]) / 15 for p in (0, 1)]
             change = [np.abs(after[p] - before[p]) for p in (0, 1)]
-        scale = np.maximum(np.abs(after[0]) + np.abs(after[1]), floor[active])
+        sizes = [np.maximum(finest[2 + p], np.abs(after[p])) for p in (0, 1)]
+        scale = np.maximum(sizes[0] + sizes[1], floor[active])
         done = change[0] + change[1] <= tolerance[active] * scale
         last = 4 * count >= max_steps
         if last:
@@ -158,84 +141,167 @@ def mode_term(problem, l, omegas, r0, tolerance, floor=None, steps=64, max_steps
             wd = omegas[index]
             # series truncation and tail: measured on the coarsest of the three grids (they do not depend on the
             # resolution, and only the moved piece's grid differs between the two runs)
-            moved = _values(problem, _run(problem, l, wd, count, START / 2, probe=r0, fixed=fixed),
-                            l, wd, r0)
-            farther = _values(problem, _run(problem, l, wd, count, START, far_factor=4.0, probe=r0, fixed=fixed),
-                              l, wd, r0)
-            for part, (value, error) in enumerate(((inward, e_in), (outward, e_out))):
+            moved = values(wd, count, start=START / 2)
+            farther = values(wd, count, far_factor=4.0)
+            for part, (value, size, error) in enumerate(((inward, size_in, e_in), (outward, size_out, e_out))):
                 raw = coarse[part][done]
                 value[index] = after[part][done]
+                size[index] = sizes[part][done]
                 error[index] = (change[part][done] + np.abs(raw - moved[part]) + np.abs(raw - farther[part])
-                                + (rounding_floor(4 * count) + threshold_rounding(problem, wd))
-                                * np.abs(after[part][done]))
+                                + (rounding_floor(4 * count) + threshold_rounding(problem, wd)) * size[index])
             if not last:   # not there yet with every source of error counted: refine further
                 short = e_in[index] + e_out[index] > tolerance[index] * scale[done]
                 done[np.nonzero(done)[0][short]] = False
         finished = active[done]
-        bad = ~np.isfinite(e_in[finished] + e_out[finished] + inward[finished] + outward[finished])
+        bad = ~np.isfinite(e_in[finished] + e_out[finished] + np.abs(inward[finished]) + np.abs(outward[finished]))
         if np.any(bad):   # a grid too coarse for an evanescent stretch: say so rather than return a number
             e_in[finished[bad]] = np.inf
         active = active[~done]
-        coarse = (fine[0][~done], fine[1][~done])
-        fine = (finest[0][~done], finest[1][~done])
+        coarse = tuple(part[~done] for part in fine)
+        fine = tuple(part[~done] for part in finest)
         count *= 2
-    return inward, outward, e_in, e_out
+    return inward, outward, size_in, size_out, e_in, e_out
 
 
-def _l_sum(problem, omegas, r0, tolerance, f0, progress):
-    """The sum over l for each frequency: (in, up, their errors, the largest l reached).  Each frequency sums
-    its own l: its reach omega r0/sqrt(f(r0)) sets its share of the tolerance, and it stops after three quiet
-    terms beyond its reach while the others go on."""
+def _l_sum(problem, omegas, pair, cos_gamma, tolerance, reach, progress):
+    """The sum over l for each frequency: (in, up, size_in, size_up, error_in, error_up, the largest l
+    reached).  Each frequency sums its own l: its reach omega r/sqrt(f(r)) (at the farther point) sets its share
+    of the tolerance, and it stops after three quiet terms beyond its reach while the others go on."""
     n = len(omegas)
-    reach = omegas * r0 / np.sqrt(f0)
-    inward, outward, e_in, e_out = (np.zeros(n) for _ in range(4))
+    inward, outward = np.zeros(n, complex), np.zeros(n, complex)
+    size_in, size_out, e_in, e_out = (np.zeros(n) for _ in range(4))
     quiet = np.zeros(n, dtype=int)
     summing = np.arange(n)
     for l in range(MAX_L + 1):
         # each term to a share of the tolerance (of itself, or of the sum so far): about reach + 1 terms count
         w = omegas[summing]
-        t_in, t_out, te_in, te_out = mode_term(problem, l, w, r0, tolerance / (4 + reach[summing]),
-                                               floor=inward[summing] + outward[summing])
-        inward[summing] += t_in
-        outward[summing] += t_out
-        e_in[summing] += te_in
-        e_out[summing] += te_out
-        total = inward[summing] + outward[summing]
-        small = t_in + t_out <= 0.01 * tolerance * total
+        t_in, t_out, ts_in, ts_out, te_in, te_out = mode_term(problem, l, w, pair, cos_gamma,
+                                                              tolerance / (4 + reach[summing]),
+                                                              floor=size_in[summing] + size_out[summing])
+        for whole, term in ((inward, t_in), (outward, t_out), (size_in, ts_in), (size_out, ts_out),
+                            (e_in, te_in), (e_out, te_out)):
+            whole[summing] += term
+        small = ts_in + ts_out <= 0.01 * tolerance * (size_in[summing] + size_out[summing])
         quiet[summing] = np.where(small & (l > reach[summing]), quiet[summing] + 1, 0)
         finished = quiet[summing] >= 3
-        e_in[summing[finished]] += t_in[finished]     # the first neglected terms are smaller than the last kept
-        e_out[summing[finished]] += t_out[finished]
+        e_in[summing[finished]] += ts_in[finished]     # the first neglected terms are smaller than the last kept
+        e_out[summing[finished]] += ts_out[finished]
         summing = summing[~finished]
         if progress is not None:
             progress(l, 1.0 - len(summing) / n)
         if not len(summing):
-            return inward, outward, e_in, e_out, l
+            return inward, outward, size_in, size_out, e_in, e_out, l
     raise Unsupported(f"the l-sum did not converge by l = {MAX_L}")
 
 
-def exterior_density(problem, omegas, r0: float, tolerance: float = 1e-10, progress=None) -> ExteriorDensity:
-    """The in and up spectral densities at radius r0 outside the horizon, summed over l to the tolerance
-    (each frequency to its own l; see :func:`_l_sum`)."""
+@dataclass
+class ExteriorTwoPoint:
+    """The in and up parts of the spectral two-point function per unit omega (of t) between two static points
+    outside a horizon (complex; real on the diagonal, the densities), their errors (absolute) and sizes (the
+    scale the tolerance refers to), and the states built from them.
+
+    States (a thermal mode contributes (1 + n) at +omega and n conj(...) at -omega, n = 1/(e^{omega/T_H} - 1)):
+    Boulware: in + up at omega > 0;  Hartle-Hawking: in and up thermal;  Unruh: only up thermal."""
+
+    omega: np.ndarray
+    radii: tuple
+    cos_gamma: float
+    inward: np.ndarray
+    outward: np.ndarray
+    size_in: np.ndarray
+    size_up: np.ndarray
+    inward_error: np.ndarray
+    outward_error: np.ndarray
+    temperature: float          # Hawking temperature kappa/(2 pi), in units of t
+    tolerance: float
+    l_max: int
+
+    @property
+    def value(self) -> np.ndarray:
+        """The Boulware (vacuum) part at +omega: in + up."""
+        return self.inward + self.outward
+
+    density = value
+
+    @property
+    def error(self) -> np.ndarray:
+        return self.inward_error + self.outward_error
+
+    @property
+    def scale(self) -> np.ndarray:
+        return self.size_in + self.size_up
+
+    @property
+    def ok(self) -> bool:
+        return bool(np.all(self.error <= self.tolerance * self.scale))
+
+    def message(self) -> str:
+        return shortfall(self.omega, self.scale, self.error, self.tolerance)
+
+    def thermal_factor(self) -> np.ndarray:
+        """n(omega) = 1/(e^{omega/T_H} - 1)."""
+        return 1.0 / np.expm1(self.omega / self.temperature)
+
+    def state(self, name: str):
+        """(S_+ at +omega, its error, S_- at -omega, its error) for the named state; S_- = n conj(mode sum)."""
+        if name not in STATES:
+            raise Unsupported(f"state {name!r} outside a horizon: one of {', '.join(STATES)}")
+        n = self.thermal_factor()
+        if name == "boulware":
+            return self.value, self.error, np.zeros_like(self.value), np.zeros_like(self.error)
+        if name == "hartle-hawking":
+            return (1 + n) * self.value, (1 + n) * self.error, n * np.conj(self.value), n * self.error
+        return (self.inward + (1 + n) * self.outward, self.inward_error + (1 + n) * self.outward_error,
+                n * np.conj(self.outward), n * self.outward_error)
+
+
+def _summed(problem, omegas, pair, cos_gamma, tolerance, progress):
+    """The l-sums of the in and up parts between the radii ``pair`` outside the horizon, on both cores."""
     check_supported(problem)
     first = problem.regions[0]
-    if not r0 > first.lower:
-        raise Unsupported(f"the point r = {r0:g} must lie outside the horizon r = {first.lower:g}")
+    for r in pair:
+        if not r > first.lower:
+            raise Unsupported(f"the point r = {r:g} must lie outside the horizon r = {first.lower:g}")
     omegas = np.asarray(omegas, dtype=float)
     if omegas.ndim != 1 or np.any(~np.isfinite(omegas)) or np.any(omegas <= 0):
         raise ValueError("frequencies must be positive and finite")
-    region = region_at(problem, r0)
-    f0 = float(np.asarray(region.metric_f(np.array([r0]))).reshape(-1)[0])
+    far = max(pair)
+    f0 = float(np.asarray(region_at(problem, far).metric_f(np.array([far]))).reshape(-1)[0])
+    reach = omegas * far / np.sqrt(f0)
     # two fixed halves (every other frequency), on both cores where there are two: the same result either way
     halves = [np.arange(len(omegas))] if len(omegas) < SPLIT_FROM else [np.arange(0, len(omegas), 2),
                                                                            np.arange(1, len(omegas), 2)]
-    parts = split_map(_l_sum, [(problem, omegas[index], r0, tolerance, f0, progress if i == 0 else None)
-                               for i, index in enumerate(halves)])
+    parts = split_map(_l_sum, [(problem, omegas[index], pair, cos_gamma, tolerance, reach[index],
+                                progress if i == 0 else None) for i, index in enumerate(halves)])
     n = len(omegas)
-    inward, outward, e_in, e_out = (np.zeros(n) for _ in range(4))
+    merged = (np.zeros(n, complex), np.zeros(n, complex)) + tuple(np.zeros(n) for _ in range(4))
     for index, part in zip(halves, parts):
-        for whole, piece in zip((inward, outward, e_in, e_out), part[:4]):
+        for whole, piece in zip(merged, part[:6]):
             whole[index] = piece
-    l = max(part[4] for part in parts)
     kappa = problem.regions[0].surface_gravity
-    return ExteriorDensity(omegas, r0, inward, e_in, outward, e_out, float(kappa) / (2 * np.pi), tolerance, l)
+    return merged, max(part[6] for part in parts), float(kappa) / (2 * np.pi)
+
+
+def exterior_density(problem, omegas, r0: float, tolerance: float = 1e-10, progress=None) -> ExteriorTwoPoint:
+    """The in and up spectral densities at radius r0 outside the horizon, summed over l to the tolerance
+    (each frequency to its own l; see :func:`_l_sum`): the diagonal of :func:`exterior_two_point` (real, with
+    ``.density`` the Boulware density in + up)."""
+    (inward, outward, size_in, size_up, e_in, e_out), l, temperature = _summed(problem, omegas, (r0, r0), 1.0,
+                                                                                tolerance, progress)
+    return ExteriorTwoPoint(np.asarray(omegas, dtype=float), (r0, r0), 1.0, inward.real, outward.real, size_in,
+                            size_up, e_in, e_out, temperature, tolerance, l)
+
+
+def exterior_two_point(problem, omegas, r1: float, r2: float, cos_gamma: float, tolerance: float = 1e-10,
+                       progress=None) -> ExteriorTwoPoint:
+    """The in and up parts of the spectral two-point function between static points at radii r1, r2 outside
+    the horizon, an angle gamma apart (``cos_gamma``), summed over l; errors absolute, the tolerance relative to
+    the scale (the sum of the terms' sizes, at most the mean of the two points' densities)."""
+    pair = (min(r1, r2), max(r1, r2))
+    (inward, outward, size_in, size_up, e_in, e_out), l, temperature = _summed(problem, omegas, pair,
+                                                                                float(cos_gamma), tolerance,
+                                                                                progress)
+    if r1 > r2:      # the sum was taken with the points in increasing order: S(x2, x1) = conj(S(x1, x2))
+        inward, outward = np.conj(inward), np.conj(outward)
+    return ExteriorTwoPoint(np.asarray(omegas, dtype=float), (r1, r2), float(cos_gamma), inward, outward, size_in,
+                            size_up, e_in, e_out, temperature, tolerance, l)

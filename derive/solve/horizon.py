@@ -203,37 +203,44 @@ def _pieces(problem, l, omegas, steps, start, far_factor, fixed=None):
     return pieces, x_start, fixed.farther if far_factor > 1 else far
 
 
-def _split(pieces, probe):
-    """Cut the piece holding r = probe in two (steps shared in proportion to the grid parameter), so that the
-    march passes through the probe exactly; returns the pieces and the index of the first piece after it."""
-    out = []
-    after = None
-    for index, shift, a, b, kind, count in pieces:
-        p = probe - shift
-        if after is None and a < p <= b:
-            fraction = np.log(p / a) / np.log(b / a) if kind != "uniform" else (p - a) / (b - a)
-            first = max(2, int(round(count * fraction)))
-            out.append((index, shift, a, p, kind, first))
-            after = len(out)
-            if p < b:
-                out.append((index, shift, p, b, kind, max(2, count - first)))
-        else:
-            out.append((index, shift, a, b, kind, count))
-    if after is None:
-        raise Unsupported(f"the point r = {probe:g} is not outside the horizon")
-    return out, after
+def _split(pieces, probes):
+    """Cut the pieces holding the radii ``probes`` (increasing; steps shared in proportion to the grid
+    parameter), so that the march passes through each exactly; returns the pieces and, per probe, the index of
+    the first piece after it."""
+    out, afters = list(pieces), []
+    for probe in probes:      # a later (larger) probe is cut at or after every earlier one: their indices hold
+        cut, after = [], None
+        for index, shift, a, b, kind, count in out:
+            p = probe - shift
+            if after is None and a < p <= b:
+                fraction = np.log(p / a) / np.log(b / a) if kind != "uniform" else (p - a) / (b - a)
+                first = max(2, int(round(count * fraction)))
+                cut.append((index, shift, a, p, kind, first))
+                after = len(cut)
+                if p < b:
+                    cut.append((index, shift, p, b, kind, max(2, count - first)))
+            else:
+                cut.append((index, shift, a, b, kind, count))
+        if after is None:
+            raise Unsupported(f"the point r = {probe:g} is not outside the horizon")
+        out = cut
+        afters.append(after)
+    return out, afters
 
 
 @dataclass
 class March:
-    """One march from the horizon outward: |T|^2, |R|^2 and, with a probe radius r0, the logarithms of
-    |u_H(r0)|^2 (u_H -> e^{-i omega r*} at the horizon, unit amplitude) and |u_inf(r0)|^2 (u_inf -> unit-flux
-    outgoing wave e^{+i omega r*} far away)."""
+    """One march from the horizon outward: |T|^2, |R|^2 and, at each probe radius r_k, the in and up modes
+    u_in = T u_H and u_up = T u_inf (u_H -> e^{-i omega r*} at the horizon, unit amplitude; u_inf -> unit-flux
+    outgoing wave e^{+i omega r*} far away) as logarithms of their moduli and their phases, shape (probes, n)
+    (the phase of T is left out: it cancels in every product u(r_1) conj(u(r_2)))."""
 
     transmission: np.ndarray
     reflection: np.ndarray
-    log_horizon2: np.ndarray | None = None
-    log_infinity2: np.ndarray | None = None
+    log_in: np.ndarray | None = None
+    phase_in: np.ndarray | None = None
+    log_up: np.ndarray | None = None
+    phase_up: np.ndarray | None = None
 
 
 
@@ -250,48 +257,50 @@ def _march(problem, l, omegas, steps, start, far_factor, probe, fixed) -> March:
     # resolutions can be extrapolated (Richardson; see derive.solve.exterior)
     multiple = max(1, steps // BASE_STEPS)
     pieces, x0, far = _pieces(problem, l, omegas, BASE_STEPS, start, far_factor, fixed)
-    after = None
-    if probe is not None:
-        pieces, after = _split(pieces, probe)
+    probes = () if probe is None else tuple(np.atleast_1d(probe).astype(float))
+    afters = []
+    if probes:
+        pieces, afters = _split(pieces, probes)
     pieces = [piece[:5] + (piece[5] * multiple,) for piece in pieces]
     state = _start_state(problem.regions[0], l, omegas, x0)
     n = len(omegas)
     log_scale = np.zeros(n)
     interfaces = {i.inner: i for i in problem.interfaces}
-    probe_u, probe_log = None, None
-    # the propagator from the probe to the far radius (kept at unit size with its log scale, and its
+    probe_u, probe_log = [None] * len(probes), [None] * len(probes)
+    # per probe, the propagator from the probe to the far radius (kept at unit size with its log scale, and its
     # determinant from the interfaces: every Magnus step is unimodular), for the solution coming from infinity
-    outer = np.broadcast_to(np.eye(2), (n, 2, 2)).copy()
-    outer_log, outer_det, total_det = np.zeros(n), np.ones(n), np.ones(n)
+    outer = [np.broadcast_to(np.eye(2), (n, 2, 2)).copy() for _ in probes]
+    outer_log, outer_det = [np.zeros(n) for _ in probes], [np.ones(n) for _ in probes]
+    total_det = np.ones(n)
     for position, (index, shift, a, b, kind, count) in enumerate(pieces):
         region = problem.regions[index]
-        if position == after:
-            probe_u, probe_log = state[:, 0].copy(), log_scale.copy()
+        for k in (k for k, after in enumerate(afters) if after == position):
+            probe_u[k], probe_log[k] = state[:, 0].copy(), log_scale.copy()
         matrix, scale = _piece(region, l, omegas, shift, a, b, count, kind)
         state = np.einsum("nij,nj->ni", matrix, state)
         size = np.max(np.abs(state), axis=1)
         state = state / size[:, None]
         log_scale += scale + np.log(size)
-        if after is not None and position >= after:
-            outer, outer_log = _accumulate(matrix, scale, outer, outer_log)
+        for k in (k for k, after in enumerate(afters) if position >= after):
+            outer[k], outer_log[k] = _accumulate(matrix, scale, outer[k], outer_log[k])
         last_of_region = position + 1 == len(pieces) or pieces[position + 1][0] != index
         if last_of_region and region.name in interfaces:
             transfer = np.broadcast_to(np.asarray(interfaces[region.name].transfer(l, omegas), dtype=float),
                                        (2, 2, n))
             state = np.einsum("ijn,nj->ni", transfer, state)
             total_det = total_det * np.linalg.det(np.moveaxis(transfer, -1, 0))
-            if after is not None and position >= after:
-                matrix = np.moveaxis(transfer, -1, 0)
-                outer, outer_log = _accumulate(matrix, np.zeros(n), outer, outer_log)
-                outer_det = outer_det * np.linalg.det(matrix)
-    if after is not None and after == len(pieces):
-        probe_u, probe_log = state[:, 0].copy(), log_scale.copy()
+            matrix = np.moveaxis(transfer, -1, 0)
+            for k in (k for k, after in enumerate(afters) if position >= after):
+                outer[k], outer_log[k] = _accumulate(matrix, np.zeros(n), outer[k], outer_log[k])
+                outer_det[k] = outer_det[k] * np.linalg.det(matrix)
+    for k in (k for k, after in enumerate(afters) if after == len(pieces)):
+        probe_u[k], probe_log[k] = state[:, 0].copy(), log_scale.copy()
     below = omegas < continuum_threshold(problem)
     if np.any(below) and not np.all(below):
         raise ValueError("one march takes frequencies all above or all below the mass threshold")
     V, dV = far_potential(problem.regions[-1], l, far)
     if np.all(below):
-        return _evanescent(omegas, V, dV, state, log_scale, total_det, probe, outer, outer_log, outer_det)
+        return _evanescent(omegas, V, dV, state, log_scale, total_det, probe_u, outer, outer_log, outer_det)
     k = np.sqrt(omegas ** 2 - V)
     # the corrected Liouville-Green split: with g = k'/(2k) = -V'/(4k^2) (' = d/dr*), the waves are
     # k^-1/2 e^{-+i int k} with u'/u = -+ i k - g, so u' + g u carries the split; its amplitude error is then of
@@ -303,20 +312,21 @@ def _march(problem, l, omegas, steps, start, far_factor, probe, fixed) -> March:
     scale = np.exp(2 * log_scale) * k / omegas
     A_in2, A_out2 = np.abs(a_in) ** 2 * scale, np.abs(a_out) ** 2 * scale
     result = March(1.0 / A_in2, A_out2 / A_in2)
-    if probe is not None:
-        log_T2 = -(2 * log_scale + np.log(np.abs(a_in) ** 2 * k / omegas))
-        result.log_horizon2 = 2 * (np.log(np.abs(probe_u)) + probe_log)
+    if probes:
+        log_T = -(log_scale + 0.5 * np.log(np.abs(a_in) ** 2 * k / omegas))
         # u_inf(r0) = (P^-1 s)[0], s = sqrt(omega/k) (1, i k - g) the unit-flux outgoing wave at the far radius,
-        # P = outer exp(outer_log): P^-1 = adj(outer) exp(outer_log) / det P
+        # P = outer exp(outer_log): P^-1 = adj(outer) exp(-outer_log) / det(outer)
         s0, s1 = np.sqrt(omegas / k), np.sqrt(omegas / k) * (1j * k - g)
-        u_inf = outer[:, 1, 1] * s0 - outer[:, 0, 1] * s1
-        result.log_infinity2 = 2 * (np.log(np.abs(u_inf)) + outer_log - np.log(np.abs(outer_det)))
-        result.log_horizon2 = result.log_horizon2 + log_T2
-        result.log_infinity2 = result.log_infinity2 + log_T2
+        u_inf = [o[:, 1, 1] * s0 - o[:, 0, 1] * s1 for o in outer]
+        result.log_in = np.array([np.log(np.abs(u)) + lg + log_T for u, lg in zip(probe_u, probe_log)])
+        result.phase_in = np.array([np.angle(u) for u in probe_u])
+        result.log_up = np.array([np.log(np.abs(u)) + lg - np.log(np.abs(d)) + log_T
+                                  for u, lg, d in zip(u_inf, outer_log, outer_det)])
+        result.phase_up = np.array([np.angle(u / d) for u, d in zip(u_inf, outer_det)])
     return result
 
 
-def _evanescent(omegas, V, dV, state, log_scale, total_det, probe, outer, outer_log, outer_det) -> March:
+def _evanescent(omegas, V, dV, state, log_scale, total_det, probe_u, outer, outer_log, outer_det) -> March:
     """Below the mass nothing reaches infinity: |T|^2 = 0, |R|^2 = 1, and the only modes are up modes, totally
     reflected.  With u_dec the solution decaying far away (started there as kappa^-1/2 e^{-int kappa}:
     u'/u = -kappa - kappa'/(2 kappa)) and u_H the ingoing solution from the horizon (unit amplitude), the
@@ -326,15 +336,20 @@ def _evanescent(omegas, V, dV, state, log_scale, total_det, probe, outer, outer_
     the propagator beyond r0, growing toward r0, as u_inf does above the mass."""
     n = len(omegas)
     result = March(np.zeros(n), np.ones(n))
-    if probe is None:
+    if not probe_u:
         return result
     kappa = np.sqrt(V - omegas ** 2)
     s0, s1 = np.ones(n), -kappa - dV / (4 * kappa * kappa)
     wronskian = state[:, 0] * s1 - state[:, 1] * s0
-    log_A2 = 2 * (np.log(np.abs(wronskian)) + log_scale - np.log(np.abs(total_det)) - np.log(2 * omegas))
-    u_dec = outer[:, 1, 1] * s0 - outer[:, 0, 1] * s1
-    result.log_horizon2 = np.full(n, -np.inf)
-    result.log_infinity2 = 2 * (np.log(np.abs(u_dec)) + outer_log - np.log(np.abs(outer_det))) - log_A2
+    log_A = np.log(np.abs(wronskian)) + log_scale - np.log(np.abs(total_det)) - np.log(2 * omegas)
+    # u_up = u_dec / A: u_dec is real, so its phase is that of 1/A (W's phase, the interfaces' determinants are
+    # real); the phase is common to every probe and cancels in u_up(r1) conj(u_up(r2)), only signs remain
+    u_dec = [o[:, 1, 1] * s0 - o[:, 0, 1] * s1 for o in outer]
+    result.log_in = np.full((len(probe_u), n), -np.inf)
+    result.phase_in = np.zeros((len(probe_u), n))
+    result.log_up = np.array([np.log(np.abs(u)) + lg - np.log(np.abs(d)) - log_A
+                              for u, lg, d in zip(u_dec, outer_log, outer_det)])
+    result.phase_up = np.array([np.angle(u / d) for u, d in zip(u_dec, outer_det)])
     return result
 
 

@@ -1,25 +1,36 @@
-"""Spectral density at a static point off the centre: the l-sum (docs/conventions.md section 7).
+"""The field's spectral two-point function between static points of a spacetime with a regular centre: the
+l-sum (docs/conventions.md section 7).
 
-    density(omega; r0) = sum_l (2l+1)/(4 pi) |U_l|^2,   U_l = u_l(r0)/(r0 A_l sqrt(pi k)),
-    k = sqrt(omega^2 - mu^2) (omega when massless),
+For two static points at radii r1, r2 (either may be the centre) an angle gamma apart,
 
-with u_l the regular solution (u ~ r^{l+1} at the centre, started on the derived Frobenius series at a small
-radius), A_l its amplitude far away.  Logarithmic scales are carried throughout (u ~ r^{l+1} underflows for
-large l).  The point may lie in any region (the march passes through it, crossing interfaces on the way).
+    W(omega; r1, r2, gamma) = sum_l w_l(gamma) U_l(r1) U_l(r2),   U_l(r) = u_l(r)/(r^(n/2) A_l sqrt(pi k)),
+    w_l(gamma) = [sum over m of Y_lm(x1) Y_lm(x2)*] = h_l G_l(cos gamma),  n = D - 2,
 
-Each l is refined frequency by frequency on nested grids (N, 2N, 4N steps in every piece), extrapolated
-(Richardson, fourth order) and accepted when the extrapolations of two successive pairs agree to the tolerance
-of the term itself or of the sum so far, whichever is larger (a term far below the sum needs only absolute
-accuracy).  The sum stops when three successive terms beyond the classical reach omega r0* are below a
-hundredth of the tolerance of the total, and the last term kept counts as the truncation error.  Check: in
-flat space the sum gives omega/(4 pi^2) at every r0 (addition theorem, sum_l (2l+1) j_l(x)^2 = 1, DLMF 10.60.12).
-In D dimensions (2l+1)/(4 pi) becomes the weight of the degree-l harmonics on the (D-2)-sphere and r0^2 becomes
-r0^(D-2); l = 0 then also starts on the series (u ~ r^((D-2)/2)).
+per unit omega of the spec's time coordinate, with u_l the regular solution (u ~ r^{l+1} at the centre in
+3+1, started on the derived Frobenius series at a small radius), A_l its amplitude far away, k = sqrt(omega^2 -
+mu^2) (omega when massless), h_l the weight of the degree-l harmonics on the unit n-sphere ((2l+1)/(4 pi) in
+3+1) and G_l the Gegenbauer polynomial of index (n-1)/2 normalised to G_l(1) = 1 (Legendre's P_l in 3+1,
+cos(l gamma) in 2+1).  The modes are real, so W is real.  The density at one point is the diagonal,
+W(omega; r0, r0, 0) = sum_l h_l U_l(r0)^2.  At the centre only l = 0 survives (u_0/r^(n/2) has a limit there).
+
+Logarithmic scales are carried throughout (u ~ r^{l+1} underflows for large l), and the march records u at every
+requested radius (it passes through them, crossing interfaces on the way).  Each term is refined frequency by
+frequency on nested grids (N, 2N, 4N steps in every piece), extrapolated (Richardson, fourth order) and accepted
+when the extrapolations of two successive pairs agree to the tolerance of the term's size or of the sum so far,
+whichever is larger.  A term's size is h_l (U_l(r1)^2 + U_l(r2)^2)/2, which bounds |term| (and equals it on the
+diagonal); summed over l it is the mean of the two points' densities, (W(r1, r1) + W(r2, r2))/2, the scale
+against which the tolerance of an off-diagonal value is measured (an off-diagonal value can be much smaller
+than the scale, or zero, where its terms cancel).  The sum stops when three successive terms beyond the
+classical reach omega r*_max are below a hundredth of the tolerance of the scale, and the size of the last term
+kept counts as the truncation error.  Checks: in flat space the diagonal is omega/(4 pi^2) at every r0 and the
+off-diagonal sin(omega d)/(4 pi^2 d) with d the distance (Gegenbauer's addition theorem, DLMF section 10.60).
 
 Supported: a regular centre, asymptotically flat, massless or massive (the continuum above the mass).
 """
 
 from __future__ import annotations
+
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -32,17 +43,63 @@ MAX_L = 400
 SPLIT_FROM = 64     # frequencies from which the set is split in two halves (one per core)
 
 
-def _pieces(problem, l, r0, steps, lowest, highest):
-    """(region index, a, b, geometric, steps) from the series start to the far radius, cut at r0; the index of
-    the first piece beyond r0; the series start r_s and the far radius."""
-    r_s = 0.0 if (l == 0 and problem.dimension == 4) else min(1e-3 * r0, 1e-3 / highest)
+def angular_factor(l: int, n: int, cos_gamma: float) -> float:
+    """G_l(cos gamma): the Gegenbauer polynomial of index (n-1)/2 over its value at 1 (Legendre's P_l for n = 2,
+    cos(l gamma) for n = 1), so that sum_m Y_lm(x1) Y_lm(x2)* = harmonic_weight(l, n) G_l(cos gamma) on the unit
+    n-sphere.  By the three-term recurrence (stable for |x| <= 1)."""
+    x = float(cos_gamma)
+    if l == 0 or x == 1.0:
+        return 1.0
+    if n == 1:
+        return float(np.cos(l * np.arccos(np.clip(x, -1.0, 1.0))))
+    a = (n - 1) / 2.0
+    previous, current = 1.0, 2 * a * x          # C_0, C_1 (unnormalised)
+    at_one_previous, at_one = 1.0, 2 * a
+    for m in range(1, l):
+        previous, current = current, (2 * x * (m + a) * current - (m + 2 * a - 1) * previous) / (m + 1)
+        at_one_previous, at_one = at_one, (2 * (m + a) * at_one - (m + 2 * a - 1) * at_one_previous) / (m + 1)
+        if abs(at_one) > 1e200:     # keep the ratio and its denominator in range
+            previous, current = previous / at_one, current / at_one
+            at_one_previous, at_one = at_one_previous / at_one, 1.0
+    return current / at_one
+
+
+@dataclass
+class TwoPointResult:
+    """The spectral two-point function per unit omega between two static points, with its error; ``scale`` is
+    the mean of the two points' densities, which bounds |value| and against which the tolerance is measured."""
+
+    omega: np.ndarray
+    value: np.ndarray
+    error: np.ndarray
+    scale: np.ndarray
+    radii: tuple
+    cos_gamma: float
+    tolerance: float
+    l_max: int
+
+    @property
+    def ok(self) -> bool:
+        return bool(np.all(self.error <= self.tolerance * self.scale))
+
+    def message(self) -> str:
+        from derive.solve.centre import shortfall
+
+        return shortfall(self.omega, self.scale, self.error, self.tolerance)
+
+
+def _pieces(problem, l, radii, steps, lowest, highest):
+    """(region index, a, b, geometric, steps) from the series start to the far radius, cut at every radius of
+    ``radii`` (positive, increasing); the position of the first piece starting at each radius; the series start
+    r_s and the far radius."""
+    r_s = 0.0 if (l == 0 and problem.dimension == 4) else min(1e-3 * radii[0], 1e-3 / highest)
     far = max(FAR * problem.length_scale, 1e3 / lowest, 1e6 * np.sqrt(l * (l + 1) + 1.0) / lowest)
     pieces = []
     for index, region in enumerate(problem.regions):
         spans = []
         lower = region.lower
         if index == 0:   # from the series start: geometric in r when it starts off the centre (l > 0)
-            top = region.upper if region.upper is not None else 2 * max(r0, problem.length_scale)
+            top = region.upper if region.upper is not None else 2 * max(radii[-1], problem.length_scale)
             spans.append((r_s, top, r_s > 0, steps))
             lower = top
         if region.upper is None:
@@ -52,23 +109,25 @@ def _pieces(problem, l, r0, steps, lowest, highest):
         for a, b, geometric, n in spans:
             if b <= a:
                 continue
-            if a < r0 < b:
-                fraction = np.log(r0 / a) / np.log(b / a) if geometric else (r0 - a) / (b - a)
-                first = max(2, int(round(n * fraction)))
-                pieces.append((index, a, r0, geometric, first))
-                pieces.append((index, r0, b, geometric, max(2, n - first)))
-            else:
-                pieces.append((index, a, b, geometric, n))
-    after = next(i for i, piece in enumerate(pieces) if piece[1] >= r0)
-    return pieces, after, r_s, far
+            cuts = [a] + [r for r in radii if a < r < b] + [b]
+            given = 0
+            for c, d in zip(cuts[:-1], cuts[1:]):
+                # each cut piece gets its share of the span's steps (the last one the rest), at least 2
+                fraction = np.log(d / c) / np.log(b / a) if geometric else (d - c) / (b - a)
+                count = max(2, n - given) if d == b else max(2, int(round(n * fraction)))
+                given += count
+                pieces.append((index, c, d, geometric, count))
+    at = [next(i for i, piece in enumerate(pieces) if piece[1] >= r) for r in radii]
+    return pieces, at, r_s, far
 
 
-def _log_u_at(problem, l, omegas, r0, steps, series, fixed):
-    """log|u_l(r0)| - log A_l for every omega (u_l normalised arbitrarily; the ratio is what matters).
-    ``fixed`` = (lowest, highest) frequency of the whole set: the grid is the same for every subset."""
+def _log_u_at(problem, l, omegas, radii, steps, series, fixed):
+    """(log|u_l(r)| - log A_l, sign of u_l(r)) at every radius of ``radii`` (positive, increasing), each of
+    shape (len(radii), len(omegas)), and log A_l (u_l normalised arbitrarily; the ratio is what matters).  ``fixed`` =
+    (lowest, highest) frequency of the whole set: the grid is the same for every subset."""
     n = len(omegas)
     multiple = max(1, steps // 16)
-    pieces, after, r_s, far = _pieces(problem, l, r0, 16, *fixed)
+    pieces, at, r_s, far = _pieces(problem, l, radii, 16, *fixed)
     if r_s == 0.0:
         state = np.tile([0.0, 1.0], (n, 1))
         log_scale = np.zeros(n)
@@ -80,12 +139,14 @@ def _log_u_at(problem, l, omegas, r0, steps, series, fixed):
         poly = a0 + a1 * r_s + a2 * r_s * r_s
         state = np.stack([poly, F * (s / r_s * poly + a1 + 2 * a2 * r_s)], axis=1)
         log_scale = s * np.log(r_s)
-    log_u0 = None
+    log_u = np.zeros((len(radii), n))
+    sign = np.ones((len(radii), n))
     interfaces = {i.inner: i for i in problem.interfaces}
     for position, (index, a, b, geometric, count) in enumerate(pieces):
         region = problem.regions[index]
-        if position == after:
-            log_u0 = np.log(np.abs(state[:, 0])) + log_scale
+        for k in (k for k, p in enumerate(at) if p == position):
+            log_u[k] = np.log(np.abs(state[:, 0])) + log_scale
+            sign[k] = np.sign(state[:, 0])
         matrix, scale = region_propagator(region, l, omegas, a, b, count * multiple, geometric)
         state = np.einsum("nij,nj->ni", matrix, state)
         size = np.max(np.abs(state), axis=1)
@@ -101,118 +162,189 @@ def _log_u_at(problem, l, omegas, r0, steps, series, fixed):
     q = omegas ** 2 - V          # the local wave number squared: the flux a^2 k normalises (centre.py)
     amplitude2 = (state[:, 0] ** 2 + state[:, 1] ** 2 / q) * np.sqrt(q)
     log_amplitude = 0.5 * np.log(amplitude2) + log_scale
-    return log_u0 - log_amplitude
+    return log_u - log_amplitude, sign, log_amplitude
 
 
-def _term_values(problem, l, omegas, r0, steps, series, fixed):
+def _centre_log_u(problem, omegas, series):
+    """(log|lim u_0/r^(n/2)|, its sign) at the centre, in the march's own normalisation: the start state u = 0,
+    du/dr* = 1 in 3+1 (so u/r -> dr*/dr there), the series' a_0 otherwise."""
+    if problem.dimension == 4:
+        slope = float(np.asarray(problem.regions[0].dtortoise_dr(np.array([0.0]))).reshape(-1)[0])
+        return np.full(len(omegas), np.log(abs(slope))), np.full(len(omegas), np.sign(slope))
+    a0 = np.broadcast_to(np.asarray(series(0, omegas), dtype=float)[1], omegas.shape)
+    return np.log(np.abs(a0)), np.sign(a0)
+
+
+def _term_values(problem, l, omegas, pair, cos_gamma, steps, series, fixed):
+    """The l-term of the two-point function between the radii ``pair`` (r1 <= r2; r1 may be 0, the centre, where
+    only l = 0 is asked for) and its size h_l (U_l(r1)^2 + U_l(r2)^2)/2 (see the module docstring)."""
+    n = problem.dimension - 2
+    radii = tuple(sorted({r for r in pair if r > 0})) or (problem.length_scale,)
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-        log_u = _log_u_at(problem, l, omegas, r0, steps, series, fixed)
-        n = problem.dimension - 2
-        return harmonic_weight(l, n) * np.exp(2 * log_u) / (r0 ** n * np.pi)
+        log_u, sign, log_amplitude = _log_u_at(problem, l, omegas, radii, steps, series, fixed)
+        logs, signs = [], []
+        for r in pair:
+            if r > 0:
+                k = radii.index(r)
+                logs.append(log_u[k] - 0.5 * n * np.log(r))
+                signs.append(sign[k])
+            else:
+                log_centre, sign_centre = _centre_log_u(problem, omegas, series)
+                logs.append(log_centre - log_amplitude)
+                signs.append(sign_centre)
+        weight = harmonic_weight(l, n) / np.pi
+        value = weight * angular_factor(l, n, cos_gamma) * signs[0] * signs[1] * np.exp(logs[0] + logs[1])
+        size = weight * (np.exp(2 * logs[0]) + np.exp(2 * logs[1])) / 2
+        return value, size
 
 
-def _term(problem, l, omegas, r0, series, tolerance, floor, fixed, steps=32, max_steps=8192):
-    """(2l+1)/(4 pi) |U_l|^2 and its error, refined per frequency (see the module docstring).
+def _term(problem, l, omegas, pair, cos_gamma, series, tolerance, floor, fixed, steps=32, max_steps=8192):
+    """The l-term between the radii ``pair``, its size and its error, refined per frequency (see the module
+    docstring).
 
-    ``tolerance`` may be an array (one per frequency); ``fixed`` = (lowest, highest) frequency of the whole set,
-    so that the grids do not depend on which frequencies are still summing.  Returns also the step count at
-    which most frequencies converged (the next l starts near it)."""
+    ``tolerance`` may be an array (one per frequency); ``floor`` is the size of the sum so far; ``fixed`` =
+    (lowest, highest) frequency of the whole set, so that the grids do not depend on which frequencies are still
+    summing.  Returns also the step count at which most frequencies converged (the next l starts near it)."""
     n = len(omegas)
     tolerance = np.broadcast_to(np.asarray(tolerance, dtype=float), (n,))
-    value, error = np.zeros(n), np.zeros(n)
+    value, size, error = np.zeros(n), np.zeros(n), np.zeros(n)
     active = np.arange(n)
     count = steps
     converged_at = []
-    coarse = _term_values(problem, l, omegas, r0, count, series, fixed)
-    fine = _term_values(problem, l, omegas, r0, 2 * count, series, fixed)
+    values = lambda w, count: _term_values(problem, l, w, pair, cos_gamma, count, series, fixed)
+    coarse, _ = values(omegas, count)
+    fine, _ = values(omegas, 2 * count)
     while len(active):
-        finest = _term_values(problem, l, omegas[active], r0, 4 * count, series, fixed)
+        finest, finest_size = values(omegas[active], 4 * count)
         with np.errstate(invalid="ignore", over="ignore"):
             before = fine + (fine - coarse) / 15
             after = finest + (finest - fine) / 15
             change = np.abs(after - before)
-        scale = np.maximum(np.abs(after), floor[active])
+        scale = np.maximum(np.maximum(np.abs(after), finest_size), floor[active])
         done = change <= tolerance[active] * scale
         if 4 * count >= max_steps:
             done[:] = True
         index = active[done]
         value[index] = after[done]
-        error[index] = change[done] + rounding_floor(4 * count) * np.abs(after[done])
+        size[index] = np.maximum(finest_size[done], np.abs(after[done]))
+        error[index] = change[done] + rounding_floor(4 * count) * size[index]
         bad = ~np.isfinite(value[index] + error[index])
         error[index[bad]] = np.inf
         converged_at += [count] * int(np.sum(done))
         active = active[~done]
         coarse, fine = fine[~done], finest[~done]
         count *= 2
-    return value, error, int(np.median(converged_at)) if converged_at else steps
+    # the median count itself (a power of two times the start), never the mean of two: the grids must stay nested
+    return value, size, error, int(sorted(converged_at)[len(converged_at) // 2]) if converged_at else steps
 
 
-def density_off_centre(problem, omegas, r0: float, tolerance: float = 1e-10, series=None,
-                       progress=None) -> DensityResult:
-    """The l-summed density per unit omega at radius r0 (> 0), in any region of a spacetime with a centre.
-
-    Each frequency sums its own l: its reach omega r0* (the tortoise distance from the centre) sets how many
-    terms count, its terms are refined to tolerance/(4 + reach) of its sum, and it stops after three quiet terms
-    beyond its reach, while the others go on.  The step count of the next l starts from where most frequencies
-    of this l converged (nested grids: a start that is high only means finer levels are compared)."""
+def _prepare(problem, omegas, series):
+    """Checks shared by the density and the two-point function; the series kernel and the mass threshold."""
     check_supported(problem, any_dimension=True)
-    first = problem.regions[0]
-    if not r0 > 0:
-        raise Unsupported("the point must lie off the centre (r0 > 0); at r0 = 0 use the centre density")
-    series = series or first.centre_series
+    series = series or problem.regions[0].centre_series
     if series is None:
         raise Unsupported("the centre's series kernel is needed for l > 0")
-    omegas = np.asarray(omegas, dtype=float)
-    threshold = continuum_threshold(problem)
-    if threshold > 0 and np.any(omegas <= threshold):   # no continuum below the mass (see centre.py)
-        above = np.nonzero(omegas > threshold)[0]
-        parts = [(above, density_off_centre(problem, omegas[above], r0, tolerance, series, progress))
-                 ] if len(above) else []
-        return merge(omegas, tolerance, parts)
-    distance = 0.0      # the tortoise distance from the centre to r0
+    return series, continuum_threshold(problem)
+
+
+def _tortoise_distance(problem, r0: float) -> float:
+    """The tortoise distance from the centre to r0."""
+    distance = 0.0
     for region in problem.regions:
         top = min(r0, region.upper) if region.upper is not None else r0
         if top > region.lower:
             nodes, weights = np.polynomial.legendre.leggauss(20)
             half = (top - region.lower) / 2
             distance += float(np.sum(weights * region.dtortoise_dr(region.lower + (nodes + 1) * half)) * half)
+    return distance
+
+
+def _summed(problem, omegas, pair, cos_gamma, tolerance, series, threshold, progress):
+    """The l-sum for every frequency above the threshold, on both cores: (value, size, error, l reached)."""
     fixed = (float(np.min(np.sqrt(omegas ** 2 - threshold ** 2))), float(np.max(omegas)))
+    distance = _tortoise_distance(problem, max(pair))
     # two fixed halves (every other frequency), on both cores where there are two: the same result either way
     halves = [np.arange(len(omegas))] if len(omegas) < SPLIT_FROM else [np.arange(0, len(omegas), 2),
                                                                            np.arange(1, len(omegas), 2)]
-    parts = split_map(_l_sum, [(problem, omegas[index], r0, tolerance, series, fixed, distance,
+    parts = split_map(_l_sum, [(problem, omegas[index], pair, cos_gamma, tolerance, series, fixed, distance,
                                 progress if i == 0 else None) for i, index in enumerate(halves)])
-    total, error = np.zeros(len(omegas)), np.zeros(len(omegas))
-    for index, (part_total, part_error) in zip(halves, parts):
-        total[index], error[index] = part_total, part_error
+    value, size, error = np.zeros(len(omegas)), np.zeros(len(omegas)), np.zeros(len(omegas))
+    for index, part in zip(halves, parts):
+        value[index], size[index], error[index] = part[:3]
+    return value, size, error, max(part[3] for part in parts)
+
+
+def density_off_centre(problem, omegas, r0: float, tolerance: float = 1e-10, series=None,
+                       progress=None) -> DensityResult:
+    """The l-summed density per unit omega at radius r0 (> 0), in any region of a spacetime with a centre: the
+    diagonal of the two-point function (:func:`two_point`).
+
+    Each frequency sums its own l: its reach omega r0* (the tortoise distance from the centre) sets how many
+    terms count, its terms are refined to tolerance/(4 + reach) of its sum, and it stops after three quiet terms
+    beyond its reach, while the others go on.  The step count of the next l starts from where most frequencies
+    of this l converged (nested grids: a start that is high only means finer levels are compared)."""
+    if not r0 > 0:
+        raise Unsupported("the point must lie off the centre (r0 > 0); at r0 = 0 use the centre density")
+    series, threshold = _prepare(problem, omegas, series)
+    omegas = np.asarray(omegas, dtype=float)
+    if threshold > 0 and np.any(omegas <= threshold):   # no continuum below the mass (see centre.py)
+        above = np.nonzero(omegas > threshold)[0]
+        parts = [(above, density_off_centre(problem, omegas[above], r0, tolerance, series, progress))
+                 ] if len(above) else []
+        return merge(omegas, tolerance, parts)
+    total, _, error, _ = _summed(problem, omegas, (r0, r0), 1.0, tolerance, series, threshold, progress)
     return DensityResult(omegas, total, error, np.zeros_like(total), error / total, np.zeros_like(total), tolerance)
 
 
-def _l_sum(problem, omegas, r0, tolerance, series, fixed, distance, progress=None):
-    """The sum over l for each frequency (see :func:`density_off_centre`): (total, error).  ``progress(l,
-    share)`` is told the l reached and the share of frequencies done."""
+def two_point(problem, omegas, r1: float, r2: float, cos_gamma: float, tolerance: float = 1e-10, series=None,
+              progress=None) -> TwoPointResult:
+    """The spectral two-point function per unit omega between static points at radii r1 and r2 (either may be 0,
+    the centre) an angle gamma apart (``cos_gamma``), in a spacetime with a regular centre; zero below the mass
+    of a massive field (no continuum there).  Errors are absolute; the tolerance is relative to the scale (the
+    sum of the terms' sizes, at most the mean of the two points' densities)."""
+    series, threshold = _prepare(problem, omegas, series)
+    omegas = np.asarray(omegas, dtype=float)
+    if not (r1 >= 0 and r2 >= 0 and -1.0 <= cos_gamma <= 1.0):
+        raise Unsupported("radii must be >= 0 and cos(gamma) within [-1, 1]")
+    pair = (min(r1, r2), max(r1, r2))
     n = len(omegas)
-    total = np.zeros(n)
-    error = np.zeros(n)
+    value, size, error = np.zeros(n), np.zeros(n), np.zeros(n)
+    l_max = 0
+    above = np.nonzero(omegas > threshold)[0]
+    if len(above):
+        part = _summed(problem, omegas[above], pair, float(cos_gamma), tolerance, series, threshold, progress)
+        value[above], size[above], error[above] = part[:3]
+        l_max = part[3]
+    return TwoPointResult(omegas, value, error, size, (r1, r2), float(cos_gamma), tolerance, l_max)
+
+
+def _l_sum(problem, omegas, pair, cos_gamma, tolerance, series, fixed, distance, progress=None):
+    """The sum over l for each frequency: (value, size, error, the largest l reached).  Each frequency sums its
+    own l (see :func:`density_off_centre`); with the centre as one point only l = 0 is summed (the others vanish
+    there).  ``progress(l, share)`` is told the l reached and the share of frequencies done."""
+    n = len(omegas)
+    total, size, error = np.zeros(n), np.zeros(n), np.zeros(n)
     quiet = np.zeros(n, dtype=int)
     reach = omegas * distance
     summing = np.arange(n)
     steps = 32
     for l in range(MAX_L + 1):
         # each term to a share of the tolerance (of itself or of the sum so far): about reach + 1 terms count
-        term, term_error, converged = _term(problem, l, omegas[summing], r0, series,
-                                            tolerance / (4 + reach[summing]), total[summing], fixed,
-                                            steps=steps)
-        steps = max(32, converged // 2)
+        term, term_size, term_error, converged = _term(problem, l, omegas[summing], pair, cos_gamma, series,
+                                                       tolerance / (4 + reach[summing]), size[summing], fixed,
+                                                       steps=steps)
+        steps = max(32, converged // 2)     # 32 times a power of two: nested grids
         total[summing] += term
+        size[summing] += term_size
         error[summing] += term_error
-        small = term <= 0.01 * tolerance * total[summing]
+        small = term_size <= 0.01 * tolerance * size[summing]
         quiet[summing] = np.where(small & (l > reach[summing]), quiet[summing] + 1, 0)
-        finished = quiet[summing] >= 3
-        error[summing[finished]] += term[finished]   # the first neglected terms are smaller than the last kept
+        finished = (quiet[summing] >= 3) | (pair[0] == 0)
+        if pair[0] > 0:     # the first neglected terms are smaller than the last kept
+            error[summing[finished]] += term_size[finished]
         summing = summing[~finished]
         if progress is not None:
             progress(l, 1.0 - len(summing) / n)
         if not len(summing):
-            return total, error
+            return total, size, error, l
     raise Unsupported(f"the l-sum did not converge by l = {MAX_L}")

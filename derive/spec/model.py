@@ -177,6 +177,13 @@ class Spacetime:
 
         return spectrum(self, omega, at, l, tolerance, progress)
 
+    def two_point(self, omega, between, tolerance: float | None = None, progress=None):
+        """The spectral two-point (Wightman) function between two static points: see
+        :func:`derive.pipeline.two_point`."""
+        from derive.pipeline import two_point
+
+        return two_point(self, omega, between, tolerance, progress)
+
     def response(self, gaps=None, tolerance: float | None = None, switching: dict | None = None, compare=None,
                  progress=None):
         """The static detector's response, comparison, locality, runs: see :func:`derive.pipeline.response`."""
