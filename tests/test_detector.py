@@ -296,3 +296,22 @@ def test_bad_switching_names_file_and_key(capsys, tmp_path, switching, key):
     assert main(["response", str(path)]) == 2
     err = capsys.readouterr().err
     assert str(path) in err and f"detector.switching.{key}" in err
+
+
+@pytest.mark.parametrize("tolerance", [1e-6, 1e-8, 1e-10, 1e-12])
+def test_tolerance_aware_cutoff_against_the_closed_form(tolerance):
+    # The Gaussian's frequency integral stops where a bound on the rest (four times the flat density) is below a
+    # thousandth of the tolerance; checked against the closed-form flat response (docs/conventions.md section 8;
+    # follows from the Minkowski Wightman function, Birrell & Davies 1982 ch. 3), for gaps from deep
+    # de-excitation to far above the peak, with the error estimate covering the true error.
+    from derive.detector.response import cutoff, response
+    from derive.detector.study import flat_density
+
+    switching = Switching("gaussian", 0.3)
+    gaps = np.array([-40.0, -10.0, -1.0, 0.0, 2.0, 8.0, 15.0])
+    result = response(gaps, switching, flat_density(4, 0.0), tolerance=tolerance)
+    exact = minkowski_gaussian_response(gaps, 0.3)
+    assert np.all(np.abs(result.response - exact) <= result.error)
+    assert np.all(result.error <= tolerance * exact)
+    upper, tail = cutoff(gaps, switching, tolerance=tolerance)
+    assert upper < 40.0 + 10.0 / 0.3 and np.all(tail <= 1e-3 * tolerance * exact * 1.01)

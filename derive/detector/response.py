@@ -4,10 +4,10 @@ F(Omega) = int_0^inf dnu S(nu) |chi_hat(Omega + nu)|^2 in the vacuum (positive f
 S(nu) = sqrt(f(r0)) * density(omega = sqrt(f(r0)) nu) is the spectral density per unit proper frequency and
 chi_hat(k) = int chi(tau) e^{-i k tau} dtau.  The transition probability at leading order is lambda^2 F.
 
-Quadrature: Gauss-Legendre panels of width 1/(2 sigma) over [0, max(0, -Omega) + 10/sigma] (the switching
-weight is below e^-100 beyond), the first graded toward nu = 0; the same integral on panels of half the width
-gives the quadrature error, and
-the density's own error is carried through the same quadrature.
+Quadrature: Gauss-Legendre panels of width 1/(2 sigma) over [0, K], the first graded toward nu = 0; the same
+integral on panels of half the width gives the quadrature error, and the density's own error is carried through
+the same quadrature.  K follows the tolerance for the Gaussian (see :func:`cutoff`; at most max(0, -Omega) +
+10/sigma, where the weight is below e^-100) and is the switching's reach for the other shapes.
 """
 
 from __future__ import annotations
@@ -48,19 +48,60 @@ def _panels(upper: float, width: float, start: float = 0.0):
     return nodes.ravel(), weights.ravel()
 
 
-def frequency_nodes(gaps, switching: Switching, thermal: bool = False, threshold: float = 0.0):
-    """The proper frequencies nu > threshold at which the density is needed (both quadrature levels).  A thermal
-    state also needs its negative-frequency part, weighted by |chi_hat(Omega - nu)|^2, up to the largest gap."""
+MARGIN = 4.0        # the density bound used for the part beyond the cut-off: MARGIN times the local flat density
+SHARE = 1e-3        # the share of the tolerance (relative to the flat response) that the cut-off may take
+
+
+def cutoff(gaps, switching: Switching, thermal: bool = False, threshold: float = 0.0,
+           tolerance: float | None = None, dimension: int = 4):
+    """(upper, tail): where the frequency integral may stop, and a bound on what is left out, per gap.
+
+    Without a tolerance, or for a switching whose |chi_hat|^2 is not in closed form, the switching's own reach
+    (its weight below e^-100 of the peak, or its tail bound) is used.  For the Gaussian the cut-off follows the
+    tolerance: the smallest K with int_K^inf MARGIN c_D nu^(D-3) |chi_hat(Omega + nu)|^2 dnu (and the same with
+    Omega - nu in a thermal state) at most SHARE x tolerance x the flat response F_flat(Omega) for every gap,
+    c_D nu^(D-3) the flat density (a factor MARGIN of margin: at high frequency every static density tends to the
+    local flat one); that bound is returned and counted in the response's error, and the response fails its
+    tolerance honestly if F turns out far below F_flat."""
+    gaps = np.asarray(gaps, dtype=float)
     upper = max(0.0, -float(np.min(gaps))) + switching.reach
     if thermal:
         upper = max(upper, float(np.max(gaps)) + switching.reach)
+    none = np.zeros(len(gaps))
+    if tolerance is None or type(switching) is not Switching:
+        return upper, none
+    from derive.solve.centre import sphere_area
+
+    c = sphere_area(dimension - 2) / (2 * (2 * np.pi) ** (dimension - 1))
+    nu = np.linspace(threshold, upper, 8001)
+    flat = c * np.maximum(nu, 0.0) ** (dimension - 3)
+    weights = switching.power(gaps[:, None] + nu[None, :])
+    if thermal:
+        weights = weights + switching.power(gaps[:, None] - nu[None, :])
+    integrand = flat[None, :] * weights
+    pieces = (integrand[:, 1:] + integrand[:, :-1]) / 2 * np.diff(nu)[None, :]
+    beyond = np.concatenate([np.cumsum(pieces[:, ::-1], axis=1)[:, ::-1], np.zeros((len(gaps), 1))], axis=1)
+    total = beyond[:, 0]
+    # the trapezoid overestimates the convex tails of a Gaussian window, and one grid step of margin is added
+    fits = np.all(MARGIN * beyond <= SHARE * tolerance * total[:, None], axis=0)
+    index = int(np.argmax(fits)) if np.any(fits) else len(nu) - 1
+    index = min(index + 1, len(nu) - 1)
+    return float(nu[index]), MARGIN * beyond[:, max(index - 1, 0)]
+
+
+def frequency_nodes(gaps, switching: Switching, thermal: bool = False, threshold: float = 0.0, upper=None):
+    """The proper frequencies nu > threshold at which the density is needed (both quadrature levels), up to
+    ``upper`` (default: the switching's reach beyond the largest -Omega).  A thermal state also needs its
+    negative-frequency part, weighted by |chi_hat(Omega - nu)|^2, up to the largest gap."""
+    if upper is None:
+        upper = cutoff(gaps, switching, thermal, threshold)[0]
     coarse = _panels(upper, switching.panel_width, threshold)
     fine = _panels(upper, switching.panel_width / 2, threshold)
     return coarse, fine
 
 
 def response(gaps, switching: Switching, density_at, thermal: bool = False, threshold: float = 0.0,
-             dimension: int = 4) -> Response:
+             dimension: int = 4, tolerance: float | None = None) -> Response:
     """F(Omega) for every gap.
 
     Parameters
@@ -71,7 +112,8 @@ def response(gaps, switching: Switching, density_at, thermal: bool = False, thre
         state (``thermal=True``), (S(nu), error, S(-nu), error of S(-nu))
     """
     gaps = np.asarray(gaps, dtype=float)
-    (nu_c, w_c), (nu_f, w_f) = frequency_nodes(gaps, switching, thermal, threshold)
+    upper, cut_tail = cutoff(gaps, switching, thermal, threshold, tolerance, dimension)
+    (nu_c, w_c), (nu_f, w_f) = frequency_nodes(gaps, switching, thermal, threshold, upper)
     nodes = np.concatenate([nu_c, nu_f])
     parts = density_at(nodes)
     split = len(nu_c)
@@ -85,7 +127,8 @@ def response(gaps, switching: Switching, density_at, thermal: bool = False, thre
         size = size + np.abs(weight_f) @ (w_f * np.abs(S[split:]))
         mass = mass + float(w_f @ np.abs(S[split:]))
     # the transform's own error (absolute, on |chi_hat|^2) and the part of the integral beyond the reach
-    quadrature_error = np.abs(F_f - F_c) + switching.power_error * mass + switching.tail_error(gaps, dimension)
+    quadrature_error = (np.abs(F_f - F_c) + switching.power_error * mass + switching.tail_error(gaps, dimension)
+                        + cut_tail)
     floor = 64 * np.finfo(float).eps * size
     return Response(gaps, F_f, quadrature_error + density_error + floor, quadrature_error, density_error)
 

@@ -171,7 +171,7 @@ def detector_response(problem, detector, tolerance: float = 1e-10, gaps=None, st
     from derive.solve.centre import continuum_threshold
 
     threshold = 0.0 if has_horizon(problem) else continuum_threshold(problem) / sqrt_f0
-    return response(gaps, switching, density_at, thermal, threshold, D), switching, sqrt_f0
+    return response(gaps, switching, density_at, thermal, threshold, D, tolerance), switching, sqrt_f0
 
 
 def study(problem, detector, reference_problem=None, tolerance: float = 1e-10, gaps=None, progress=None) -> dict:
