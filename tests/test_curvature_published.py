@@ -1,4 +1,4 @@
-"""Curvature of exact spacetimes against published values (docs/conventions.md section 1; REFERENCES.md)."""
+"""Curvature of exact spacetimes against published values (docs/conventions.md section 1; each source named beside its check)."""
 
 import mpmath
 import pytest
@@ -59,7 +59,7 @@ def test_schwarzschild_kretschmann_and_vacuum(write_spec):
 
 # -- Reissner-Nordstrom ------------------------------------------------------------------------------
 def test_reissner_nordstrom_kretschmann_and_maxwell_stress(write_spec):
-    # Source: REFERENCES.md (a = 0 limit of the Kerr-Newman invariant, Henry, ApJ 535, 350, 2000):
+    # Source: the a = 0 limit of the Kerr-Newman invariant (Henry, ApJ 535, 350, 2000):
     # K = 48 M^2/r^6 - 96 M Q^2/r^7 + 56 Q^4/r^8, R = 0, G^mu_nu = (Q^2/r^4) diag(-1,-1,1,1) = 8 pi T^mu_nu
     # (Gaussian units; textbook, e.g. Carroll 2004 sec. 5.8).
     geo = geometry(write_spec, static_spec("1 - 2*M/r + Q**2/r**2",
@@ -121,7 +121,7 @@ def test_kerr_ricci_flat_and_kretschmann(write_spec):
 # -- de Sitter and anti-de Sitter ------------------------------------------------------------------------
 @pytest.mark.parametrize("sign, scalar", [(1, 12), (-1, -12)])
 def test_de_sitter_static_patch_is_maximally_symmetric(write_spec, sign, scalar):
-    # Source: REFERENCES.md (textbook; e.g. Carroll 2004 ch. 8): f = 1 -/+ r^2/L^2 gives R = +/-12/L^2,
+    # Source: textbook (e.g. Carroll, Spacetime and Geometry, 2004, ch. 8): f = 1 -/+ r^2/L^2 gives R = +/-12/L^2,
     # K = 24/L^4, R_ab = (R/4) g_ab, and R_abcd = (R/12)(g_ac g_bd - g_ad g_bc).
     f = "1 - r**2/L**2" if sign == 1 else "1 + r**2/L**2"
     geo = geometry(write_spec, static_spec(f, parameters="L = { value = 3.0, positive = true }"))
@@ -137,7 +137,7 @@ def test_de_sitter_static_patch_is_maximally_symmetric(write_spec, sign, scalar)
 
 
 def test_schwarzschild_de_sitter_kretschmann(write_spec):
-    # Source: REFERENCES.md (textbook): K = 48 M^2/r^6 + 8 Lambda^2/3 for f = 1 - 2M/r - Lambda r^2/3.
+    # Source: textbook (Schwarzschild-de Sitter; e.g. Carroll 2004 ch. 8), from memory: K = 48 M^2/r^6 + 8 Lambda^2/3 for f = 1 - 2M/r - Lambda r^2/3.
     geo = geometry(write_spec, static_spec("1 - 2*M/r - Lam*r**2/3",
                                            parameters="M = { value = 1.0, positive = true }\n"
                                                       "Lam = { value = 0.01, positive = true }"))
@@ -163,7 +163,7 @@ line_element = "-dt**2 + a(t)**2*(dr**2/(1 - k*r**2) + r**2*(dtheta**2 + sin(the
 
 
 def test_flrw_friedmann_equations(write_spec):
-    # Source: REFERENCES.md (textbook; Carroll 2004 sec. 8.3): G_tt = 3(adot^2 + k)/a^2,
+    # Source: Carroll, Spacetime and Geometry (2004), sec. 8.3: G_tt = 3(adot^2 + k)/a^2,
     # G^i_i = -[2 addot/a + (adot^2 + k)/a^2], R = 6(addot/a + adot^2/a^2 + k/a^2).
     geo = geometry(write_spec, FLRW)
     t = [c for c in geo.coordinates if c.name == "t"][0]
@@ -231,7 +231,7 @@ def test_btz_black_hole_in_2_plus_1(write_spec):
 
 # -- general static metric and energy conditions -------------------------------------------------------
 def test_general_static_metric_ricci_scalar(write_spec):
-    # Source: REFERENCES.md "Field equations" (textbook standard): for -f dt^2 + dr^2/f + r^2 dOmega^2,
+    # Source: textbook standard (e.g. Carroll 2004 ch. 5), common practice: for -f dt^2 + dr^2/f + r^2 dOmega^2,
     # R = -f'' - 4 f'/r + 2 (1 - f)/r^2.
     text = """
     format = 1

@@ -1,4 +1,4 @@
-"""Detector response at a regular centre (docs/conventions.md sections 7-9; REFERENCES.md "Detectors")."""
+"""Detector response at a regular centre (docs/conventions.md sections 7-9; sources named beside each check)."""
 
 import json
 import os
@@ -38,7 +38,7 @@ def run_study(path):
 
 
 def test_flat_gaussian_response_from_the_mode_sum(write_spec):
-    # Source: REFERENCES.md "Detectors" (follows from the Minkowski Wightman function, Birrell & Davies 1982,
+    # Source: the Minkowski Wightman function (Birrell & Davies, Quantum Fields in Curved Space, 1982,
     # ch. 3): with sigma = 1, F = 1/(4 pi) at Omega = 0, 0.007088272232636416 at Omega = 1,
     # 0.2891830640065146 at Omega = -1 (values computed independently three ways).
     path = write_spec(FLAT + DETECTOR.format(width="1", gaps="-1.0, 0.0, 1.0"))
@@ -261,7 +261,7 @@ def test_flat_2plus1_gaussian_response(write_spec):
     direct = [quad(lambda nu: 2 * np.pi * sigma ** 2 * np.exp(-(sigma * (g + nu)) ** 2) / (4 * np.pi), 0, np.inf,  # noqa: B023
                    epsrel=1e-13)[0] for g in result["gaps"]]
     np.testing.assert_allclose(closed, direct, rtol=1e-12)
-    # REFERENCES.md "Detectors" (2+1, sigma = 1; computed independently there): 0.443113462726379 at Omega = 0
+    # 2+1, sigma = 1 (computed independently, from the closed form sqrt(pi)/4 erfc(sigma Omega)): 0.443113462726379 at Omega = 0
     assert np.sqrt(np.pi) / 4 * erfc(0.0) == pytest.approx(0.443113462726379, rel=1e-14)
     assert np.sqrt(np.pi) / 4 * erfc(1.0) == pytest.approx(0.06970139632016549, rel=1e-13)
     np.testing.assert_allclose(result["response"], closed, rtol=1e-9)

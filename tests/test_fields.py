@@ -39,7 +39,7 @@ def test_schwarzschild_potential_regge_wheeler(write_spec):
 
 
 def test_reissner_nordstrom_potential_with_coupling(write_spec):
-    # Source: REFERENCES.md "Field equations" (textbook standard): V = f[l(l+1)/r^2 + mu^2 + xi R] + F F'/r,
+    # Source: textbook standard (e.g. Birrell & Davies 1982 ch. 3 for the conformal term), common practice: V = f[l(l+1)/r^2 + mu^2 + xi R] + F F'/r,
     # F = sqrt(f h) = f here; for Reissner-Nordstrom R = 0, so xi drops out.
     params = "M = { value = 1.0, positive = true }\nQ = { value = 0.5, positive = true }"
     text = with_field(static_spec("1 - 2*M/r + Q**2/r**2", parameters=params, where="r > 2*M"), coupling="0.3")
@@ -50,7 +50,7 @@ def test_reissner_nordstrom_potential_with_coupling(write_spec):
 
 
 def test_schwarzschild_de_sitter_potential(write_spec):
-    # Source: REFERENCES.md (derived; computed independently with sympy): f = 1 - 2M/r - Lambda r^2/3 gives
+    # Source: derived and computed independently with sympy: f = 1 - 2M/r - Lambda r^2/3 gives
     # V = f[l(l+1)/r^2 + 2M/r^3 - 2 Lambda/3 + mu^2 + 4 xi Lambda], R = 4 Lambda.
     params = ("M = { value = 1.0, positive = true }\nLam = { value = 0.01, positive = true }\n"
               "mu = { value = 0.2, positive = true }\nxi = { value = 0.1, positive = true }")
@@ -106,7 +106,7 @@ line_element = "-(1 - m/r**2)*dt**2 + dr**2/(1 - m/r**2) + r**2*(dchi**2 + sin(c
 
 
 @pytest.mark.parametrize("f, where, expected", [
-    # Source: REFERENCES.md "Tortoise coordinates" (textbook); compared up to an additive constant.
+    # Source: textbook (e.g. Carroll 2004 ch. 5 for Schwarzschild; the others by partial fractions, derived); compared up to an additive constant.
     ("1 - 2*M/r", "r > 2*M", lambda r, M, Q, L: r + 2 * M * sp.log(r / (2 * M) - 1)),
     ("1 - 2*M/r + Q**2/r**2", "r > 2*M", lambda r, M, Q, L: (
         r + (M + sp.sqrt(M ** 2 - Q ** 2)) ** 2 / (2 * sp.sqrt(M ** 2 - Q ** 2)) * sp.log(r - M - sp.sqrt(M ** 2 - Q ** 2))

@@ -1,4 +1,4 @@
-"""Black-hole transmission (greybody factors) against published limits (REFERENCES.md "Scattering")."""
+"""Black-hole transmission (greybody factors) against published limits (sources named beside each check)."""
 
 import os
 
@@ -37,7 +37,7 @@ def test_low_frequency_absorption_cross_section(schwarzschild):
 
 
 def test_low_frequency_l1(schwarzschild):
-    # Source: Page (1976); Starobinsky & Churilov (1973) (REFERENCES.md; formula from memory):
+    # Source: Page, Phys. Rev. D 13, 198 (1976); Starobinsky & Churilov (1973) (formula from memory):
     # |T_1|^2 ~ (16/9) M^4 omega^4 (1 + 16 M^2 omega^2) at low frequency.
     omega = np.array([1e-3])
     result = transmission(schwarzschild, 1, omega)
@@ -61,7 +61,7 @@ def test_high_frequency_absorption_cross_section(schwarzschild):
 
 @pytest.mark.slow
 def test_hawking_emission_rate_of_a_massless_scalar(schwarzschild):
-    # REFERENCES.md "Scattering and spectra": dE/dt = 7.44e-5/M^2 for a massless scalar (from memory there;
+    # dE/dt = 7.44e-5/M^2 for a massless scalar (from memory;
     # recomputed independently as 7.4387e-5), about 90% from l = 0 (Page, Phys. Rev. D 13, 198 (1976)):
     # dE/dt = sum_l (2l+1) int domega/(2 pi) omega |T_l|^2/(e^{8 pi M omega} - 1).
     x, w = np.polynomial.legendre.leggauss(16)

@@ -1,4 +1,4 @@
-"""Israel junction conditions against published thin-shell results (docs/conventions.md section 3, REFERENCES.md)."""
+"""Israel junction conditions against published thin-shell results (docs/conventions.md section 3; sources named beside each check)."""
 
 import json
 
@@ -18,7 +18,7 @@ DUST = "M = { value = 1.0, positive = true }\nR = { value = 4.0, positive = true
 def test_flat_inside_schwarzschild_outside(write_spec):
     # Source: W. Israel, Nuovo Cimento B 44, 1 (1966); E. Poisson, A Relativist's Toolkit (2004), ch. 3:
     # sigma = (1 - sqrt(1-2M/R))/(4 pi R), p = ((1-M/R)/sqrt(1-2M/R) - 1)/(8 pi R), M = m - m^2/(2R) with
-    # m = 4 pi R^2 sigma; at M = 1, R = 4: sigma = 0.00582692544653213, p = 0.000603397886722628 (REFERENCES.md).
+    # m = 4 pi R^2 sigma; at M = 1, R = 4: sigma = 0.00582692544653213, p = 0.000603397886722628 (computed independently).
     st = derive.load(write_spec(two_region_spec("1", "1 - 2*M/r", DUST)))
     shell = st.shells[0]
     M, R = st.symbol("M"), st.symbol("R")
@@ -40,7 +40,7 @@ def test_flat_inside_schwarzschild_outside(write_spec):
 
 
 def test_charged_shell_reissner_nordstrom_outside(write_spec):
-    # Source: REFERENCES.md (from the general static formula; computed independently with sympy):
+    # Source: the general static thin-shell formula (Poisson 2004 ch. 3), computed independently with sympy:
     # at M = 1, Q = 1/2, R = 4: sigma = 0.00560881255683711, p = 0.000442310841956401;
     # M = m - m^2/(2R) + Q^2/(2R).
     params = DUST + "\nQ = { value = 0.5, positive = true }"
@@ -55,7 +55,7 @@ def test_charged_shell_reissner_nordstrom_outside(write_spec):
 
 
 def test_de_sitter_bubble_inside_schwarzschild(write_spec):
-    # Source: Poisson (2004) ch. 3, static shell between -f_- and -f_+ (f = h each side), REFERENCES.md:
+    # Source: Poisson (2004) ch. 3, static shell between -f_- and -f_+ (f = h each side):
     # sigma = (sqrt(f_-) - sqrt(f_+))/(4 pi R), p = (1/(8 pi)) [f'/(2 sqrt f) + sqrt f / R]_-^+.
     params = DUST + "\nL = { value = 10.0, positive = true }"
     st = derive.load(write_spec(two_region_spec("1 - r**2/L**2", "1 - 2*M/r", params)))
@@ -74,7 +74,7 @@ def test_de_sitter_bubble_inside_schwarzschild(write_spec):
 
 
 def test_ricci_delta_of_the_dust_shell(write_spec):
-    # Source: REFERENCES.md (computed independently): for the flat/Schwarzschild shell at M = 1, R = 4 the
+    # Source: computed independently: for the flat/Schwarzschild shell at M = 1, R = 4 the
     # integral of R across the shell is -2[K] = 0.116116523516816 (docs/conventions.md section 3).
     st = derive.load(write_spec(two_region_spec("1", "1 - 2*M/r", DUST)))
     value = st.shells[0].ricci_delta.subs({st.symbol("M"): 1, st.symbol("R"): 4})

@@ -1,4 +1,4 @@
-"""Modes and states outside a horizon (docs/conventions.md sections 4 and 7; REFERENCES.md "Scattering")."""
+"""Modes and states outside a horizon (docs/conventions.md sections 4 and 7; sources named beside each check)."""
 
 import os
 
