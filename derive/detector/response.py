@@ -53,40 +53,50 @@ SHARE = 1e-3        # the share of the tolerance (relative to the flat response)
 
 
 def cutoff(gaps, switching: Switching, thermal: bool = False, threshold: float = 0.0,
-           tolerance: float | None = None, dimension: int = 4):
+           tolerance: float | None = None, dimension: int = 4, temperature: float | None = None,
+           vacuum_part_only: bool = False):
     """(upper, tail): where the frequency integral may stop, and a bound on what is left out, per gap.
 
     Without a tolerance, or for a switching whose |chi_hat|^2 is not in closed form, the switching's own reach
     (its weight below e^-100 of the peak, or its tail bound) is used.  For the Gaussian the cut-off follows the
-    tolerance: the smallest K with int_K^inf MARGIN c_D nu^(D-3) |chi_hat(Omega + nu)|^2 dnu (and the same with
-    Omega - nu in a thermal state) at most SHARE x tolerance x the flat response F_flat(Omega) for every gap,
-    c_D nu^(D-3) the flat density (a factor MARGIN of margin: at high frequency every static density tends to the
-    local flat one); that bound is returned and counted in the response's error, and the response fails its
-    tolerance honestly if F turns out far below F_flat."""
+    tolerance: the smallest K with int_K^inf MARGIN c_D nu^(D-3) w(Omega, nu) dnu at most SHARE x tolerance x
+    int_0^inf c_D nu^(D-3) w(Omega, nu) dnu (the flat response) for every gap, with c_D nu^(D-3) the flat density
+    (a factor MARGIN of margin: at high frequency every static density tends to the local flat one) and
+    w = |chi_hat(Omega + nu)|^2 in a vacuum; in a thermal state at the local ``temperature`` (n = 1/(e^{nu/T} - 1))
+    w = (1 + n)|chi_hat(Omega + nu)|^2 + n |chi_hat(Omega - nu)|^2, and K is the larger of the two forms so that
+    every state outside a horizon shares the same frequencies (and one solve); without a temperature n <= 1.
+    The tail of the state's own form (``vacuum_part_only``: the Boulware state, no negative part) at K is
+    returned and counted in the response's error; the response fails its tolerance honestly if F turns out far
+    below the flat response."""
     gaps = np.asarray(gaps, dtype=float)
     upper = max(0.0, -float(np.min(gaps))) + switching.reach
     if thermal:
         upper = max(upper, float(np.max(gaps)) + switching.reach)
-    none = np.zeros(len(gaps))
     if tolerance is None or type(switching) is not Switching:
-        return upper, none
+        return upper, np.zeros(len(gaps))
     from derive.solve.centre import sphere_area
 
     c = sphere_area(dimension - 2) / (2 * (2 * np.pi) ** (dimension - 1))
     nu = np.linspace(threshold, upper, 8001)
     flat = c * np.maximum(nu, 0.0) ** (dimension - 3)
-    weights = switching.power(gaps[:, None] + nu[None, :])
+    plus = switching.power(gaps[:, None] + nu[None, :])
+    forms = [plus]
     if thermal:
-        weights = weights + switching.power(gaps[:, None] - nu[None, :])
-    integrand = flat[None, :] * weights
-    pieces = (integrand[:, 1:] + integrand[:, :-1]) / 2 * np.diff(nu)[None, :]
-    beyond = np.concatenate([np.cumsum(pieces[:, ::-1], axis=1)[:, ::-1], np.zeros((len(gaps), 1))], axis=1)
-    total = beyond[:, 0]
-    # the trapezoid overestimates the convex tails of a Gaussian window, and one grid step of margin is added
-    fits = np.all(MARGIN * beyond <= SHARE * tolerance * total[:, None], axis=0)
-    index = int(np.argmax(fits)) if np.any(fits) else len(nu) - 1
-    index = min(index + 1, len(nu) - 1)
-    return float(nu[index]), MARGIN * beyond[:, max(index - 1, 0)]
+        minus = switching.power(gaps[:, None] - nu[None, :])
+        with np.errstate(over="ignore", divide="ignore"):
+            n = np.ones_like(nu) if temperature is None else 1.0 / np.expm1(np.maximum(nu, 1e-300) / temperature)
+        forms.append(plus * (1 + n)[None, :] + minus * n[None, :])
+    index, tails = 0, []
+    for weights in forms:
+        integrand = flat[None, :] * weights
+        pieces = (integrand[:, 1:] + integrand[:, :-1]) / 2 * np.diff(nu)[None, :]
+        beyond = np.concatenate([np.cumsum(pieces[:, ::-1], axis=1)[:, ::-1], np.zeros((len(gaps), 1))], axis=1)
+        fits = np.all(MARGIN * beyond <= SHARE * tolerance * beyond[:, :1], axis=0)
+        # the trapezoid overestimates the convex tails of a Gaussian window; one grid step of margin is added
+        index = max(index, min(int(np.argmax(fits)) + 1 if np.any(fits) else len(nu) - 1, len(nu) - 1))
+        tails.append(beyond)
+    own = tails[0] if (vacuum_part_only or not thermal) else tails[-1]
+    return float(nu[index]), MARGIN * own[:, max(index - 1, 0)]
 
 
 def frequency_nodes(gaps, switching: Switching, thermal: bool = False, threshold: float = 0.0, upper=None):
@@ -101,7 +111,8 @@ def frequency_nodes(gaps, switching: Switching, thermal: bool = False, threshold
 
 
 def response(gaps, switching: Switching, density_at, thermal: bool = False, threshold: float = 0.0,
-             dimension: int = 4, tolerance: float | None = None) -> Response:
+             dimension: int = 4, tolerance: float | None = None, temperature: float | None = None,
+             vacuum_part_only: bool = False) -> Response:
     """F(Omega) for every gap.
 
     Parameters
@@ -112,7 +123,8 @@ def response(gaps, switching: Switching, density_at, thermal: bool = False, thre
         state (``thermal=True``), (S(nu), error, S(-nu), error of S(-nu))
     """
     gaps = np.asarray(gaps, dtype=float)
-    upper, cut_tail = cutoff(gaps, switching, thermal, threshold, tolerance, dimension)
+    upper, cut_tail = cutoff(gaps, switching, thermal, threshold, tolerance, dimension, temperature,
+                             vacuum_part_only)
     (nu_c, w_c), (nu_f, w_f) = frequency_nodes(gaps, switching, thermal, threshold, upper)
     nodes = np.concatenate([nu_c, nu_f])
     parts = density_at(nodes)

@@ -171,7 +171,11 @@ def detector_response(problem, detector, tolerance: float = 1e-10, gaps=None, st
     from derive.solve.centre import continuum_threshold
 
     threshold = 0.0 if has_horizon(problem) else continuum_threshold(problem) / sqrt_f0
-    return response(gaps, switching, density_at, thermal, threshold, D, tolerance), switching, sqrt_f0
+    temperature = None
+    if has_horizon(problem):     # the local (Tolman) temperature, in the detector's proper time
+        temperature = problem.regions[0].surface_gravity / (2 * np.pi) / sqrt_f0
+    return (response(gaps, switching, density_at, thermal, threshold, D, tolerance, temperature,
+                     vacuum_part_only=state == "boulware"), switching, sqrt_f0)
 
 
 def study(problem, detector, reference_problem=None, tolerance: float = 1e-10, gaps=None, progress=None) -> dict:
