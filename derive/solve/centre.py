@@ -207,7 +207,7 @@ def _run(problem, omegas, steps):
     for region in problem.regions:
         lower = max(region.lower, start)
         if region.upper is None:
-            pieces = [(a, b, count, True) for a, b, count in
+            pieces = [(a, b, count, True) for a, b, count, _ in
                       outer_pieces(max(lower, 1e-12), far, steps, problem.length_scale)]
         else:
             pieces = [(lower, region.upper, steps, False)]

@@ -85,7 +85,7 @@ def _batches(problem, omegas) -> np.ndarray:
     return labels
 
 
-def mode_term(problem, l, omegas, pair, cos_gamma, tolerance, floor=None, steps=64, max_steps=16384):
+def mode_term(problem, l, omegas, pair, cos_gamma, tolerance, floor=None, steps=32, max_steps=16384):
     """The l-terms of the in and up parts between the radii ``pair`` (see :func:`_values`), their sizes and
     errors, refined by grid doubling until each is within the tolerance of its size or of ``floor`` (the size of
     the sum so far), whichever is larger: (in, up, size_in, size_up, error_in, error_up).

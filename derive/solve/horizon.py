@@ -189,12 +189,13 @@ def _pieces(problem, l, omegas, steps, start, far_factor, fixed=None):
                            max(4, int(round(steps * efolds / 9.2)))))
             lower = middle
         if region.upper is None:
-            for a, b, n in outer_pieces(lower, far, steps, problem.length_scale):
-                # the far piece: a quarter of the base count, or that per decade times the density on a
-                # Coulomb-like tail (see _far_density)
-                share = max(1.0, np.log10(b / a)) * density if density > 0 else 1.0
-                pieces.append((index, 0.0, a, b, "geometric",
-                               n if a == lower else max(4, int(round(steps * share / 4)))))
+            for a, b, n, is_far in outer_pieces(lower, far, steps, problem.length_scale):
+                # the far piece: the base count (a quarter of it made the transmission converge erratically,
+                # its error's coefficients oscillating with omega h on the long steps: Richardson's agreement
+                # test then forced four to eight times the steps elsewhere), or a quarter per decade times the
+                # density on a Coulomb-like tail (see _far_density)
+                share = max(1.0, np.log10(b / a)) * density / 4 if density > 0 else 1.0
+                pieces.append((index, 0.0, a, b, "geometric", max(4, int(round(steps * share))) if is_far else n))
             if far_factor > 1:
                 pieces.append((index, 0.0, far, fixed.farther, "geometric",
                                max(4, fixed.farther_steps * steps // BASE_STEPS)))

@@ -103,7 +103,7 @@ def _pieces(problem, l, radii, steps, lowest, highest):
             spans += _first_spans(r_s, top, steps)
             lower = top
         if region.upper is None:
-            spans += [(a, b, True, n) for a, b, n in outer_pieces(lower, far, steps, problem.length_scale)]
+            spans += [(a, b, True, n) for a, b, n, _ in outer_pieces(lower, far, steps, problem.length_scale)]
         elif index > 0:
             spans.append((lower, region.upper, False, steps))
         for a, b, geometric, n in spans:
