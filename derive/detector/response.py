@@ -4,10 +4,11 @@ F(Omega) = int_0^inf dnu S(nu) |chi_hat(Omega + nu)|^2 in the vacuum (positive f
 S(nu) = sqrt(f(r0)) * density(omega = sqrt(f(r0)) nu) is the spectral density per unit proper frequency and
 chi_hat(k) = int chi(tau) e^{-i k tau} dtau.  The transition probability at leading order is lambda^2 F.
 
-Quadrature: Gauss-Legendre panels of width 1/(2 sigma) over [0, K], the first graded toward nu = 0; the same
-integral on panels of half the width gives the quadrature error, and the density's own error is carried through
-the same quadrature.  K follows the tolerance for the Gaussian (see :func:`cutoff`; at most max(0, -Omega) +
-10/sigma, where the weight is below e^-100) and is the switching's reach for the other shapes.
+Quadrature: Gauss-Legendre panels of width 1/(4 sigma) over [0, K], the first graded toward nu = 0; the
+polynomial through the nodes of each pair of neighbouring panels gives a coarser rule on the same nodes, whose
+difference is the quadrature error (see :func:`_panels`), and the density's own error is carried through the
+same weights.  K follows the tolerance for the Gaussian (see :func:`cutoff`; at most max(0, -Omega) + 10/sigma,
+where the weight is below e^-100) and is the switching's reach for the other shapes.
 """
 
 from __future__ import annotations
@@ -34,18 +35,41 @@ class Response:
 
 
 def _panels(upper: float, width: float, start: float = 0.0):
-    """Panels of the given width from ``start`` (0, or the continuum threshold of a massive field), the first
-    one graded geometrically toward it (the density can be non-analytic there: nu^3 log nu from a long-range
-    exterior, sqrt(nu - mu) at a threshold, which would slow Gauss-Legendre down)."""
+    """The quadrature of the frequency integral on [start, upper]: panels of half the given width from ``start``
+    (0, or the continuum threshold of a massive field), the first one graded geometrically toward it (the density
+    can be non-analytic there: nu^3 log nu from a long-range exterior, sqrt(nu - mu) at a threshold, which would
+    slow Gauss-Legendre down), an even number of them, with 12 Gauss-Legendre nodes each.
+
+    Returns (nodes, weights, coarse weights): the coarse rule integrates each pair of neighbouring panels with
+    the polynomial through all 24 of their nodes (exact to degree 23 on the pair, as the Gauss rule is on each
+    half), so that the two rules share every node and their difference estimates the error of the coarse one
+    (a conservative bound for the fine one) at no extra density evaluation."""
+    half = width / 2
     upper = max(upper, start + width)
-    count = max(int(np.ceil((upper - start) / width)), 1)
-    edges = np.linspace(start, upper, count + 1)
+    count = max(int(np.ceil((upper - start) / half)), 2)
+    count += count % 2                       # with the 12 graded panels: an even number in all
+    edges = start + half * np.arange(count + 1)
     graded = start + (edges[1] - start) * 2.0 ** -np.arange(12, 0, -1)
     edges = np.concatenate([[start], graded, edges[1:]])
     a, b = edges[:-1], edges[1:]
     nodes = ((a + b)[:, None] + (b - a)[:, None] * NODES[None, :]) / 2
     weights = ((b - a)[:, None] / 2) * WEIGHTS[None, :]
-    return nodes.ravel(), weights.ravel()
+    coarse = np.empty_like(weights)
+    for i in range(0, len(a), 2):
+        lo, hi = a[i], b[i + 1]
+        t = (2 * nodes[i:i + 2].ravel() - (lo + hi)) / (hi - lo)
+        vander = np.polynomial.legendre.legvander(t, 2 * PANEL_NODES - 1).T
+        moments = np.zeros(2 * PANEL_NODES)
+        moments[0] = 2.0
+        coarse[i:i + 2] = (np.linalg.solve(vander, moments) * (hi - lo) / 2).reshape(2, PANEL_NODES)
+    # at the start the integrand may be non-analytic (sqrt(nu - mu) at a threshold): there a rule through the
+    # same nodes would share the fine rule's error, so the first pair's coarse rule is Gauss-Legendre on the
+    # pair itself (12 more nodes, weight 0 in the fine rule), whose error there is 2^(3/2) times the fine one's
+    lo, hi = a[0], b[1]
+    extra = ((lo + hi) + (hi - lo) * NODES) / 2
+    coarse[:2] = 0.0
+    return (np.concatenate([nodes.ravel(), extra]), np.concatenate([weights.ravel(), np.zeros(PANEL_NODES)]),
+            np.concatenate([coarse.ravel(), (hi - lo) / 2 * WEIGHTS]))
 
 
 MARGIN = 4.0        # the density bound used for the part beyond the cut-off: MARGIN times the local flat density
@@ -100,14 +124,13 @@ def cutoff(gaps, switching: Switching, thermal: bool = False, threshold: float =
 
 
 def frequency_nodes(gaps, switching: Switching, thermal: bool = False, threshold: float = 0.0, upper=None):
-    """The proper frequencies nu > threshold at which the density is needed (both quadrature levels), up to
-    ``upper`` (default: the switching's reach beyond the largest -Omega).  A thermal state also needs its
-    negative-frequency part, weighted by |chi_hat(Omega - nu)|^2, up to the largest gap."""
+    """The proper frequencies nu > threshold at which the density is needed, with the fine and coarse weights of
+    the frequency integral (:func:`_panels`), up to ``upper`` (default: the switching's reach beyond the largest
+    -Omega).  A thermal state also needs its negative-frequency part, weighted by |chi_hat(Omega - nu)|^2, up to
+    the largest gap."""
     if upper is None:
         upper = cutoff(gaps, switching, thermal, threshold)[0]
-    coarse = _panels(upper, switching.panel_width, threshold)
-    fine = _panels(upper, switching.panel_width / 2, threshold)
-    return coarse, fine
+    return _panels(upper, switching.panel_width, threshold)
 
 
 def response(gaps, switching: Switching, density_at, thermal: bool = False, threshold: float = 0.0,
@@ -125,19 +148,16 @@ def response(gaps, switching: Switching, density_at, thermal: bool = False, thre
     gaps = np.asarray(gaps, dtype=float)
     upper, cut_tail = cutoff(gaps, switching, thermal, threshold, tolerance, dimension, temperature,
                              vacuum_part_only)
-    (nu_c, w_c), (nu_f, w_f) = frequency_nodes(gaps, switching, thermal, threshold, upper)
-    nodes = np.concatenate([nu_c, nu_f])
-    parts = density_at(nodes)
-    split = len(nu_c)
+    nu, w_f, w_c = frequency_nodes(gaps, switching, thermal, threshold, upper)
+    parts = density_at(nu)
     F_c = F_f = density_error = size = mass = 0.0
     for sign, S, S_err in ((1.0, parts[0], parts[1]),) + (((-1.0, parts[2], parts[3]),) if thermal else ()):
-        weight_c = switching.power(gaps[:, None] + sign * nu_c[None, :])
-        weight_f = switching.power(gaps[:, None] + sign * nu_f[None, :])
-        F_c = F_c + weight_c @ (w_c * S[:split])
-        F_f = F_f + weight_f @ (w_f * S[split:])
-        density_error = density_error + weight_f @ (w_f * S_err[split:])
-        size = size + np.abs(weight_f) @ (w_f * np.abs(S[split:]))
-        mass = mass + float(w_f @ np.abs(S[split:]))
+        weight = switching.power(gaps[:, None] + sign * nu[None, :])
+        F_c = F_c + weight @ (w_c * S)
+        F_f = F_f + weight @ (w_f * S)
+        density_error = density_error + weight @ (w_f * S_err)
+        size = size + np.abs(weight) @ (w_f * np.abs(S))
+        mass = mass + float(w_f @ np.abs(S))
     # the transform's own error (absolute, on |chi_hat|^2) and the part of the integral beyond the reach
     quadrature_error = (np.abs(F_f - F_c) + switching.power_error * mass + switching.tail_error(gaps, dimension)
                         + cut_tail)

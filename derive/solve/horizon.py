@@ -189,7 +189,7 @@ def _pieces(problem, l, omegas, steps, start, far_factor, fixed=None):
                            max(4, int(round(steps * efolds / 9.2)))))
             lower = middle
         if region.upper is None:
-            for a, b, n, is_far in outer_pieces(lower, far, steps, problem.length_scale):
+            for a, b, n, is_far in outer_pieces(lower, far, steps, problem.length_scale, decade=True):
                 # the far piece: the base count (a quarter of it made the transmission converge erratically,
                 # its error's coefficients oscillating with omega h on the long steps: Richardson's agreement
                 # test then forced four to eight times the steps elsewhere), or a quarter per decade times the

@@ -100,7 +100,7 @@ def _pieces(problem, l, radii, steps, lowest, highest):
         lower = region.lower
         if index == 0:   # from the series start: geometric in r when it starts off the centre (l > 0)
             top = region.upper if region.upper is not None else 2 * max(radii[-1], problem.length_scale)
-            spans += _first_spans(r_s, top, steps)
+            spans += _first_spans(region, l, r_s, top, steps, highest)
             lower = top
         if region.upper is None:
             spans += [(a, b, True, n) for a, b, n, _ in outer_pieces(lower, far, steps, problem.length_scale)]
@@ -121,20 +121,25 @@ def _pieces(problem, l, radii, steps, lowest, highest):
     return pieces, at, r_s, far
 
 
-def _first_spans(r_s, top, steps):
+def _first_spans(region, l, r_s, top, steps, highest):
     """The first region's pieces from the series start r_s to ``top``: uniform from the centre (l = 0 in 3+1);
-    otherwise geometric in three parts, the top decade with ``steps`` steps and the two below it (everything
-    deeper) with a quarter each.  The error of a geometric step in the centrifugal and turning-point zone grows
-    like l^3 (d ln r)^4 per decade there, and the waves live in the top decade, while the deep part is a
-    power law the steps follow closely: one geometric piece from r_s spent most of its steps where nothing
-    happens (measured: 25-70 times the error of this layout at the same cost, for l = 3 to 30)."""
+    otherwise geometric in two parts split at a quarter of the innermost turning point r_t (where V = omega^2 at
+    the highest frequency of the set): below it the solution is a deep power law that the steps follow closely
+    (a quarter of the count), above it lie every frequency's turning point and its waves (the count times the
+    decades spanned).  The error of a frozen-potential step peaks where k^2 = omega^2 - V crosses zero;
+    measured: one geometric piece from r_s spent most of its steps where nothing happens (25-70 times the error
+    at equal cost for l = 3 to 30), and fixed decades starved the turning points of the lower l."""
     if r_s == 0.0:
         return [(0.0, top, False, steps)]
-    quarter = max(4, steps // 4)
-    cuts = [c for c in (top / 100, top / 10) if c > r_s]
-    edges = [r_s] + cuts + [top]
-    counts = [quarter] * (len(edges) - 2) + [steps]
-    return [(a, b, True, n) for a, b, n in zip(edges[:-1], edges[1:], counts)]
+    radii = np.geomspace(r_s, top, 400)
+    V = np.broadcast_to(np.asarray(region.potential(radii, l, 0.0), dtype=float), radii.shape)
+    below = np.nonzero(V <= highest ** 2)[0]
+    turning = radii[below[0]] if len(below) else top
+    cut = turning / 4
+    full = int(round(steps * max(1.0, np.log10(top / max(cut, r_s)))))
+    if cut <= r_s * 10:
+        return [(r_s, top, True, full)]
+    return [(r_s, cut, True, max(4, steps // 4)), (cut, top, True, full)]
 
 
 def _log_u_at(problem, l, omegas, radii, steps, series, fixed):
@@ -220,13 +225,26 @@ def _term(problem, l, omegas, pair, cos_gamma, series, tolerance, floor, fixed, 
 
     ``tolerance`` may be an array (one per frequency); ``floor`` is the size of the sum so far; ``fixed`` =
     (lowest, highest) frequency of the whole set, so that the grids do not depend on which frequencies are still
-    summing.  Returns also the step count at which most frequencies converged (the next l starts near it)."""
+    summing; ``steps`` the first step count, one for all or one per frequency (32 times a power of two: the
+    frequencies that start alike are refined together).  Returns also the step count at which each frequency
+    converged (its next l starts near it)."""
     n = len(omegas)
+    starts = np.broadcast_to(np.asarray(steps, dtype=int), (n,))
     tolerance = np.broadcast_to(np.asarray(tolerance, dtype=float), (n,))
+    floor = np.broadcast_to(np.asarray(floor, dtype=float), (n,))
+    if len(np.unique(starts)) > 1:
+        out = tuple(np.zeros(n) for _ in range(3)) + (np.zeros(n, dtype=int),)
+        for start in np.unique(starts):
+            index = np.nonzero(starts == start)[0]
+            part = _term(problem, l, omegas[index], pair, cos_gamma, series, tolerance[index], floor[index], fixed,
+                         int(start), max_steps)
+            for whole, piece in zip(out, part):
+                whole[index] = piece
+        return out
+    count = int(starts[0]) if n else 32
     value, size, error = np.zeros(n), np.zeros(n), np.zeros(n)
+    converged = np.full(n, count)
     active = np.arange(n)
-    count = steps
-    converged_at = []
     values = lambda w, count: _term_values(problem, l, w, pair, cos_gamma, count, series, fixed)
     coarse, _ = values(omegas, count)
     fine, _ = values(omegas, 2 * count)
@@ -246,12 +264,11 @@ def _term(problem, l, omegas, pair, cos_gamma, series, tolerance, floor, fixed, 
         error[index] = change[done] + rounding_floor(4 * count) * size[index]
         bad = ~np.isfinite(value[index] + error[index])
         error[index[bad]] = np.inf
-        converged_at += [count] * int(np.sum(done))
+        converged[index] = count
         active = active[~done]
         coarse, fine = fine[~done], finest[~done]
         count *= 2
-    # the median count itself (a power of two times the start), never the mean of two: the grids must stay nested
-    return value, size, error, int(sorted(converged_at)[len(converged_at) // 2]) if converged_at else steps
+    return value, size, error, converged
 
 
 def _prepare(problem, omegas, series):
@@ -297,8 +314,8 @@ def density_off_centre(problem, omegas, r0: float, tolerance: float = 1e-10, ser
 
     Each frequency sums its own l: its reach omega r0* (the tortoise distance from the centre) sets how many
     terms count, its terms are refined to tolerance/(4 + reach) of its sum, and it stops after three quiet terms
-    beyond its reach, while the others go on.  The step count of the next l starts from where most frequencies
-    of this l converged (nested grids: a start that is high only means finer levels are compared)."""
+    beyond its reach, while the others go on.  Each frequency's next l starts at half the step count where its
+    last term converged (nested grids: a start that is high only means finer levels are compared)."""
     if not r0 > 0:
         raise Unsupported("the point must lie off the centre (r0 > 0); at r0 = 0 use the centre density")
     series, threshold = _prepare(problem, omegas, series)
@@ -343,13 +360,15 @@ def _l_sum(problem, omegas, pair, cos_gamma, tolerance, series, fixed, distance,
     quiet = np.zeros(n, dtype=int)
     reach = omegas * distance
     summing = np.arange(n)
-    steps = 32
+    steps = np.full(n, 32)
     for l in range(MAX_L + 1):
         # each term to a share of the tolerance (of itself or of the sum so far): about reach + 1 terms count
         term, term_size, term_error, converged = _term(problem, l, omegas[summing], pair, cos_gamma, series,
                                                        tolerance / (4 + reach[summing]), size[summing], fixed,
-                                                       steps=steps)
-        steps = max(32, converged // 2)     # 32 times a power of two: nested grids
+                                                       steps=steps[summing])
+        # each frequency's next l starts at half the count where this one converged: 32 times a power of two
+        # (never a mean of two counts: the grids of a refinement must stay nested)
+        steps[summing] = np.maximum(32, converged // 2)
         total[summing] += term
         size[summing] += term_size
         error[summing] += term_error

@@ -302,19 +302,20 @@ def _propagate(region, l, omegas, lower, upper, count, geometric):
     return np.concatenate(results, axis=0), np.concatenate(scales, axis=0)
 
 
-def outer_pieces(lower: float, far: float, steps: int, scale: float) -> list[tuple[float, float, int, bool]]:
-    """Split [lower, far] of an outermost region into a near piece (up to 10^3 length scales: its first decade
-    with ``steps`` steps, the rest with half) and a far piece (a quarter as many steps: the potential there is
-    small and smooth), all geometric, so that moving the far radius leaves the near grid unchanged.  Each piece is
-    (a, b, steps, whether it is the far piece)."""
+def outer_pieces(lower: float, far: float, steps: int, scale: float,
+                 decade: bool = False) -> list[tuple[float, float, int, bool]]:
+    """Split [lower, far] of an outermost region into a near piece (up to 10^3 length scales, ``steps`` steps;
+    with ``decade`` its first decade with ``steps``, the rest with half) and a far piece (a quarter as many
+    steps: the potential there is small and smooth), all geometric, so that moving the far radius leaves the
+    near grid unchanged.  Each piece is (a, b, steps, whether it is the far piece)."""
     middle = min(far, max(lower * 10.0, 1e3 * scale))
-    decade = min(middle, lower * 10.0)
-    # the decade above the region's start holds the barrier and the turning points of the low l: it gets the full
-    # count, the rest of the near piece half of it (measured outside a horizon: 4-50 times less error for l = 3-8
-    # at a fifth more steps)
-    pieces = [(lower, decade, steps, False)]
-    if middle > decade:
-        pieces.append((decade, middle, max(steps // 2, 4), False))
+    # with ``decade`` (a region that starts at a horizon's neighbourhood), the decade above the start holds the
+    # barrier and the turning points of the low l: it gets the full count, the rest of the near piece half of it
+    # (measured outside a horizon: 4-50 times less error for l = 3-8 at a fifth more steps)
+    top = min(middle, lower * 10.0) if decade else middle
+    pieces = [(lower, top, steps, False)]
+    if middle > top:
+        pieces.append((top, middle, max(steps // 2, 4), False))
     if far > middle:
         pieces.append((middle, far, max(steps // 4, 16), True))
     return pieces

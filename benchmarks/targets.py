@@ -1,0 +1,75 @@
+"""Benchmark: the engine's speed targets in one run, each printed beside its target.
+
+* A detector at r = R/2 inside the dust shell of worked/dust_shell (Gaussian width 0.1, gaps -5, 0, 5): the whole
+  response at 1e-8 (target: under 10 s) and at 1e-10 (target: under 30 s), and the same detector at the centre
+  of the same spec (target: off the centre at most 5 times the centred cost).
+* The Schwarzschild example's response in its three states (worked/schwarzschild; target: under 10 s).
+
+Kernels are built before each clock starts; the l-sums use both cores.  Nothing is asserted: the script prints.
+
+    python benchmarks/targets.py [--skip-slow]
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+import tempfile
+import time
+
+import numpy as np
+
+HERE = os.path.dirname(os.path.abspath(__file__))
+ROOT = os.path.dirname(HERE)
+sys.path.insert(0, ROOT)
+
+
+def _detector_at(position: str):
+    import derive
+
+    text = open(os.path.join(ROOT, "worked", "dust_shell", "spec.toml"), encoding="utf-8").read()
+    text = text.replace('at = "r = 0"', f'at = "{position}"').replace('width = "0.2"', 'width = "0.1"')
+    with tempfile.NamedTemporaryFile("w", suffix=".toml", delete=False) as handle:
+        handle.write(text)
+    st = derive.load(handle.name)
+    st.numeric_problem  # noqa: B018 (kernels built before the clock starts)
+    return st
+
+
+def _timed(st, tolerance):
+    start = time.perf_counter()
+    result = st.response(gaps=[-5.0, 0.0, 5.0], tolerance=tolerance)
+    seconds = time.perf_counter() - start
+    worst = float(np.max(result.error / np.abs(result.response)))
+    return seconds, result.status, worst
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--skip-slow", action="store_true", help="leave out the 1e-10 off-centre response")
+    args = parser.parse_args()
+    import derive
+
+    off, centre = _detector_at("r = R/2"), _detector_at("r = 0")
+    print("dust shell, Gaussian width 0.1, gaps -5, 0, 5")
+    for tolerance, target in ((1e-8, 10.0), (1e-10, 30.0)):
+        if args.skip_slow and tolerance < 1e-8:
+            continue
+        t_off, status, worst = _timed(off, tolerance)
+        t_centre, _, _ = _timed(centre, tolerance)
+        print(f"  tolerance {tolerance:g}: r = R/2 {t_off:7.1f} s (target {target:g} s: "
+              f"{'met' if t_off <= target else 'not met'}; {status}, largest relative error {worst:.1e}); "
+              f"centre {t_centre:6.1f} s; ratio {t_off / t_centre:5.1f}x (target at most 5x: "
+              f"{'met' if t_off <= 5 * t_centre else 'not met'})")
+    st = derive.load(os.path.join(ROOT, "worked", "schwarzschild", "spec.toml"))
+    st.numeric_problem  # noqa: B018
+    start = time.perf_counter()
+    result = st.response()
+    seconds = time.perf_counter() - start
+    print(f"Schwarzschild example, three states at tolerance {result.tolerance:g}: {seconds:.1f} s (target 10 s: "
+          f"{'met' if seconds <= 10 else 'not met'}; {result.status})")
+
+
+if __name__ == "__main__":
+    main()
