@@ -341,6 +341,15 @@ FLAG_CASES = [
      "--workers"),
     ("dask-no-scheduler", ["scan", "base.toml", "--vary", "M=0.1:0.2:2", "--out", "fresh", "--executor", "dask"],
      "--scheduler"),
+    ("between-coordinate", ["two-point", "base.toml", "--omega", "1", "--between", "q = 1", "r = 2"], "between[0]"),
+    ("between-negative", ["two-point", "base.toml", "--omega", "1", "--between", "r = 1", "r = -2"], "between[1]"),
+    ("between-complex", ["two-point", "base.toml", "--omega", "1", "--between", "r = 1, theta = I", "r = 2"],
+     "between[0]"),
+    ("between-code", ["two-point", "base.toml", "--omega", "1", "--between", "r = __import__('os').getcwd()",
+                      "r = 2"], "between[0]"),
+    ("between-nan", ["two-point", "base.toml", "--omega", "1", "--between", "r = nan", "r = 2"], "between[0]"),
+    ("between-huge", ["two-point", "base.toml", "--omega", "1", "--between", "r = 10**400", "r = 2"], "between[0]"),
+    ("two-point-omega", ["two-point", "base.toml", "--omega", "-1", "--between", "r = 1", "r = 2"], "--omega"),
 ]
 
 
@@ -354,6 +363,7 @@ OUT_COMMANDS = [
     ["run", "base.toml", "--out"],
     ["kernels", "base.toml", "--out"],
     ["spectrum", "base.toml", "--omega", "1", "--out"],
+    ["two-point", "base.toml", "--omega", "1", "--between", "r = 1", "r = 2", "--out"],
     ["response", "base.toml", "--out"],
     ["scan", "base.toml", "--vary", "M=0.1:0.2:2", "--out"],
     ["demo", "--out"],
