@@ -233,3 +233,20 @@ def test_discrete_spectra_are_refused_with_the_reason(tmp_path, capsys):
     code = main(["two-point", ads_spec(tmp_path), "--omega", "1", "--between", "r = 0.1", "r = 0.2"])
     assert code == 2
     assert "AdS boundary" in capsys.readouterr().err
+
+
+def test_flat_massive_two_point(write_spec):
+    # Flat 3+1, mass mu: the plane-wave mode sum with k dk = omega domega gives sin(k d)/(4 pi^2 d),
+    # k = sqrt(omega^2 - mu^2), above the mass and nothing below it (derived here as for the massless case;
+    # Birrell & Davies 1982 ch. 3 for the mode sum); the same point twice gives the density of the massive field.
+    st = derive.load(write_spec(FLAT.replace('mass = "0"', 'mass = "1/2"')))
+    omegas = np.array([0.3, 1.0, 3.0])
+    result = st.two_point(omegas, between=("r = 0.5", "r = 1.5, theta = 1"), tolerance=1e-9)
+    d = np.sqrt(0.25 + 2.25 - 1.5 * np.cos(1.0))
+    k = np.sqrt(np.maximum(omegas ** 2 - 0.25, 0.0))
+    exact = np.where(k > 0, np.sin(k * d) / (4 * np.pi ** 2 * d), 0.0)
+    assert result.ok, result.message
+    assert result.wightman["re"][0] == 0.0
+    np.testing.assert_allclose(result.wightman["re"], exact, rtol=0, atol=1e-9 * float(np.max(result.scale)))
+    both = st.two_point(omegas, between=("r = 0", "r = 0"), tolerance=1e-9)
+    np.testing.assert_allclose(both.wightman["re"], k / (4 * np.pi ** 2), rtol=1e-9, atol=1e-15)
