@@ -157,7 +157,7 @@ def _far_density(problem, omegas) -> float:
     return max(1.0, (1600 * C / (1e3 * problem.length_scale * k2)) ** (1 / 3))
 
 
-def _pieces(problem, l, omegas, steps, start, far_factor, fixed=None):
+def _pieces(problem, l, omegas, steps, start, far_factor, fixed=None, modes=True):
     """The march from the horizon to the far radius (with far_factor > 1, on to the layout's farther radius):
     (region index, shift, a, b, kind, steps) per piece, the
     start offset x0 and the far radius."""
@@ -190,11 +190,14 @@ def _pieces(problem, l, omegas, steps, start, far_factor, fixed=None):
             lower = middle
         if region.upper is None:
             for a, b, n, is_far in outer_pieces(lower, far, steps, problem.length_scale, decade=True):
-                # the far piece: the base count (a quarter of it made the transmission converge erratically,
-                # its error's coefficients oscillating with omega h on the long steps: Richardson's agreement
-                # test then forced four to eight times the steps elsewhere), or a quarter per decade times the
-                # density on a Coulomb-like tail (see _far_density)
-                share = max(1.0, np.log10(b / a)) * density / 4 if density > 0 else 1.0
+                # the far piece: for the modes at a point (l-sums, Richardson-extrapolated) the base count (a
+                # quarter of it made the transmission converge erratically, its error's coefficients oscillating
+                # with omega h on the long steps: Richardson's agreement test then forced four to eight times the
+                # steps elsewhere); for the transmission alone (compared between resolutions, not extrapolated) a
+                # quarter, which is cheaper there; or a quarter per decade times the density on a Coulomb-like
+                # tail (see _far_density)
+                plain = 1.0 if modes else 0.25
+                share = max(1.0, np.log10(b / a)) * density / 4 if density > 0 else plain
                 pieces.append((index, 0.0, a, b, "geometric", max(4, int(round(steps * share))) if is_far else n))
             if far_factor > 1:
                 pieces.append((index, 0.0, far, fixed.farther, "geometric",
@@ -257,7 +260,7 @@ def _march(problem, l, omegas, steps, start, far_factor, probe, fixed) -> March:
     # of 2N steps refines the grid of N steps node for node: the error then falls cleanly as N^-4 and two
     # resolutions can be extrapolated (Richardson; see derive.solve.exterior)
     multiple = max(1, steps // BASE_STEPS)
-    pieces, x0, far = _pieces(problem, l, omegas, BASE_STEPS, start, far_factor, fixed)
+    pieces, x0, far = _pieces(problem, l, omegas, BASE_STEPS, start, far_factor, fixed, modes=probe is not None)
     probes = () if probe is None else tuple(np.atleast_1d(probe).astype(float))
     afters = []
     if probes:
