@@ -180,24 +180,13 @@ def round_trip(problem, sqrt_f0: float, r0: float = 0.0) -> float:
     (for a detector inside a centre region the way in, through the centre, is longer).  A horizon sends nothing
     back; with neither an interface nor a reflecting boundary the round trip is infinite."""
     from derive.solve.bound import is_ads, tortoise_extent
-
-    nodes, weights = np.polynomial.legendre.leggauss(60)
-
-    def travel(a, b):
-        total = 0.0
-        for region in problem.regions:
-            lo = max(a, region.lower)
-            hi = min(b, region.upper if region.upper is not None else b)
-            if hi > lo:
-                half = (hi - lo) / 2
-                total += float(np.sum(weights * region.dtortoise_dr(lo + (nodes + 1) * half)) * half)
-        return total
+    from derive.solve.centre import tortoise_distance
 
     best = float("inf")
     if is_ads(problem):
-        best = tortoise_extent(problem) - travel(0.0, r0)
+        best = tortoise_extent(problem) - tortoise_distance(problem, 0.0, r0)
     for interface in problem.interfaces:
-        best = min(best, travel(*sorted((r0, interface.radius))))
+        best = min(best, tortoise_distance(problem, *sorted((r0, interface.radius))))
     return float(2 * sqrt_f0 * best)
 
 

@@ -65,6 +65,20 @@ def shortfall(omega, value, error, tolerance) -> str:
             f"{tolerance:.0e}; worst at omega = {omega[worst]:.6g} (relative error {relative[worst]:.2e})")
 
 
+def tortoise_distance(problem, a: float, b: float, nodes: int = 60) -> float:
+    """int_a^b dr*/dr dr across every region between a <= b (Gauss-Legendre on each region's part; dr*/dr is
+    smooth inside a region): the tortoise (radial light-travel) distance."""
+    x, w = np.polynomial.legendre.leggauss(nodes)
+    total = 0.0
+    for region in problem.regions:
+        lo = max(a, region.lower)
+        hi = min(b, region.upper) if region.upper is not None else b
+        if hi > lo:
+            half = (hi - lo) / 2
+            total += float(np.sum(w * region.dtortoise_dr(lo + (x + 1) * half)) * half)
+    return total
+
+
 def region_at(problem, r: float):
     """The region that holds radius r (regions are ordered outward)."""
     return next(region for region in problem.regions if region.upper is None or r < region.upper)

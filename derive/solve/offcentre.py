@@ -35,7 +35,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from derive.solve.centre import (FAR, DensityResult, Unsupported, check_supported, continuum_threshold,
-                                 harmonic_weight, merge, rounding_floor)
+                                 harmonic_weight, merge, rounding_floor, tortoise_distance)
 from derive.parallel import split_map
 from derive.solve.propagation import outer_pieces, region_propagator
 
@@ -280,22 +280,10 @@ def _prepare(problem, omegas, series):
     return series, continuum_threshold(problem)
 
 
-def _tortoise_distance(problem, r0: float) -> float:
-    """The tortoise distance from the centre to r0."""
-    distance = 0.0
-    for region in problem.regions:
-        top = min(r0, region.upper) if region.upper is not None else r0
-        if top > region.lower:
-            nodes, weights = np.polynomial.legendre.leggauss(20)
-            half = (top - region.lower) / 2
-            distance += float(np.sum(weights * region.dtortoise_dr(region.lower + (nodes + 1) * half)) * half)
-    return distance
-
-
 def _summed(problem, omegas, pair, cos_gamma, tolerance, series, threshold, progress):
     """The l-sum for every frequency above the threshold, on both cores: (value, size, error, l reached)."""
     fixed = (float(np.min(np.sqrt(omegas ** 2 - threshold ** 2))), float(np.max(omegas)))
-    distance = _tortoise_distance(problem, max(pair))
+    distance = tortoise_distance(problem, 0.0, max(pair))
     # two fixed halves (every other frequency), on both cores where there are two: the same result either way
     halves = [np.arange(len(omegas))] if len(omegas) < SPLIT_FROM else [np.arange(0, len(omegas), 2),
                                                                            np.arange(1, len(omegas), 2)]
