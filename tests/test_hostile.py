@@ -729,3 +729,12 @@ def test_scan_workers_end_when_the_scan_is_killed(tmp_path):
     else:
         os.kill(worker, signal.SIGKILL)
         pytest.fail("the worker outlived its killed parent")
+
+
+def test_a_horizon_inside_a_region_is_refused_with_its_key(sandbox, capsys):
+    # f = 1 - 2M/r on r > 3M/2: f changes sign at r = 2M inside the region (not static there): exit 2, the key named
+    text = ('format = 1\ntitle = "t"\n[parameters]\nM = { value = 1.0, positive = true }\n[coordinates]\n'
+            'names = ["t", "r", "theta", "phi"]\npositive = ["r"]\n[[region]]\nname = "out"\nwhere = "r > 3*M/2"\n'
+            'line_element = "-(1 - 2*M/r)*dt**2 + dr**2/(1 - 2*M/r) + r**2*(dtheta**2 + sin(theta)**2*dphi**2)"\n'
+            '[field]\nmass = "0"\ncoupling = "0"\n')
+    _run_refused(sandbox, capsys, ["field", _spec(text)], "region[0].where")

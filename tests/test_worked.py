@@ -20,7 +20,7 @@ def spec(name):
 
 
 def at_values(st, expr):
-    return float(sp.N(expr.subs(st.parameter_values), 20))
+    return float(sp.N(expr.subs(st.field_problem.values), 20))
 
 
 def test_there_are_six_worked_examples():

@@ -90,6 +90,17 @@ def rationalise_differences(expr):
     return visit(sp.S(expr))
 
 
+def radial_bounds(region, values) -> tuple[float, float | None]:
+    """(lower, upper) radius of a RegionField at the parameters' values; a horizon end is its root r_h as the
+    kernels see it (the double r_h), never the bound's expression evaluated afresh."""
+    domain = region.region.domain_of(region.r)
+    at = {h.side: h.value for h in region.horizons}
+    lo = at.get("lower", float(domain.lower.subs(values)) if domain is not None and domain.lower is not None else 0.0)
+    hi = at.get("upper", float(domain.upper.subs(values)) if domain is not None and domain.upper is not None
+                else None)
+    return lo, hi
+
+
 def _identifier(text: str) -> str:
     """A safe ASCII identifier made from a region's name (any text): letters and digits kept, the rest '_'."""
     name = re.sub(r"[^A-Za-z0-9]+", "_", text).strip("_")
@@ -108,7 +119,25 @@ class KernelSet:
         if missing:
             raise InputError(f"parameter(s) {', '.join(missing)} have no value; kernels need numbers",
                              file=spacetime.path, key="parameters")
-        self.parameters = tuple(p.symbol for p in spacetime.parameters.values())
+        self.spec_parameters = tuple(p.symbol for p in spacetime.parameters.values())
+
+    @cached_property
+    def horizons(self) -> list:
+        """The spacetime's horizons (derive.fields.horizons.Horizon): each root r_h is an argument of the kernels
+        after the spec's parameters, its value the root rounded to a double."""
+        return self.spacetime.field_problem.horizons if self.spacetime.field is not None else []
+
+    @cached_property
+    def parameters(self) -> tuple:
+        """The kernels' parameter arguments: the spec's parameters in order, then the horizons' radii."""
+        return self.spec_parameters + tuple(h.symbol for h in self.horizons if h.is_new)
+
+    @cached_property
+    def values(self) -> dict:
+        """{symbol: number} for every parameter argument."""
+        from derive.fields.horizons import values_of
+
+        return {**self.spacetime.parameter_values, **values_of(self.horizons)}
 
     # -- building ------------------------------------------------------------------------------------
     def _entry(self, expression, arguments, name, quantity, owner, owner_kind, domain) -> KernelEntry:
@@ -126,9 +155,10 @@ class KernelSet:
         out: list[KernelEntry] = []
         if st.field is not None:
             problem = st.field_problem
-            for name, region in problem.regions.items():
+            for name, original in problem.regions.items():
+                region = original.factored   # horizons divided out of f and h (derive/fields/horizons.py)
                 r = region.r
-                domain = {"region": name, "r": self._radial_domain(region)}
+                domain = {"region": name, "r": self._radial_domain(original)}
                 tag = _identifier(name)
                 out.append(self._entry(region.potential, (r, L_SYMBOL, OMEGA) + params, f"potential_{tag}",
                                        "potential", name, "region", domain))
@@ -139,7 +169,7 @@ class KernelSet:
                                            "region", domain))
                 out.append(self._entry(region.f, (r,) + params, f"metric_f_{tag}", "metric_f", name, "region", domain))
                 out.append(self._entry(region.h, (r,) + params, f"metric_h_{tag}", "metric_h", name, "region", domain))
-                for side, end in region.ends.items():
+                for side, end in original.ends.items():
                     if end["kind"] == "regular centre" and end.get("series"):
                         coefficients = [end["regular_exponent"]] + list(end["series"])
                         out.append(self._entry(coefficients, (L_SYMBOL, OMEGA) + params, f"centre_series_{tag}",
@@ -176,11 +206,8 @@ class KernelSet:
         return out
 
     def _radial_domain(self, region) -> tuple[float, float, bool]:
-        """(lower, upper, lower end is a horizon) at the spec's values."""
-        values = self.spacetime.parameter_values
-        domain = region.region.domain_of(region.r)
-        lo = float(domain.lower.subs(values)) if domain is not None and domain.lower is not None else 0.0
-        hi = float(domain.upper.subs(values)) if domain is not None and domain.upper is not None else None
+        """(lower, upper, lower end is a horizon, upper end is a horizon) at the spec's values."""
+        lo, hi = radial_bounds(region, self.spacetime.parameter_values)
         horizon = region.ends["lower"]["kind"] == "horizon"
         top_horizon = region.ends["upper"]["kind"] == "horizon"
         return (lo, hi, horizon, top_horizon)
@@ -188,7 +215,7 @@ class KernelSet:
     # -- points --------------------------------------------------------------------------------------
     def points(self, entry: KernelEntry, count: int = POINTS) -> list[np.ndarray]:
         """Sample columns, one per argument, spread over the kernel's domain."""
-        values = self.spacetime.parameter_values
+        values = self.values
         rng = np.random.default_rng(zlib.crc32(entry.name.encode()))
         scale = self._length_scale()
         columns = []

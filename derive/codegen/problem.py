@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from derive.codegen.catalog import radial_bounds
 from derive.errors import AccuracyError, InputError
 from derive.solve.problem import NumericInterface, NumericProblem, NumericRegion
 
@@ -25,7 +26,7 @@ def numeric_problem(kernel_set) -> NumericProblem:
         raise InputError("no [field] section: the solver needs the field's mass and coupling", file=st.path,
                          key="field")
     field = st.field_problem
-    values = tuple(st.parameter_values[p] for p in kernel_set.parameters)
+    values = tuple(kernel_set.values[p] for p in kernel_set.parameters)
     needed = []
     for name in field.regions:
         for quantity in ("potential", "dtortoise_dr", "metric_f"):
@@ -66,9 +67,7 @@ def numeric_problem(kernel_set) -> NumericProblem:
             if entry.verification.status == "verified":
                 centre[name] = _bind(entry.kernel, values)
     for name, region in field.regions.items():
-        d = region.region.domain_of(region.r)
-        lower = float(d.lower.subs(st.parameter_values)) if d is not None and d.lower is not None else 0.0
-        upper = float(d.upper.subs(st.parameter_values)) if d is not None and d.upper is not None else None
+        lower, upper = radial_bounds(region, st.parameter_values)
         ends = region.ends
         regions[name] = NumericRegion(
             name, lower, upper, ends["lower"]["kind"], ends["upper"]["kind"], ends["upper"].get("tail"),

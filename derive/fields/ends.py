@@ -29,8 +29,16 @@ def _limit(expr, x):
 
 
 def frobenius(p, q, r, r0, exponent, order: int = SERIES_ORDER) -> list:
-    """Coefficients a_0 = 1, a_1, ... of u = x^s sum a_k x^k, x = r - r0, for the given exponent s."""
+    """Coefficients a_0 = 1, a_1, ... of u = x^s sum a_k x^k, x = r - r0, for the given exponent s.
+
+    Computed in a field of rational functions over the rationals, with the exponent as a generator (sparse
+    polynomial arithmetic with a gcd after each step: nothing swells) when p and q are rational in the symbols;
+    with sympy's cancel otherwise (radicals).  The exponent, complex at a horizon, is put in at the end."""
     x = sp.Symbol("x", positive=True)
+    try:
+        return _frobenius_in_field(p, q, r, r0, exponent, order, x)
+    except (sp.PolynomialError, sp.CoercionFailed, ValueError, TypeError):
+        pass
     P = sp.cancel((x * p).subs(r, r0 + x))
     Q = sp.cancel((x ** 2 * q).subs(r, r0 + x))
     Ps = [sp.cancel(c) for c in _taylor(P, x, order + 1)]
@@ -46,6 +54,54 @@ def frobenius(p, q, r, r0, exponent, order: int = SERIES_ORDER) -> list:
             break
         coefficients.append(sp.cancel(-total / indicial))
     return coefficients
+
+
+def _frobenius_in_field(p, q, r, r0, exponent, order, x) -> list:
+    P = (x * p).subs(r, r0 + x)
+    Q = (x ** 2 * q).subs(r, r0 + x)
+    s_symbol = sp.Dummy("s")
+    symbols = sorted((P.free_symbols | Q.free_symbols) - {x}, key=str)
+    field, *_ = sp.field([x, s_symbol] + symbols, sp.QQ)
+    s = field.from_expr(s_symbol)
+    Ps = _field_taylor(field.from_expr(P), field, order + 1)
+    Qs = _field_taylor(field.from_expr(Q), field, order + 1)
+    coefficients = [field.one]
+    for k in range(1, order + 1):
+        indicial = (s + k) * (s + k - 1) + Ps[0] * (s + k) + Qs[0]
+        total = sum((coefficients[k - j] * (Ps[j] * (s + k - j) + Qs[j]) for j in range(1, k + 1)), field.zero)
+        if indicial == 0:
+            coefficients.append(None)
+            break
+        coefficients.append(-total / indicial)
+    # rational in s with real coefficients; the exponent (complex at a horizon) is put in at the end
+    return [sp.nan if c is None else _factored(c).subs(s_symbol, exponent) for c in coefficients]
+
+
+def _factored(element):
+    """numerator and denominator factored over the rationals (each polynomial's factors evaluate without the
+    cancellation that expanded sums of large terms suffer)."""
+    def factor(poly):
+        coefficient, factors = poly.factor_list()
+        return coefficient.as_expr() if hasattr(coefficient, "as_expr") else sp.S(coefficient) if not factors else \
+            sp.S(coefficient) * sp.Mul(*[f.as_expr() ** m for f, m in factors])
+    return factor(element.numer) / factor(element.denom)
+
+
+def _field_taylor(element, field, count) -> list:
+    """Taylor coefficients in the field's first generator (x) at x = 0, by power-series division."""
+    def by_power(poly):
+        parts = [field.ring.zero for _ in range(count)]
+        for monom, coefficient in poly.terms():
+            if monom[0] < count:
+                parts[monom[0]] += field.ring({(0,) + monom[1:]: coefficient})
+        return [field(part) for part in parts]
+    N, D = by_power(element.numer), by_power(element.denom)
+    if D[0] == 0:
+        raise ValueError("not analytic at the expansion point")
+    c = []
+    for k in range(count):
+        c.append((N[k] - sum((D[j] * c[k - j] for j in range(1, k + 1)), field.zero)) / D[0])
+    return c
 
 
 def _taylor(expr, x, count):
@@ -88,11 +144,47 @@ def classify_ends(field) -> dict:
             "upper": _infinity(field, V) if upper is None else _finite_end(field, upper, interfaces, p, q, F2, "upper")}
 
 
+def _horizon_end(field, horizon, side) -> dict:
+    """A horizon end, derived from the factored form (f = (r - r_h) g(r)): rational in r_h and the parameters."""
+    twin = field.factored
+    r, f, h, rho = twin.r, twin.f, twin.h, horizon.symbol
+    fp = sp.cancel(sp.diff(f, r).subs(r, rho))
+    hp = sp.cancel(sp.diff(h, r).subs(r, rho))
+    if sp.cancel(fp - hp) == 0:
+        kappa = fp / 2
+    else:
+        kappa = sp.powdenest(sp.sqrt(sp.factor(fp * hp)), force=True) / 2
+    kappa = _tidy_small(kappa)
+    sign = sp.N(kappa.subs(twin.values), 20)
+    if sign.is_number and sign < 0:
+        kappa = _tidy_small(-kappa)
+    ingoing = -sp.I * OMEGA / (2 * kappa)
+    end = {"kind": "horizon", "at": rho, "horizon": horizon.kind, "radius": horizon.exact if horizon.exact is not None
+           else sp.Float(horizon.digits, 30), "value": horizon.value,
+           "surface_gravity": kappa, "hawking_temperature": _tidy_small(kappa / (2 * sp.pi)),
+           "exponents": [ingoing, -ingoing],
+           "behaviour": "u ~ exp(-+ i omega r*) ~ (r - r_h)^(-+ i omega/(2 kappa))"}
+    if side == "lower":
+        F2 = sp.cancel(f * h)
+        p = sp.cancel(sp.diff(F2, r) / (2 * F2))
+        q = sp.cancel((OMEGA ** 2 - twin.potential) / F2)
+        end["series_ingoing"] = frobenius(p, q, r, rho, ingoing)
+    return end
+
+
+def _tidy_small(expr):
+    expr = sp.cancel(expr)
+    return min((expr, sp.factor(expr)), key=sp.count_ops)
+
+
 def _finite_end(field, r0, interfaces, p, q, F2, side) -> dict:
     r, f, h = field.r, field.f, field.h
     if r0 in interfaces:
         other = [n for n in interfaces[r0].between if n != field.name][0]
         return {"kind": "interface", "at": r0, "region": other}
+    horizon = {h.side: h for h in field.horizons}.get(side)
+    if horizon is not None:
+        return _horizon_end(field, horizon, side)
     x = sp.Symbol("x", positive=True)
     shift = (lambda e: e.subs(r, r0 + x)) if side == "lower" else (lambda e: e.subs(r, r0 - x))
     f0, h0 = _limit(shift(f), x), _limit(shift(h), x)

@@ -17,6 +17,7 @@ The result is checked in the tests against docs/conventions.md's V = f (lambda/r
 
 from __future__ import annotations
 
+import dataclasses
 from functools import cached_property
 
 import sympy as sp
@@ -221,6 +222,30 @@ class RegionField:
 
         return classify_ends(self)
 
+    #: The horizons at this region's ends (derive.fields.horizons.Horizon), set by FieldProblem.regions.
+    horizons: tuple = ()
+
+    @cached_property
+    def factored(self) -> "RegionField":
+        """This region's radial problem with every horizon's root divided out of f and h (f = (r - r_h) g(r)
+        exactly, r_h a symbol): the form from which the ends' series and the kernels are derived (see
+        derive/fields/horizons.py).  The region itself when it has no horizon."""
+        if not self.horizons:
+            return self
+        from derive.fields.horizons import divide_out, values_of
+
+        keep = ("spacetime", "name", "region", "solved", "mass", "coupling", "r")
+        twin = RegionField.__new__(RegionField)
+        twin.__dict__.update({k: self.__dict__[k] for k in keep})
+        f = divide_out(self.f, self.r, self.horizons)
+        h = f if sp.cancel(self.f - self.h) == 0 else divide_out(self.h, self.r, self.horizons)
+        twin.form = dataclasses.replace(self.form, f=f, h=h)
+        twin.values = {**self.values, **values_of(self.horizons)}
+        twin.horizons = self.horizons
+        twin.__dict__["factored"] = twin
+        twin.__dict__["ricci_scalar"] = self.ricci_scalar
+        return twin
+
     def inner_product_weight(self):
         """(phi_1, phi_2) = (omega_1 + omega_2) int u_1 u_2 dr*, dr* = dr/F (docs/conventions.md section 4)."""
         return self.dtortoise_dr
@@ -245,7 +270,25 @@ class FieldProblem:
 
     @cached_property
     def regions(self) -> dict:
-        return {name: RegionField(self.spacetime, name, self.solved) for name in self.spacetime.regions}
+        from derive.fields.horizons import find_horizons
+
+        regions = {name: RegionField(self.spacetime, name, self.solved) for name in self.spacetime.regions}
+        taken = {p.name for p in self.spacetime.parameters.values()} | {c.name for c in self.spacetime.coordinates}
+        for region in regions.values():
+            region.horizons = tuple(find_horizons(region, taken))
+        return regions
+
+    @property
+    def values(self) -> dict:
+        """The parameters' values and every horizon radius r_h's (the symbols the ends' forms are written in)."""
+        from derive.fields.horizons import values_of
+
+        return {**self.spacetime.parameter_values, **values_of(self.horizons)}
+
+    @property
+    def horizons(self) -> list:
+        """Every horizon of the spacetime, region by region (derive.fields.horizons.Horizon)."""
+        return [h for region in self.regions.values() for h in region.horizons]
 
     @cached_property
     def interfaces(self) -> list:

@@ -243,6 +243,10 @@ def field_sections(derivation: Derivation, spacetime) -> None:
             text = f"{side.capitalize()} end: {escape(end['kind'])}"
             if end["kind"] == "interface":
                 text += f" with region {escape(end['region'])}"
+            if end["kind"] == "horizon":
+                text += (f" ({escape(end['horizon'])}) at the root ${sp.latex(end['at'])}"
+                         + (f" = {sp.latex(end['radius'])}" if end["radius"] != end["at"] else "")
+                         + f" \\approx {end['value']:.10g}$ of $f$")
             if end.get("tail"):
                 text += f", {escape(end['tail'])} tail ({escape(end.get('behaviour', ''))})"
             sub.text += text + ". "

@@ -118,6 +118,10 @@ def field_summary(spacetime, data) -> str:
         lines.append(f"  V      = {_short(region['potential'])}")
         for side, end in region["ends"].items():
             detail = end.get("tail") or end.get("region") or ""
+            if end["kind"] == "horizon":
+                detail = (f"({end['horizon']}) at {end['at']} = {end['radius']}"
+                          + (f" = {end['value']:.15g}" if str(end['radius']) != f"{end['value']:.15g}" else "")
+                          + f", surface gravity kappa = {end['surface_gravity']}")
             lines.append(f"  {side} end: {end['kind']} {detail}".rstrip())
     for interface in data["interfaces"]:
         first, second = interface["between"]
