@@ -67,6 +67,9 @@ def export(kernel_set, out: str) -> dict:
         document = {"spec": kernel_set.spacetime.path, "spec_hash": kernel_set.spacetime.source_hash,
                     "derive": __version__, "tolerance": 1e-12,
                     "parameters": {p.name: p.value for p in kernel_set.spacetime.parameters.values()},
+                    "horizons": {str(h.symbol): {"value": h.value, "digits": h.digits, "kind": h.kind,
+                                                 "root_of_f": str(h.exact) if h.exact is not None else None}
+                                 for h in kernel_set.horizons if h.is_new},
                     "kernels": kernel_records(kernel_set, files)}
         with open(os.path.join(staging, "verification.json"), "w", encoding="utf-8") as handle:
             json.dump(document, handle, indent=2)
@@ -99,6 +102,11 @@ def _readme(kernel_set, document, package: str) -> str:
     if flagged:
         lines += ["", "Flagged kernels (derive's solver refuses these):", ""]
         lines += [f"- `{k['name']}`: {k.get('reason', '')}" for k in flagged]
+    if document["horizons"]:
+        lines += ["", "Horizon radii (arguments after the spec's parameters; f has (r - r_h) divided out, so pass "
+                  "the root's double value below, not a recomputed one): " + ", ".join(
+                      f"{n} = {h['value']!r} ({h['kind']}, root of f{' = ' + h['root_of_f'] if h['root_of_f'] else ''})"
+                      for n, h in document["horizons"].items())]
     lines += ["", "Parameter values of the spec: " + ", ".join(f"{n} = {v}" for n, v in document["parameters"].items()),
               "", "verification.json holds the same table with the worst point of each kernel."]
     return "\n".join(lines) + "\n"
