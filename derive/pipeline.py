@@ -88,6 +88,15 @@ def spectrum(spacetime, omega, at: float | None = None, l: int = 0, tolerance: f
         raise _unsupported(spacetime, "compute this spectrum", exc) from None
 
 
+def _cosmological_temperature(problem) -> float | None:
+    """kappa_c/(2 pi) of a cosmological horizon at the outer end (in the spec's time), else None."""
+    from derive.solve.cosmological import has_cosmological_horizon
+
+    if not has_cosmological_horizon(problem):
+        return None
+    return float(problem.regions[-1].outer_surface_gravity / (2 * np.pi))
+
+
 def _floats(values):
     return [None if v is None or not np.isfinite(v) else float(v) for v in np.asarray(values, dtype=float)]
 
@@ -104,6 +113,12 @@ def _density(spacetime, problem, omegas, at, l, tolerance, progress=None) -> Spe
             "units": "per unit omega of the spec's time coordinate",
             "minkowski_density": _floats(result["minkowski"])}
     ok, message = bool(result["ok"]), result["message"]
+    temperature = _cosmological_temperature(problem)
+    if temperature is not None:
+        data["cosmological_temperature"] = temperature
+        data["note"] = ("density of the static vacuum (positive frequencies of the static time t); the "
+                        "Bunch-Davies (Euclidean) state has (1 + n(omega)) times it at +omega and n(omega) times it "
+                        "at -omega, n the Planck occupation at cosmological_temperature")
     levels = bound_state_table(problem, l, float(at or 0.0), tolerance)
     if levels is not None:
         data["bound_states"] = levels
@@ -232,6 +247,15 @@ def two_point(spacetime, omega, between, tolerance: float | None = None, progres
             result = regular_two_point(problem, omegas, first.radius, second.radius, c, tolerance,
                                        progress=progress)
             data["state"] = "vacuum"
+            temperature = _cosmological_temperature(problem)
+            if temperature is not None:   # the static vacuum, and the Bunch-Davies state built on it
+                data["state"] = "static vacuum"
+                data["cosmological_temperature"] = temperature
+                n = 1.0 / np.expm1(omegas / temperature)
+                value, error = np.asarray(result.value), np.asarray(result.error)
+                data["states"] = {"bunch-davies": {
+                    "positive": _complex((1 + n) * value), "negative": _complex(n * np.conj(value)),
+                    "error": {"positive": _floats((1 + n) * error), "negative": _floats(n * error)}}}
     except Unsupported as exc:
         raise _unsupported(spacetime, "compute this two-point function", exc, key="between") from None
     data.update({"wightman": _complex(result.value), "error": {"wightman": _floats(result.error)},
@@ -332,6 +356,7 @@ def response_json(result) -> dict:
     if "states" in result:
         data["states"] = {name: {"response": _floats(value["response"]), "error": _floats(value["error"])}
                           for name, value in result["states"].items()}
+    if "local_temperature" in result:
         data["local_temperature"] = float(result["local_temperature"])
     if "reference" in result:
         ref = result["reference"]

@@ -182,6 +182,13 @@ class KernelSet:
                             coefficients = [end["exponents"][0]] + list(end["series_ingoing"])
                             out.append(self._entry(coefficients, (L_SYMBOL, OMEGA) + params,
                                                    f"horizon_series_{tag}", "horizon_series", name, "region", domain))
+                        if side == "upper":
+                            out.append(self._entry(end["surface_gravity"], params, f"outer_surface_gravity_{tag}",
+                                                   "outer_surface_gravity", name, "region", domain))
+                        if end.get("series_outgoing"):
+                            coefficients = [end["exponents"][0]] + list(end["series_outgoing"])
+                            out.append(self._entry(coefficients, (L_SYMBOL, OMEGA) + params,
+                                                   f"outer_series_{tag}", "outer_series", name, "region", domain))
             for matching in problem.interfaces:
                 first, second = matching.between
                 label = f"{first}|{second}"

@@ -42,30 +42,30 @@ def numeric_problem(kernel_set) -> NumericProblem:
                             {e.name: e.verification.reason for e in bad})
 
     regions = {}
-    series = {}
+
+    def verified(quantity, name, gravity=None):
+        """The bound kernel of an end (with its surface gravity's value), or None when missing or unverified."""
+        try:
+            entry = kernel_set.get(quantity, name)
+            kappa = kernel_set.get(gravity, name) if gravity else None
+        except KeyError:
+            return None
+        if entry.verification is None:
+            kernel_set.verify(entry)
+        if entry.verification.status != "verified":
+            return None
+        bound = _bind(entry.kernel, values)
+        return bound if kappa is None else (bound, float(np.asarray(kappa.kernel.function(*values))))
+
+    series, centre, outer = {}, {}, {}
     for name, region in field.regions.items():
-        if region.ends["lower"]["kind"] == "horizon":
-            try:
-                entry = kernel_set.get("horizon_series", name)
-                gravity = kernel_set.get("surface_gravity", f"{name}")
-            except KeyError:
-                continue
-            for e in (entry,):
-                if e.verification is None:
-                    kernel_set.verify(e)
-            if entry.verification.status == "verified":
-                series[name] = (_bind(entry.kernel, values), float(np.asarray(gravity.kernel.function(*values))))
-    centre = {}
-    for name, region in field.regions.items():
-        if region.ends["lower"]["kind"] == "regular centre":
-            try:
-                entry = kernel_set.get("centre_series", name)
-            except KeyError:
-                continue
-            if entry.verification is None:
-                kernel_set.verify(entry)
-            if entry.verification.status == "verified":
-                centre[name] = _bind(entry.kernel, values)
+        kinds = (region.ends["lower"]["kind"], region.ends["upper"]["kind"])
+        found = {"series": verified("horizon_series", name, "surface_gravity") if kinds[0] == "horizon" else None,
+                 "centre": verified("centre_series", name) if kinds[0] == "regular centre" else None,
+                 "outer": verified("outer_series", name, "outer_surface_gravity") if kinds[1] == "horizon" else None}
+        for store, key in ((series, "series"), (centre, "centre"), (outer, "outer")):
+            if found[key] is not None:
+                store[name] = found[key]
     for name, region in field.regions.items():
         lower, upper = radial_bounds(region, st.parameter_values)
         ends = region.ends
@@ -74,7 +74,7 @@ def numeric_problem(kernel_set) -> NumericProblem:
             _bind(kernel_set.get("potential", name).kernel, values),
             _bind(kernel_set.get("dtortoise_dr", name).kernel, values),
             _bind(kernel_set.get("metric_f", name).kernel, values),
-            *(series.get(name, (None, None))), centre.get(name))
+            *(series.get(name, (None, None))), centre.get(name), *(outer.get(name, (None, None))))
     order = sorted(regions.values(), key=lambda reg: reg.lower)
     interfaces = []
     for matching in field.interfaces:

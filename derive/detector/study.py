@@ -119,10 +119,29 @@ def proper_density(problem, tolerance, r0: float = 0.0, state: str = "vacuum", p
             return tuple(sqrt_f0 * part for part in result.state(state))
         # every state uses the thermal nodes (Boulware's negative part is zero), so that they share one solve
         return density_at, sqrt_f0, True
-    if state != "vacuum":
-        raise Unsupported(f"state {state!r} needs a horizon; this spacetime has none (use 'vacuum')")
     from derive.solve.api import density_function
     from derive.solve.centre import bound_states_possible
+    from derive.solve.cosmological import has_cosmological_horizon
+
+    if has_cosmological_horizon(problem):
+        if state != "bunch-davies":
+            raise Unsupported(f"state {state!r}: inside a cosmological horizon set [detector] state to "
+                              "'bunch-davies' (the Euclidean state: thermal, with respect to the static time, at "
+                              "the horizon's temperature kappa_c/(2 pi))")
+        solve = density_function(problem, r0, tolerance, progress)
+        temperature = problem.regions[-1].outer_surface_gravity / (2 * np.pi)
+
+        def thermal_density_at(nu):
+            omega = sqrt_f0 * np.asarray(nu)
+            result = solve(omega)
+            if not result.ok:
+                _missed(shortfalls, result, tolerance)
+            n = 1.0 / np.expm1(omega / temperature)
+            return (sqrt_f0 * (1 + n) * result.density, sqrt_f0 * (1 + n) * result.error,
+                    sqrt_f0 * n * result.density, sqrt_f0 * n * result.error)
+        return thermal_density_at, sqrt_f0, True
+    if state != "vacuum":
+        raise Unsupported(f"state {state!r} needs a horizon; this spacetime has none (use 'vacuum')")
 
     if bound_states_possible(problem):
         raise Unsupported("a massive field here can have bound states below the mass (V dips below mu^2, e.g. "
@@ -138,6 +157,18 @@ def proper_density(problem, tolerance, r0: float = 0.0, state: str = "vacuum", p
             _missed(shortfalls, result, tolerance)
         return sqrt_f0 * result.density, sqrt_f0 * result.error
     return density_at, sqrt_f0, False
+
+
+def local_temperature(problem, sqrt_f0: float) -> float | None:
+    """The local (Tolman) temperature of the horizon's thermal state in the detector's proper time,
+    kappa/(2 pi sqrt(f(r0))), or None without a horizon."""
+    from derive.solve.cosmological import has_cosmological_horizon
+
+    if has_horizon(problem):
+        return problem.regions[0].surface_gravity / (2 * np.pi) / sqrt_f0
+    if has_cosmological_horizon(problem):
+        return problem.regions[-1].outer_surface_gravity / (2 * np.pi) / sqrt_f0
+    return None
 
 
 def detector_response(problem, detector, tolerance: float = 1e-10, gaps=None, state=None, progress=None,
@@ -171,9 +202,7 @@ def detector_response(problem, detector, tolerance: float = 1e-10, gaps=None, st
     from derive.solve.centre import continuum_threshold
 
     threshold = 0.0 if has_horizon(problem) else continuum_threshold(problem) / sqrt_f0
-    temperature = None
-    if has_horizon(problem):     # the local (Tolman) temperature, in the detector's proper time
-        temperature = problem.regions[0].surface_gravity / (2 * np.pi) / sqrt_f0
+    temperature = local_temperature(problem, sqrt_f0)
     return (response(gaps, switching, density_at, thermal, threshold, D, tolerance, temperature,
                      vacuum_part_only=state == "boulware"), switching, sqrt_f0)
 
@@ -199,7 +228,8 @@ def study(problem, detector, reference_problem=None, tolerance: float = 1e-10, g
             other = ours if name == detector.state else detector_response(problem, detector, tolerance, gaps,
                                                                            state=name, shortfalls=shortfalls)[0]
             out["states"][name] = {"response": other.response, "error": other.error}
-        out["local_temperature"] = (problem.regions[0].surface_gravity / (2 * np.pi)) / sqrt_f0
+    if local_temperature(problem, sqrt_f0) is not None:
+        out["local_temperature"] = local_temperature(problem, sqrt_f0)
     with_ = detector.compare_with
     if with_ is not None:
         if with_ == "minkowski":

@@ -28,19 +28,24 @@ def _limit(expr, x):
     return sp.simplify(value)
 
 
-def frobenius(p, q, r, r0, exponent, order: int = SERIES_ORDER) -> list:
-    """Coefficients a_0 = 1, a_1, ... of u = x^s sum a_k x^k, x = r - r0, for the given exponent s.
+def frobenius(p, q, r, r0, exponent, order: int = SERIES_ORDER, upper: bool = False) -> list:
+    """Coefficients a_0 = 1, a_1, ... of u = x^s sum a_k x^k, x = r - r0 (x = r0 - r when ``upper``: an end
+    approached from below), for the given exponent s of u'' + p u' + q u = 0.
 
     Computed in a field of rational functions over the rationals, with the exponent as a generator (sparse
     polynomial arithmetic with a gcd after each step: nothing swells) when p and q are rational in the symbols;
     with sympy's cancel otherwise (radicals).  The exponent, complex at a horizon, is put in at the end."""
     x = sp.Symbol("x", positive=True)
+    if upper:     # in x = r0 - r: d/dx = -d/dr, so p changes sign and q does not
+        p, shift = -p, r0 - x
+    else:
+        shift = r0 + x
     try:
-        return _frobenius_in_field(p, q, r, r0, exponent, order, x)
+        return _frobenius_in_field(p, q, r, shift, exponent, order, x)
     except (sp.PolynomialError, sp.CoercionFailed, ValueError, TypeError):
         pass
-    P = sp.cancel((x * p).subs(r, r0 + x))
-    Q = sp.cancel((x ** 2 * q).subs(r, r0 + x))
+    P = sp.cancel((x * p).subs(r, shift))
+    Q = sp.cancel((x ** 2 * q).subs(r, shift))
     Ps = [sp.cancel(c) for c in _taylor(P, x, order + 1)]
     Qs = [sp.cancel(c) for c in _taylor(Q, x, order + 1)]
     coefficients = [sp.Integer(1)]
@@ -56,9 +61,9 @@ def frobenius(p, q, r, r0, exponent, order: int = SERIES_ORDER) -> list:
     return coefficients
 
 
-def _frobenius_in_field(p, q, r, r0, exponent, order, x) -> list:
-    P = (x * p).subs(r, r0 + x)
-    Q = (x ** 2 * q).subs(r, r0 + x)
+def _frobenius_in_field(p, q, r, shift, exponent, order, x) -> list:
+    P = (x * p).subs(r, shift)
+    Q = (x ** 2 * q).subs(r, shift)
     s_symbol = sp.Dummy("s")
     symbols = sorted((P.free_symbols | Q.free_symbols) - {x}, key=str)
     field, *_ = sp.field([x, s_symbol] + symbols, sp.QQ)
@@ -164,11 +169,15 @@ def _horizon_end(field, horizon, side) -> dict:
            "surface_gravity": kappa, "hawking_temperature": _tidy_small(kappa / (2 * sp.pi)),
            "exponents": [ingoing, -ingoing],
            "behaviour": "u ~ exp(-+ i omega r*) ~ (r - r_h)^(-+ i omega/(2 kappa))"}
+    F2 = sp.cancel(f * h)
+    p = sp.cancel(sp.diff(F2, r) / (2 * F2))
+    q = sp.cancel((OMEGA ** 2 - twin.potential) / F2)
     if side == "lower":
-        F2 = sp.cancel(f * h)
-        p = sp.cancel(sp.diff(F2, r) / (2 * F2))
-        q = sp.cancel((OMEGA ** 2 - twin.potential) / F2)
         end["series_ingoing"] = frobenius(p, q, r, rho, ingoing)
+    else:
+        # at a cosmological horizon the series is in y = r_h - r > 0: u = y^s (1 + a_1 y + ...) with
+        # s = -i omega/(2 kappa) is the wave e^{+i omega r*} that leaves through the horizon
+        end["series_outgoing"] = frobenius(p, q, r, rho, ingoing, upper=True)
     return end
 
 

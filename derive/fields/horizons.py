@@ -149,16 +149,20 @@ def _find_horizons(field, taken: set[str]) -> list[Horizon]:
     if roots is not None:
         lo, hi = bounds["lower"], bounds["upper"]
         lo_v = lo if lo is not None else mpmath.mpf(0)
-        for root in roots:
+
+        def inside(root):
             tolerance = mpmath.mpf(10) ** (-25) * (1 + abs(root))
-            inside = root > lo_v + tolerance and (hi is None or root < hi - tolerance)
-            if inside and root > 0:
-                index = list(field.spacetime.regions).index(field.name)
-                raise GeometryError(
-                    f"region '{field.name}': f = -g_tt vanishes at {field.r} = {mpmath.nstr(root, 12)}, inside the "
-                    "region, so the region is not static throughout; bound the region by the horizon (e.g. "
-                    f"where = \"{field.r} > ...\" with the root) or split it there",
-                    file=field.spacetime.path, key=f"region[{index}].where")
+            return root > 0 and root > lo_v + tolerance and (hi is None or root < hi - tolerance)
+        within = [root for root in roots if inside(root)]
+        if within:
+            index = list(field.spacetime.regions).index(field.name)
+            positive = ", ".join(mpmath.nstr(z, 15) for z in roots if z > 0)
+            raise GeometryError(
+                f"region '{field.name}': f = -g_tt vanishes at {field.r} = {mpmath.nstr(within[0], 15)}, inside the "
+                f"region, so the region is not static throughout (the positive roots of f: {positive}); bound the "
+                "region by the horizon, written exactly (e.g. where = \"r > 2*M\"; a bound that only approximates a "
+                "root is not a horizon), or split it there",
+                file=field.spacetime.path, key=f"region[{index}].where")
     for side, bound in ends.items():
         point = bounds[side]
         if point is None or point <= 0:

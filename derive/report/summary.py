@@ -119,7 +119,8 @@ def field_summary(spacetime, data) -> str:
         for side, end in region["ends"].items():
             detail = end.get("tail") or end.get("region") or ""
             if end["kind"] == "horizon":
-                detail = (f"({end['horizon']}) at {end['at']} = {end['radius']}"
+                detail = (f"({end['horizon']}) at {end['at']}"
+                          + (f" = {end['radius']}" if end['radius'] != end['at'] else "")
                           + (f" = {end['value']:.15g}" if str(end['radius']) != f"{end['value']:.15g}" else "")
                           + f", surface gravity kappa = {end['surface_gravity']}")
             lines.append(f"  {side} end: {end['kind']} {detail}".rstrip())

@@ -101,8 +101,13 @@ def check_supported(problem, any_dimension: bool = False) -> None:
                           f"D = {problem.dimension}); the density at a centre and greybody factors work in any D")
     if first.lower_kind != "regular centre" or first.lower != 0.0:
         raise Unsupported("the spectral density needs a regular centre at r = 0 or a horizon at the inner end")
+    from derive.solve.cosmological import has_cosmological_horizon
+
+    if has_cosmological_horizon(problem):
+        return
     if last.upper is not None or last.tail not in TAILS:
-        raise Unsupported("the outermost region must reach infinity (asymptotically flat), so far")
+        raise Unsupported("the outermost region must reach infinity (asymptotically flat) or end at a "
+                          "cosmological horizon, so far")
 
 
 TAILS = ("short-range", "centrifugal", "massive, short-range", "Coulomb-like (massive)")
@@ -126,7 +131,9 @@ def bound_states_possible(problem) -> bool:
 
 def continuum_threshold(problem) -> float:
     """The lowest frequency of the continuum: sqrt(V(infinity)), the field's mass times the lapse there."""
-    if problem.mass == 0.0:
+    from derive.solve.cosmological import has_cosmological_horizon
+
+    if problem.mass == 0.0 or has_cosmological_horizon(problem):   # V -> 0 at a horizon, massive or not
         return 0.0
     last = problem.regions[-1]
     far = FAR * problem.length_scale
@@ -217,10 +224,16 @@ def _run(problem, omegas, steps):
     # its cost logarithmic in the radius
     threshold = continuum_threshold(problem)
     far = max(FAR * problem.length_scale, 1e3 / float(np.min(np.sqrt(omegas ** 2 - threshold ** 2))))
+    from derive.solve.cosmological import flux_at_horizon, has_cosmological_horizon, matching_radius
+
+    cosmological = has_cosmological_horizon(problem)
+    r_m = matching_radius(problem) if cosmological else None
     interfaces = {i.inner: i for i in problem.interfaces}
     for region in problem.regions:
         lower = max(region.lower, start)
-        if region.upper is None:
+        if cosmological and region is problem.regions[-1]:
+            pieces = [(lower, r_m, steps, False)]
+        elif region.upper is None:
             pieces = [(a, b, count, True) for a, b, count, _ in
                       outer_pieces(max(lower, 1e-12), far, steps, problem.length_scale)]
         else:
@@ -236,11 +249,15 @@ def _run(problem, omegas, steps):
                                        (2, 2, n))
             state = np.einsum("ijn,nj->ni", transfer, state)
     last = problem.regions[-1]
-    near = _amplitude2(last, state, omegas, far)
-    matrix, scale = region_propagator(last, 0, omegas, far, 4 * far, max(steps // 8, 8), True)
-    farther = _amplitude2(last, np.einsum("nij,nj->ni", matrix, state), omegas, 4 * far) * np.exp(2 * scale)
-    tail_error = np.abs(farther - near) / farther
-    amplitude2 = farther * np.exp(2 * log_scale)
+    if cosmological:
+        log_flux, tail_error = flux_at_horizon(problem, 0, omegas, state, r_m, steps)
+        amplitude2 = np.exp(log_flux + 2 * log_scale)
+    else:
+        near = _amplitude2(last, state, omegas, far)
+        matrix, scale = region_propagator(last, 0, omegas, far, 4 * far, max(steps // 8, 8), True)
+        farther = _amplitude2(last, np.einsum("nij,nj->ni", matrix, state), omegas, 4 * far) * np.exp(2 * scale)
+        tail_error = np.abs(farther - near) / farther
+        amplitude2 = farther * np.exp(2 * log_scale)
     if problem.dimension == 4:   # u = 0, du/dr* = 1 at the centre: psi(0) = du/dr = dr*/dr
         centre_value = problem.regions[0].dtortoise_dr(np.array([0.0]))[0]
     else:                        # psi(0) = 1 (the series' normalisation)

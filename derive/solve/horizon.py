@@ -56,6 +56,10 @@ def check_supported(problem) -> None:
     first, last = problem.regions[0], problem.regions[-1]
     if first.lower_kind != "horizon" or first.horizon_series is None:
         raise Unsupported("transmission needs a non-degenerate horizon at the inner end (with its series)")
+    if last.upper_kind == "horizon":
+        raise Unsupported("a black hole inside a cosmological horizon (Schwarzschild-de Sitter) is not built yet: "
+                          "its up modes come from the cosmological horizon, and its states are defined by either "
+                          "horizon; the static patch without a black hole (de Sitter) is")
     if last.upper is not None or last.tail not in TAILS:
         raise Unsupported(f"the outermost region must reach infinity, asymptotically flat (its tail here: "
                           f"{last.tail}); a reflecting (AdS-like) boundary is not handled yet")

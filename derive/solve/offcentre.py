@@ -37,6 +37,7 @@ import numpy as np
 from derive.solve.centre import (FAR, DensityResult, Unsupported, check_supported, continuum_threshold,
                                  harmonic_weight, merge, rounding_floor, tortoise_distance)
 from derive.parallel import split_map
+from derive.solve.cosmological import flux_at_horizon, has_cosmological_horizon, matching_radius
 from derive.solve.propagation import outer_pieces, region_propagator
 
 MAX_L = 400
@@ -94,15 +95,23 @@ def _pieces(problem, l, radii, steps, lowest, highest):
     r_s and the far radius."""
     r_s = 0.0 if (l == 0 and problem.dimension == 4) else min(1e-3 * radii[0], 1e-3 / highest)
     far = max(FAR * problem.length_scale, 1e3 / lowest, 1e6 * np.sqrt(l * (l + 1) + 1.0) / lowest)
+    cosmological = has_cosmological_horizon(problem)
+    if cosmological:   # the march ends at the matching radius, where the horizon's solution meets it
+        far = matching_radius(problem, radii)
     pieces = []
     for index, region in enumerate(problem.regions):
         spans = []
         lower = region.lower
+        last = index + 1 == len(problem.regions)
         if index == 0:   # from the series start: geometric in r when it starts off the centre (l > 0)
             top = region.upper if region.upper is not None else 2 * max(radii[-1], problem.length_scale)
+            top = min(top, far) if cosmological and last else top
             spans += _first_spans(region, l, r_s, top, steps, highest)
             lower = top
-        if region.upper is None:
+        if cosmological and last:
+            if far > lower:
+                spans.append((lower, far, False, steps))
+        elif region.upper is None:
             spans += [(a, b, True, n) for a, b, n, _ in outer_pieces(lower, far, steps, problem.length_scale)]
         elif index > 0:
             spans.append((lower, region.upper, False, steps))
@@ -179,6 +188,9 @@ def _log_u_at(problem, l, omegas, radii, steps, series, fixed):
                                        (2, 2, n))
             state = np.einsum("ijn,nj->ni", transfer, state)
     last = problem.regions[-1]
+    if has_cosmological_horizon(problem):
+        log_flux, _ = flux_at_horizon(problem, l, omegas, state, far, 16 * multiple, check=False)
+        return log_u - (0.5 * log_flux + log_scale), sign, 0.5 * log_flux + log_scale
     V = float(np.asarray(last.potential(np.array([far]), l, 0.0)).reshape(-1)[0])
     q = omegas ** 2 - V          # the local wave number squared: the flux a^2 k normalises (centre.py)
     amplitude2 = (state[:, 0] ** 2 + state[:, 1] ** 2 / q) * np.sqrt(q)

@@ -31,6 +31,9 @@ class NumericRegion:
     horizon_series: Callable | None = None    # (l, omega) -> [exponent, a_0, a_1, a_2] at a lower horizon
     surface_gravity: float | None = None
     centre_series: Callable | None = None     # (l, omega) -> [exponent, a_0, a_1, a_2] at a regular centre
+    outer_series: Callable | None = None      # (l, omega) -> [exponent, a_0, a_1, a_2] in y = r_c - r at an
+                                              # upper (cosmological) horizon r_c = ``upper``
+    outer_surface_gravity: float | None = None
 
 
 @dataclass(frozen=True)

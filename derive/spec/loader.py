@@ -37,7 +37,7 @@ NUMERICS_KEYS = ("tolerance",)
 CHOSEN_BY_DERIVE = ("l_max", "omega_max", "outer_radius")   # read by no solver: refused with the reason
 SWITCHING_SHAPES = ("gaussian", "sharp", "bump", "cos2", "sin4", "expression")
 SWITCHING_KEYS = ("shape", "width", "duration", "ramp", "expression", "tail")
-STATES = ("vacuum", "boulware", "hartle-hawking", "unruh")
+STATES = ("vacuum", "boulware", "hartle-hawking", "unruh", "bunch-davies")
 RESERVED = ("l", "omega", "tau")   # symbols derive introduces itself
 
 

@@ -1,0 +1,119 @@
+"""An outer end at a cosmological horizon: how the regular solution is normalised there (numeric only).
+
+In a static patch bounded by a cosmological horizon r_c (de Sitter, Schwarzschild-de Sitter) the tortoise
+coordinate runs to +infinity at r_c and V -> 0 there like f ~ e^{-2 kappa r*}, for every l and every mass: the
+waves are free near the horizon and a mode's amplitude is read off there, as it is far away in an
+asymptotically flat spacetime.  Reading it from the WKB invariant would need r_c - r ~ 1e-12 (V/omega^2
+below the tolerance), which a double cannot resolve next to r_c; instead the unit-amplitude solution that leaves
+through the horizon,
+
+    u_c = y^s (1 + a_1 y + a_2 y^2 + ...),   y = r_c - r,   s = -i omega/(2 kappa_c)   (u_c ~ e^{+i omega r*}),
+
+starts on the derived Frobenius series at a small y_0 and is marched inward, in the variable y (geometric
+steps, the equation unchanged since d^2/dr*^2 = d^2/d(-r*)^2), to a matching radius r_m, where the outward
+solution meets it.  A real solution u = A u_c + conj(A) conj(u_c) ~ 2|A| cos(omega r* + delta) is a standing
+wave of amplitude 2|A| = |W[u, u_c]|/omega (W the Wronskian in r*; |W[u_c, conj u_c]| = 2 omega), so the
+normalisation a^2 k of centre.py (k = omega: V vanishes at the horizon) is |W|^2/omega.  The series truncation
+is checked by starting again at y_0/4 (on the same grid beyond y_0) and taking the change as the error.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from derive.solve.propagation import region_propagator
+
+START = 1e-4          # y_0 = START * r_c / max(1, |s|): the truncated series terms ~ (|s| y_0/r_c)^3 stay small
+EFOLD_STEPS = 9.2     # steps are counted per ln(10^4) of y, as at a black hole's horizon (horizon.py)
+
+
+def has_cosmological_horizon(problem) -> bool:
+    last = problem.regions[-1]
+    return last.upper_kind == "horizon" and last.upper is not None
+
+
+def matching_radius(problem, radii=()) -> float:
+    """r_m: halfway between the last region's lower end (or the outermost requested radius) and r_c."""
+    last = problem.regions[-1]
+    inner = max([last.lower] + [r for r in radii if r < last.upper])
+    return last.upper - (last.upper - inner) / 2
+
+
+class _Reflected:
+    """The last region seen in y = r_c - r (kept per region so that the propagator cache recognises it)."""
+
+    def __init__(self, region):
+        self.region, self.top = region, region.upper
+
+    def potential(self, y, l, omega):
+        return self.region.potential(self.top - np.asarray(y), l, omega)
+
+    def dtortoise_dr(self, y):
+        return self.region.dtortoise_dr(self.top - np.asarray(y))
+
+
+_REFLECTED: dict = {}
+
+
+def _reflected(region) -> _Reflected:
+    hit = _REFLECTED.get(id(region))
+    if hit is None or hit.region is not region:
+        if len(_REFLECTED) > 64:
+            _REFLECTED.clear()
+        hit = _REFLECTED[id(region)] = _Reflected(region)
+    return hit
+
+
+def _offset(top: float, y: float) -> float:
+    """A y for which top - y is computed exactly (so the kernels' r - r_c and the series' y agree)."""
+    return top - (top - y)
+
+
+def horizon_solution(problem, l, omegas, r_m, steps, start=START):
+    """(u_c, du_c/dr*) at r_m for every omega: the unit-amplitude wave leaving through the cosmological horizon,
+    with its log scale (arrays of shape (n,), (n,), (n,)).  ``steps`` per 9.2 e-folds of y."""
+    last = problem.regions[-1]
+    if last.outer_series is None or last.outer_surface_gravity is None:
+        from derive.solve.centre import Unsupported
+
+        raise Unsupported("the cosmological horizon's series kernel is missing or did not verify")
+    top = last.upper
+    coefficients = np.asarray(last.outer_series(l, omegas), dtype=complex)
+    s, a0, a1, a2 = (np.broadcast_to(c, omegas.shape) for c in coefficients[:4])
+    s_max = max(1.0, float(np.max(np.abs(s))))
+    y_m = top - r_m
+    y0 = _offset(top, START * top / s_max)
+    pieces = []
+    if start < START:
+        y_start = _offset(top, start * top / s_max)
+        pieces.append((y_start, y0, max(2, int(round(steps * np.log(y0 / y_start) / EFOLD_STEPS)))))
+    else:
+        y_start = y0
+    pieces.append((y0, y_m, max(4, int(round(steps * np.log(y_m / y0) / EFOLD_STEPS)))))
+    power = np.exp(s * np.log(y_start))
+    poly = a0 + a1 * y_start + a2 * y_start * y_start
+    F = 1.0 / float(np.asarray(last.dtortoise_dr(np.array([top - y_start]))).reshape(-1)[0])
+    # state (u, du/d rho*) with rho* = -r*, increasing inward like y: d rho*/dy = 1/F
+    state = np.stack([power * poly, F * power * (s / y_start * poly + a1 + 2 * a2 * y_start)], axis=1)
+    log_scale = np.zeros(len(omegas))
+    region = _reflected(last)
+    for a, b, count in pieces:
+        matrix, scale = region_propagator(region, l, omegas, a, b, count, True)
+        state = np.einsum("nij,nj->ni", matrix, state)
+        size = np.max(np.abs(state), axis=1)
+        state = state / size[:, None]
+        log_scale = log_scale + scale + np.log(size)
+    return state[:, 0], -state[:, 1], log_scale
+
+
+def flux_at_horizon(problem, l, omegas, state, r_m, steps, check: bool = True):
+    """log(a^2 k) of the real solution whose (u, du/dr*) at r_m is ``state`` (its own scale not included), and
+    the relative change when the series starts four times closer to the horizon (the truncation error; zeros
+    without ``check``)."""
+    values = []
+    for start in ((START, START / 4) if check else (START,)):
+        u_c, du_c, scale = horizon_solution(problem, l, omegas, r_m, steps, start)
+        wronskian = state[:, 0] * du_c - state[:, 1] * u_c
+        values.append(2 * (np.log(np.abs(wronskian)) + scale) - np.log(omegas))
+    change = np.abs(np.expm1(values[1] - values[0])) if check else np.zeros(len(omegas))
+    return values[0], change
