@@ -120,3 +120,36 @@ def test_tangherlini_example_response(capsys):
     assert states["unruh"] == pytest.approx(6.299e-3, abs=1e-6)
     assert states["hartle-hawking"] == pytest.approx(9.436e-3, abs=1e-6)
     assert data["local_temperature"] == pytest.approx(1 / (2 * np.pi * np.sqrt(0.75)), rel=1e-12)
+
+
+def test_reissner_nordstrom_example_horizon():
+    # The README's horizon figures: r_+ = 1.6 found as a root, kappa = (r_+ - r_-)/(2 r_+^2) (textbook result).
+    st = derive.load(spec("reissner_nordstrom"))
+    (horizon,) = st.field_problem.horizons
+    assert horizon.value == pytest.approx(1.6, rel=1e-15)
+    assert horizon.surface_gravity == pytest.approx((1.6 - 0.4) / (2 * 1.6 ** 2), rel=1e-14)
+
+
+@pytest.mark.slow
+def test_reissner_nordstrom_example_response(capsys):
+    # The README's figures (derive's own results, to 4 digits: a regression) and the Tolman temperature.
+    assert main(["response", spec("reissner_nordstrom"), "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    zero = data["gaps"].index(0.0)
+    states = {name: value["response"][zero] for name, value in data["states"].items()}
+    assert states["boulware"] == pytest.approx(0.08260, abs=1e-5)
+    assert states["unruh"] == pytest.approx(0.09148, abs=1e-5)
+    assert states["hartle-hawking"] == pytest.approx(0.14947, abs=1e-5)
+    kappa = (1.6 - 0.4) / (2 * 1.6 ** 2)
+    assert data["local_temperature"] == pytest.approx(kappa / (2 * np.pi * np.sqrt(1 - 2 / 5 + 0.64 / 25)), rel=1e-12)
+
+
+def test_de_sitter_patch_example(capsys):
+    # The README's figures: thermal at 1/(2 pi L sqrt(f)) (Narnhofer, Peter & Thirring 1996; Deser & Levin 1997),
+    # F(0) = 0.095428 (derive's own, checked against the thermal quadrature in tests/test_de_sitter.py).
+    assert main(["response", spec("de_sitter_patch"), "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    zero = data["gaps"].index(0.0)
+    assert data["local_temperature"] == pytest.approx(1 / (2 * np.pi * np.sqrt(0.75)), rel=1e-14)
+    assert data["response"][zero] == pytest.approx(0.095428, abs=1e-6)
+    assert data["reference"]["response"][zero] == pytest.approx(1 / (4 * np.pi), rel=1e-14)
