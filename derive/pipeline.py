@@ -156,7 +156,7 @@ def _scattering(spacetime, problem, omegas, at, l, tolerance, progress) -> Spect
         data["note"] = "give --at R0 (outside the horizon) for the spectral density there"
         return Spectrum(data, spacetime, ok, message, tolerance)
     from derive.solve.centre import Unsupported
-    from derive.solve.exterior import STATES, exterior_density
+    from derive.solve.exterior import exterior_density
 
     try:
         outside = exterior_density(problem, omegas, at, tolerance, progress=progress)
@@ -170,7 +170,9 @@ def _scattering(spacetime, problem, omegas, at, l, tolerance, progress) -> Spect
     data["error"].update({"density": _floats(outside.error), "density_in": _floats(outside.inward_error),
                           "density_up": _floats(outside.outward_error)})
     data["states"] = {}
-    for name in STATES:
+    if outside.outer_temperature is not None:
+        data["cosmological_temperature"] = outside.outer_temperature
+    for name in outside.states:
         plus, plus_error, minus, minus_error = outside.state(name)
         data["states"][name] = {"positive": _floats(plus), "negative": _floats(minus),
                                 "error": {"positive": _floats(plus_error), "negative": _floats(minus_error)}}
@@ -227,13 +229,15 @@ def two_point(spacetime, omega, between, tolerance: float | None = None, progres
         if is_ads(problem):
             raise Unsupported("the two-point function with a reflecting AdS boundary (normal modes) is not built")
         if problem.regions[0].lower_kind == "horizon":
-            from derive.solve.exterior import STATES, exterior_two_point
+            from derive.solve.exterior import exterior_two_point
 
             result = exterior_two_point(problem, omegas, first.radius, second.radius, c, tolerance,
                                         progress=progress)
             data["hawking_temperature"] = result.temperature
+            if result.outer_temperature is not None:
+                data["cosmological_temperature"] = result.outer_temperature
             data["states"] = {}
-            for name in STATES:
+            for name in result.states:
                 plus, plus_error, minus, minus_error = result.state(name)
                 data["states"][name] = {"positive": _complex(plus), "negative": _complex(minus),
                                         "error": {"positive": _floats(plus_error), "negative": _floats(minus_error)}}
@@ -356,8 +360,9 @@ def response_json(result) -> dict:
     if "states" in result:
         data["states"] = {name: {"response": _floats(value["response"]), "error": _floats(value["error"])}
                           for name, value in result["states"].items()}
-    if "local_temperature" in result:
-        data["local_temperature"] = float(result["local_temperature"])
+    for key in ("local_temperature", "local_cosmological_temperature"):
+        if key in result:
+            data[key] = float(result[key])
     if "reference" in result:
         ref = result["reference"]
         data["reference"] = {"with": ref["with"], "response": _floats(ref["response"]),

@@ -138,17 +138,3 @@ def test_vacuum_is_ambiguous_inside_a_cosmological_horizon(write_spec):
         st.response()
     assert "bunch-davies" in str(caught.value)
 
-
-def test_a_black_hole_inside_a_cosmological_horizon_is_refused_with_the_reason(write_spec):
-    # Schwarzschild-de Sitter written with its two horizon radii (exact bounds), f = (r - a)(b - r)(r + a + b)/
-    # (r (a^2 + a b + b^2)): both horizons are found, the solver says what is missing (exit 2, not a guess).
-    text = patch(at="r = 4").replace('L = { value = 1.0, positive = true }',
-                                     'a = { value = 2.0, positive = true }\nb = { value = 9.0, positive = true }')
-    text = text.replace('f = "1 - r**2/L**2"', 'f = "(r - a)*(b - r)*(r + a + b)/(r*(a**2 + a*b + b**2))"')
-    text = text.replace('where = "r < L"', 'where = "r > a and r < b"').replace("bunch-davies", "hartle-hawking")
-    st = derive.load(write_spec(text))
-    kinds = sorted(h.kind for h in st.field_problem.horizons)
-    assert kinds == ["black hole", "cosmological"]
-    with pytest.raises(NotSupported) as caught:
-        st.spectrum([0.5], l=0)
-    assert "Schwarzschild-de Sitter" in str(caught.value)

@@ -166,7 +166,16 @@ def local_temperature(problem, sqrt_f0: float) -> float | None:
 
     if has_horizon(problem):
         return problem.regions[0].surface_gravity / (2 * np.pi) / sqrt_f0
-    if has_cosmological_horizon(problem):
+    if has_cosmological_horizon(problem) and problem.regions[-1].outer_surface_gravity is not None:
+        return problem.regions[-1].outer_surface_gravity / (2 * np.pi) / sqrt_f0
+    return None
+
+
+def cosmological_temperature(problem, sqrt_f0: float) -> float | None:
+    """kappa_c/(2 pi sqrt(f(r0))) of a cosmological horizon, or None."""
+    from derive.solve.cosmological import has_cosmological_horizon
+
+    if has_cosmological_horizon(problem) and problem.regions[-1].outer_surface_gravity is not None:
         return problem.regions[-1].outer_surface_gravity / (2 * np.pi) / sqrt_f0
     return None
 
@@ -198,11 +207,23 @@ def detector_response(problem, detector, tolerance: float = 1e-10, gaps=None, st
 
         sqrt_f0 = _sqrt_f(problem, detector.radius)
         return normal_mode_response(problem, gaps, switching, sqrt_f0, tolerance), switching, sqrt_f0
+    from derive.solve.cosmological import constant_zero_mode, has_cosmological_horizon
+
+    if has_cosmological_horizon(problem) and constant_zero_mode(problem):
+        raise Unsupported("inside a cosmological horizon a massless field without curvature coupling has a constant "
+                          "l = 0 solution at zero frequency, bounded at both ends: its density grows like 1/omega at "
+                          "low frequency and the response diverges in the infrared (the static patch's infrared "
+                          "problem; in de Sitter the Bunch-Davies state does not exist for such a field). Give the "
+                          "field a mass or a curvature coupling (conformal, for example); derive spectrum gives the "
+                          "density at any omega > 0")
     density_at, sqrt_f0, thermal = proper_density(problem, tolerance, detector.radius, state, progress, shortfalls)
     from derive.solve.centre import continuum_threshold
 
     threshold = 0.0 if has_horizon(problem) else continuum_threshold(problem) / sqrt_f0
-    temperature = local_temperature(problem, sqrt_f0)
+    # the frequency cut-off follows the hottest bath the detector sees (both horizons' in Schwarzschild-de Sitter)
+    temperatures = [t for t in (local_temperature(problem, sqrt_f0), cosmological_temperature(problem, sqrt_f0))
+                    if t is not None]
+    temperature = max(temperatures) if temperatures else None
     return (response(gaps, switching, density_at, thermal, threshold, D, tolerance, temperature,
                      vacuum_part_only=state == "boulware"), switching, sqrt_f0)
 
@@ -221,15 +242,17 @@ def study(problem, detector, reference_problem=None, tolerance: float = 1e-10, g
            "state": detector.state, "at": detector.radius, "coupling": detector.coupling,
            "sigmas": detector.sigmas, "notes": []}
     if has_horizon(problem):
-        from derive.solve.exterior import STATES
+        from derive.solve.exterior import states_of
 
         out["states"] = {}
-        for name in STATES:
+        for name in states_of(problem):
             other = ours if name == detector.state else detector_response(problem, detector, tolerance, gaps,
                                                                            state=name, shortfalls=shortfalls)[0]
             out["states"][name] = {"response": other.response, "error": other.error}
     if local_temperature(problem, sqrt_f0) is not None:
         out["local_temperature"] = local_temperature(problem, sqrt_f0)
+    if has_horizon(problem) and cosmological_temperature(problem, sqrt_f0) is not None:
+        out["local_cosmological_temperature"] = cosmological_temperature(problem, sqrt_f0)
     with_ = detector.compare_with
     if with_ is not None:
         if with_ == "minkowski":

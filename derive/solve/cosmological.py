@@ -117,3 +117,28 @@ def flux_at_horizon(problem, l, omegas, state, r_m, steps, check: bool = True):
         values.append(2 * (np.log(np.abs(wronskian)) + scale) - np.log(omegas))
     change = np.abs(np.expm1(values[1] - values[0])) if check else np.zeros(len(omegas))
     return values[0], change
+
+
+def constant_zero_mode(problem) -> bool:
+    """Whether psi = const solves the l = 0 equation at omega = 0 (a massless field without curvature coupling,
+    or with R = 0): u = r^(n/2) with d^2u/dr*^2 = V u, checked at a few radii of every region to 1e-6.  Inside a
+    cosmological horizon that mode is bounded at both ends, so the l = 0 density grows like 1/omega at low
+    frequency (the static patch's infrared problem) and every response diverges in the infrared."""
+    n = problem.dimension - 2
+    for region in problem.regions:
+        top = region.upper if region.upper is not None else 10 * max(region.lower, problem.length_scale)
+        bottom = region.lower if region.lower > 0 else 1e-3 * top
+        radii = bottom + (top - bottom) * np.array([0.2, 0.45, 0.7])
+        h = 1e-4 * (top - bottom)
+
+        def F(r, region=region):
+            return 1.0 / np.asarray(region.dtortoise_dr(np.asarray(r, dtype=float)), dtype=float)
+
+        def flux(r, F=F):     # F du/dr for u = r^(n/2)
+            return F(r) * (n / 2) * np.asarray(r, dtype=float) ** (n / 2 - 1)
+        second = F(radii) * (flux(radii + h) - flux(radii - h)) / (2 * h)
+        V = np.asarray(region.potential(radii, 0, 0.0), dtype=float) * np.ones_like(radii)
+        expected = V * radii ** (n / 2)
+        if np.any(np.abs(second - expected) > 1e-6 * (np.abs(expected) + np.abs(second) + 1e-300)):
+            return False
+    return True

@@ -215,6 +215,12 @@ class ExteriorTwoPoint:
     temperature: float          # Hawking temperature kappa/(2 pi), in units of t
     tolerance: float
     l_max: int
+    outer_temperature: float | None = None   # a cosmological horizon's kappa_c/(2 pi), when there is one
+
+    @property
+    def states(self) -> tuple:
+        """The states defined here: with a cosmological horizon also 'bunch-davies' (see :meth:`state`)."""
+        return STATES + (("bunch-davies",) if self.outer_temperature is not None else ())
 
     @property
     def value(self) -> np.ndarray:
@@ -243,25 +249,41 @@ class ExteriorTwoPoint:
         return 1.0 / np.expm1(self.omega / self.temperature)
 
     def state(self, name: str):
-        """(S_+ at +omega, its error, S_- at -omega, its error) for the named state; S_- = n conj(mode sum)."""
-        if name not in STATES:
-            raise Unsupported(f"state {name!r} outside a horizon: one of {', '.join(STATES)}")
+        """(S_+ at +omega, its error, S_- at -omega, its error) for the named state; S_- = n conj(mode sum).
+
+        boulware: no thermal factor (the static vacuum).  hartle-hawking: in and up modes thermal at the black
+        hole's T_H.  unruh: the up modes (from the past black-hole horizon) thermal at T_H; the in modes vacuum
+        when they come from infinity, thermal at the cosmological T_c when they come from a past cosmological
+        horizon (each horizon's modes at its own temperature).  bunch-davies (with a cosmological horizon): in
+        and up modes thermal at T_c."""
+        if name not in self.states:
+            raise Unsupported(f"state {name!r} outside a horizon: one of {', '.join(self.states)}")
         n = self.thermal_factor()
+        n_c = (np.zeros_like(n) if self.outer_temperature is None
+               else 1.0 / np.expm1(self.omega / self.outer_temperature))
         if name == "boulware":
-            return self.value, self.error, np.zeros_like(self.value), np.zeros_like(self.error)
-        if name == "hartle-hawking":
-            return (1 + n) * self.value, (1 + n) * self.error, n * np.conj(self.value), n * self.error
-        return (self.inward + (1 + n) * self.outward, self.inward_error + (1 + n) * self.outward_error,
-                n * np.conj(self.outward), n * self.outward_error)
+            n_in, n_up = np.zeros_like(n), np.zeros_like(n)
+        elif name == "hartle-hawking":
+            n_in, n_up = n, n
+        elif name == "unruh":
+            n_in, n_up = n_c, n
+        else:
+            n_in, n_up = n_c, n_c
+        return ((1 + n_in) * self.inward + (1 + n_up) * self.outward,
+                (1 + n_in) * self.inward_error + (1 + n_up) * self.outward_error,
+                n_in * np.conj(self.inward) + n_up * np.conj(self.outward),
+                n_in * self.inward_error + n_up * self.outward_error)
 
 
 def _summed(problem, omegas, pair, cos_gamma, tolerance, progress):
     """The l-sums of the in and up parts between the radii ``pair`` outside the horizon, on both cores."""
     check_supported(problem)
-    first = problem.regions[0]
+    first, last = problem.regions[0], problem.regions[-1]
     for r in pair:
         if not r > first.lower:
             raise Unsupported(f"the point r = {r:g} must lie outside the horizon r = {first.lower:g}")
+        if last.upper_kind == "horizon" and not r < last.upper:
+            raise Unsupported(f"the point r = {r:g} must lie inside the cosmological horizon r = {last.upper:g}")
     omegas = np.asarray(omegas, dtype=float)
     if omegas.ndim != 1 or np.any(~np.isfinite(omegas)) or np.any(omegas <= 0):
         raise ValueError("frequencies must be positive and finite")
@@ -282,6 +304,19 @@ def _summed(problem, omegas, pair, cos_gamma, tolerance, progress):
     return merged, max(part[6] for part in parts), float(kappa) / (2 * np.pi)
 
 
+def states_of(problem) -> tuple:
+    """The states outside this black hole: STATES, and 'bunch-davies' inside a cosmological horizon."""
+    return STATES + (("bunch-davies",) if _outer_temperature(problem) is not None else ())
+
+
+def _outer_temperature(problem) -> float | None:
+    from derive.solve.cosmological import has_cosmological_horizon
+
+    if not has_cosmological_horizon(problem):
+        return None
+    return float(problem.regions[-1].outer_surface_gravity) / (2 * np.pi)
+
+
 def exterior_density(problem, omegas, r0: float, tolerance: float = 1e-10, progress=None) -> ExteriorTwoPoint:
     """The in and up spectral densities at radius r0 outside the horizon, summed over l to the tolerance
     (each frequency to its own l; see :func:`_l_sum`): the diagonal of :func:`exterior_two_point` (real, with
@@ -289,7 +324,7 @@ def exterior_density(problem, omegas, r0: float, tolerance: float = 1e-10, progr
     (inward, outward, size_in, size_up, e_in, e_out), l, temperature = _summed(problem, omegas, (r0, r0), 1.0,
                                                                                 tolerance, progress)
     return ExteriorTwoPoint(np.asarray(omegas, dtype=float), (r0, r0), 1.0, inward.real, outward.real, size_in,
-                            size_up, e_in, e_out, temperature, tolerance, l)
+                            size_up, e_in, e_out, temperature, tolerance, l, _outer_temperature(problem))
 
 
 def exterior_two_point(problem, omegas, r1: float, r2: float, cos_gamma: float, tolerance: float = 1e-10,
@@ -304,4 +339,4 @@ def exterior_two_point(problem, omegas, r1: float, r2: float, cos_gamma: float, 
     if r1 > r2:      # the sum was taken with the points in increasing order: S(x2, x1) = conj(S(x1, x2))
         inward, outward = np.conj(inward), np.conj(outward)
     return ExteriorTwoPoint(np.asarray(omegas, dtype=float), (r1, r2), float(cos_gamma), inward, outward, size_in,
-                            size_up, e_in, e_out, temperature, tolerance, l)
+                            size_up, e_in, e_out, temperature, tolerance, l, _outer_temperature(problem))

@@ -26,6 +26,8 @@ import numpy as np
 
 from derive.solve.centre import (FAR, Unsupported, continuum_threshold, coulomb_strength, far_potential,
                                  outer_turning_point, rounding_floor, shortfall)
+from derive.solve.cosmological import has_cosmological_horizon, horizon_solution, matching_radius
+from derive.solve.cosmological import START as OUTER_START
 from derive.solve.propagation import outer_pieces, region_propagator
 
 START = 1e-5          # x_0 / r_h
@@ -56,10 +58,10 @@ def check_supported(problem) -> None:
     first, last = problem.regions[0], problem.regions[-1]
     if first.lower_kind != "horizon" or first.horizon_series is None:
         raise Unsupported("transmission needs a non-degenerate horizon at the inner end (with its series)")
-    if last.upper_kind == "horizon":
-        raise Unsupported("a black hole inside a cosmological horizon (Schwarzschild-de Sitter) is not built yet: "
-                          "its up modes come from the cosmological horizon, and its states are defined by either "
-                          "horizon; the static patch without a black hole (de Sitter) is")
+    if has_cosmological_horizon(problem):
+        if last.outer_series is None:
+            raise Unsupported("the cosmological horizon's series kernel is missing or did not verify")
+        return
     if last.upper is not None or last.tail not in TAILS:
         raise Unsupported(f"the outermost region must reach infinity, asymptotically flat (its tail here: "
                           f"{last.tail}); a reflecting (AdS-like) boundary is not handled yet")
@@ -87,6 +89,8 @@ def far_radius(problem, l, omegas, probe=None) -> float:
     Coulomb-like tail C/r: its amplitude error is of order V''/k^4 ~ C/(k^4 r^3).  Below the mass (every omega
     of the batch): 40 decay lengths beyond the outermost turning point (and the probe), where the decaying
     solution starts; any admixture of the growing one then dies as e^-80 on the way in."""
+    if has_cosmological_horizon(problem):   # the matching radius, where the cosmological horizon's wave meets
+        return matching_radius(problem, [] if probe is None else [probe])
     L = problem.length_scale
     threshold, C = tail(problem)
     omegas = np.asarray(omegas, dtype=float)
@@ -137,6 +141,8 @@ def layout(problem, l, omegas, probe=None) -> Layout:
     omegas = np.asarray(omegas, dtype=float)
     s_max = float(np.max(np.abs(np.asarray(problem.regions[0].horizon_series(l, omegas), dtype=complex)[0])))
     far = far_radius(problem, l, omegas, probe)
+    if has_cosmological_horizon(problem):
+        return Layout(s_max, far, 0.0, far, 0)
     threshold = continuum_threshold(problem)
     if np.all(omegas < threshold):
         kappa_min = np.sqrt(threshold ** 2 - float(np.max(omegas)) ** 2)
@@ -183,10 +189,13 @@ def _pieces(problem, l, omegas, steps, start, far_factor, fixed=None, modes=True
     x_start = offset(start) if start < START else x0
     if x_start < x0:
         pieces.append((0, horizon, x_start, x0, "horizon", max(2, int(round(steps * np.log(x0 / x_start) / 9.2)))))
+    cosmological = has_cosmological_horizon(problem)
     for index, region in enumerate(problem.regions):
         lower = region.lower
+        # a cosmological horizon's region is marched to the matching radius only (the far radius here)
+        top = far if cosmological and index + 1 == len(problem.regions) else region.upper
         if index == 0:
-            middle = min(2 * horizon, region.upper) if region.upper is not None else 2 * horizon
+            middle = min(2 * horizon, top) if top is not None else 2 * horizon
             # a fixed number of steps per e-fold of (r - r_h)
             efolds = np.log((middle - horizon) / x0)
             pieces.append((index, horizon, x0, middle - horizon, "horizon",
@@ -206,8 +215,8 @@ def _pieces(problem, l, omegas, steps, start, far_factor, fixed=None, modes=True
             if far_factor > 1:
                 pieces.append((index, 0.0, far, fixed.farther, "geometric",
                                max(4, fixed.farther_steps * steps // BASE_STEPS)))
-        elif region.upper > lower:
-            pieces.append((index, 0.0, lower, region.upper, "uniform", steps))
+        elif top > lower:
+            pieces.append((index, 0.0, lower, top, "uniform", steps))
     return pieces, x_start, fixed.farther if far_factor > 1 else far
 
 
@@ -303,6 +312,12 @@ def _march(problem, l, omegas, steps, start, far_factor, probe, fixed) -> March:
                 outer_det[k] = outer_det[k] * np.linalg.det(matrix)
     for k in (k for k, after in enumerate(afters) if after == len(pieces)):
         probe_u[k], probe_log[k] = state[:, 0].copy(), log_scale.copy()
+    if has_cosmological_horizon(problem):
+        # far_factor > 1 asks for the tail check: here the series at the cosmological horizon starts 4x closer
+        u_c, du_c, c_scale = horizon_solution(problem, l, omegas, far, 16 * multiple,
+                                              OUTER_START / 4 if far_factor > 1 else OUTER_START)
+        return _cosmological_end(omegas, state, log_scale, u_c, du_c, c_scale, probe_u, probe_log, outer,
+                                 outer_log, outer_det)
     below = omegas < continuum_threshold(problem)
     if np.any(below) and not np.all(below):
         raise ValueError("one march takes frequencies all above or all below the mass threshold")
@@ -358,6 +373,28 @@ def _evanescent(omegas, V, dV, state, log_scale, total_det, probe_u, outer, oute
     result.log_up = np.array([np.log(np.abs(u)) + lg - np.log(np.abs(d)) - log_A
                               for u, lg, d in zip(u_dec, outer_log, outer_det)])
     result.phase_up = np.array([np.angle(u / d) for u, d in zip(u_dec, outer_det)])
+    return result
+
+
+def _cosmological_end(omegas, state, log_scale, u_c, du_c, c_scale, probe_u, probe_log, outer, outer_log,
+                      outer_det) -> March:
+    """The split at the matching radius in front of a cosmological horizon: with u_c -> e^{+i omega r*} the unit
+    wave leaving through it (derive.solve.cosmological), u = a_in e^{-i omega r*} + a_out e^{+i omega r*} there,
+    a_in = W[u, u_c]/(2 i omega) and a_out = -W[u, conj u_c]/(2 i omega) (W in r*; V = 0 at the horizon, so unit
+    amplitude is unit flux).  The in modes come from the past cosmological horizon; the up modes' outgoing
+    wave is u_c itself, carried back to each probe by the inverse propagator as u_inf is from far away."""
+    a_in = (state[:, 0] * du_c - state[:, 1] * u_c) / (2j * omegas)
+    a_out = -(state[:, 0] * np.conj(du_c) - state[:, 1] * np.conj(u_c)) / (2j * omegas)
+    log_a_in = np.log(np.abs(a_in)) + log_scale + c_scale
+    result = March(np.exp(-2 * log_a_in), np.abs(a_out) ** 2 / np.abs(a_in) ** 2)
+    if probe_u:
+        log_T = -log_a_in
+        u_inf = [o[:, 1, 1] * u_c - o[:, 0, 1] * du_c for o in outer]
+        result.log_in = np.array([np.log(np.abs(u)) + lg + log_T for u, lg in zip(probe_u, probe_log)])
+        result.phase_in = np.array([np.angle(u) for u in probe_u])
+        result.log_up = np.array([np.log(np.abs(u)) + lg + c_scale - np.log(np.abs(d)) + log_T
+                                  for u, lg, d in zip(u_inf, outer_log, outer_det)])
+        result.phase_up = np.array([np.angle(u / d) for u, d in zip(u_inf, outer_det)])
     return result
 
 
