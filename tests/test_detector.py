@@ -315,3 +315,18 @@ def test_tolerance_aware_cutoff_against_the_closed_form(tolerance):
     assert np.all(result.error <= tolerance * exact)
     upper, tail = cutoff(gaps, switching, tolerance=tolerance)
     assert upper < 40.0 + 10.0 / 0.3 and np.all(tail <= 1e-3 * tolerance * exact * 1.01)
+
+
+def test_a_response_not_known_to_its_tolerance_is_a_shortfall():
+    # The response's own error (density carried through the quadrature, quadrature, tails) is held to the
+    # tolerance (factor 2 of slack): 1e-6 against 1e-8 is a shortfall naming the gap, 1e-8 is not.
+    from derive.detector.response import Response
+    from derive.detector.study import _check_response, passing_tolerance
+
+    F = np.array([0.1, 0.2])
+    shortfalls = []
+    _check_response(Response(np.array([0.0, 1.0]), F, 1e-6 * F, 0 * F, 0 * F), 1e-8, shortfalls)
+    assert len(shortfalls) == 1 and "gap 0" in shortfalls[0][0] and passing_tolerance(shortfalls) == 1e-5
+    shortfalls = []
+    _check_response(Response(np.array([0.0, 1.0]), F, 1e-8 * F, 0 * F, 0 * F), 1e-8, shortfalls)
+    assert shortfalls == []

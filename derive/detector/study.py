@@ -238,6 +238,7 @@ def study(problem, detector, reference_problem=None, tolerance: float = 1e-10, g
     ours, switching, sqrt_f0 = detector_response(problem, detector, tolerance, gaps, progress=progress,
                                                  shortfalls=shortfalls)
     gaps = ours.gaps
+    _check_response(ours, tolerance, shortfalls)
     out = {"gaps": gaps, "response": ours.response, "error": ours.error, "switching": switching,
            "state": detector.state, "at": detector.radius, "coupling": detector.coupling,
            "sigmas": detector.sigmas, "notes": []}
@@ -296,6 +297,20 @@ def study(problem, detector, reference_problem=None, tolerance: float = 1e-10, g
                              "would pass" if passing else ""))
         out["passing_tolerance"] = passing
     return out
+
+
+def _check_response(result, tolerance: float, shortfalls: list) -> None:
+    """The response's own error (the density's carried through the quadrature, plus the quadrature's and the
+    tails') against the tolerance, with a factor 2 of slack for what the quadrature adds to densities that just
+    met it: a response that is not known to its tolerance is a shortfall, not a result (an infrared divergence,
+    a switching too short for the panels)."""
+    F, error = np.abs(np.asarray(result.response)), np.asarray(result.error)
+    relative = error / np.maximum(F, 1e-300)
+    bad = ~(relative <= 2 * tolerance)
+    if np.any(bad):
+        worst = int(np.argmax(np.where(np.isfinite(relative), relative, np.inf)))
+        shortfalls.append((f"the response at gap {result.gaps[worst]:g} is known only to a relative "
+                           f"{relative[worst]:.1e} (its density, quadrature and tails)", float(relative[worst])))
 
 
 def _trials(F_a, F_b, difference_error, detector) -> dict:
