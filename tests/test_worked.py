@@ -153,3 +153,19 @@ def test_de_sitter_patch_example(capsys):
     assert data["local_temperature"] == pytest.approx(1 / (2 * np.pi * np.sqrt(0.75)), rel=1e-14)
     assert data["response"][zero] == pytest.approx(0.095428, abs=1e-6)
     assert data["reference"]["response"][zero] == pytest.approx(1 / (4 * np.pi), rel=1e-14)
+
+
+@pytest.mark.slow
+def test_schwarzschild_de_sitter_example(capsys):
+    # The README's figures: both temperatures from kappa = |f'|/2 at each root (Gibbons & Hawking 1977) and the
+    # four states at zero gap (derive's own results, to 4 digits: a regression).
+    assert main(["response", spec("schwarzschild_de_sitter"), "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    zero = data["gaps"].index(0.0)
+    states = {name: value["response"][zero] for name, value in data["states"].items()}
+    assert states["boulware"] == pytest.approx(0.07900, abs=1e-5)
+    assert states["bunch-davies"] == pytest.approx(0.09439, abs=1e-5)
+    assert states["unruh"] == pytest.approx(0.11271, abs=1e-5)
+    assert states["hartle-hawking"] == pytest.approx(0.17026, abs=1e-5)
+    assert data["local_temperature"] == pytest.approx(0.058260, rel=1e-4)
+    assert data["local_cosmological_temperature"] == pytest.approx(0.019918, rel=1e-4)
