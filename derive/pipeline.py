@@ -78,6 +78,8 @@ def spectrum(spacetime, omega, at: float | None = None, l: int = 0, tolerance: f
         raise InputError(f"l = {l}: expected a non-negative integer", key="--l")
     tolerance = tolerance_of(spacetime, tolerance)
     problem = spacetime.numeric_problem
+    if at is not None:
+        _check_radius(spacetime, problem, float(at), "--at")
     try:
         if problem.regions[0].lower_kind == "horizon":
             return _scattering(spacetime, problem, omegas, at, int(l), tolerance, progress)
@@ -86,6 +88,16 @@ def spectrum(spacetime, omega, at: float | None = None, l: int = 0, tolerance: f
         return _density(spacetime, problem, omegas, at, int(l), tolerance, progress)
     except Unsupported as exc:
         raise _unsupported(spacetime, "compute this spectrum", exc) from None
+
+
+def _check_radius(spacetime, problem, radius: float, key: str) -> None:
+    """A radius must lie inside the spacetime: below the outer end of the last region (a cosmological horizon or
+    a boundary), else exit 2 naming the key."""
+    last = problem.regions[-1]
+    if last.upper is not None and not radius < last.upper:
+        what = "the cosmological horizon" if last.upper_kind == "horizon" else "the outer end of the spacetime"
+        raise InputError(f"r = {radius:g} does not lie inside the spacetime: {what} is at r = {last.upper:g}",
+                         file=spacetime.path, key=key)
 
 
 def _cosmological_temperature(problem) -> float | None:
@@ -221,6 +233,8 @@ def two_point(spacetime, omega, between, tolerance: float | None = None, progres
     first, second = (parse_position(spacetime, p, key=f"between[{i}]") for i, p in enumerate(between))
     tolerance = tolerance_of(spacetime, tolerance)
     problem = spacetime.numeric_problem
+    for i, point in enumerate((first, second)):
+        _check_radius(spacetime, problem, point.radius, f"between[{i}]")
     c = cos_angle(first, second)
     data = {"between": [first.to_json(), second.to_json()], "cos_angle": c, "omega": _floats(omegas),
             "tolerance": tolerance, "method": METHOD, "convention": TWO_POINT_CONVENTION,
@@ -322,6 +336,7 @@ def response(spacetime, gaps=None, tolerance: float | None = None, switching: di
         raise InputError("no [detector] section: a response needs a detector", file=spacetime.path,
                          key="detector")
     detector = numeric_detector(spacetime)
+    _check_radius(spacetime, spacetime.numeric_problem, detector.radius, "detector.at")
     if gaps is not None:
         gaps = np.atleast_1d(np.asarray(gaps, dtype=float))
         if gaps.size == 0 or not np.all(np.isfinite(gaps)) or np.any(np.abs(gaps) > 1e12):

@@ -738,3 +738,22 @@ def test_a_horizon_inside_a_region_is_refused_with_its_key(sandbox, capsys):
             'line_element = "-(1 - 2*M/r)*dt**2 + dr**2/(1 - 2*M/r) + r**2*(dtheta**2 + sin(theta)**2*dphi**2)"\n'
             '[field]\nmass = "0"\ncoupling = "0"\n')
     _run_refused(sandbox, capsys, ["field", _spec(text)], "region[0].where")
+
+
+DE_SITTER = os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))), "worked", "de_sitter_patch",
+                         "spec.toml")
+
+
+@pytest.mark.parametrize("argv,key", [
+    (["spectrum", DE_SITTER, "--omega", "1", "--at", "1.5"], "--at"),
+    (["two-point", DE_SITTER, "--omega", "1", "--between", "r = 0.5", "r = 3"], "between[1]"),
+    (["response", "outside.toml"], "detector.at"),
+    (["response", "edge.toml"], "detector.at"),
+], ids=["spectrum-at", "two-point-between", "detector-beyond", "detector-on-horizon"])
+def test_a_point_beyond_the_cosmological_horizon_is_refused(sandbox, capsys, argv, key):
+    # de Sitter's static patch ends at r = L = 1: points at or beyond it are refused with their key (exit 2)
+    with open(DE_SITTER, encoding="utf-8") as handle:
+        text = handle.read()
+    _spec(text.replace('at = "r = L/2"', 'at = "r = 2*L"'), "outside.toml")
+    _spec(text.replace('at = "r = L/2"', 'at = "r = L"'), "edge.toml")
+    _run_refused(sandbox, capsys, argv, key, outputs=("outside.toml", "edge.toml"))
