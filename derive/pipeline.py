@@ -240,7 +240,7 @@ def two_point(spacetime, omega, between, tolerance: float | None = None, progres
             "tolerance": tolerance, "method": METHOD, "convention": TWO_POINT_CONVENTION,
             "units": "per unit omega of the spec's time coordinate"}
     try:
-        if is_ads(problem):
+        if is_ads(problem) and problem.regions[0].lower_kind != "horizon":
             raise Unsupported("the two-point function with a reflecting AdS boundary (normal modes) is not built")
         if problem.regions[0].lower_kind == "horizon":
             from derive.solve.exterior import exterior_two_point

@@ -77,7 +77,7 @@ def test_reissner_nordstrom_three_ways(write_spec):
     # M and Q as parameters, the two roots as parameters, plain numbers: one spacetime, one set of greybody factors.
     paths = [write_spec(text, f"rn{k}.toml") for k, text in enumerate((RN_MQ, RN_ROOTS, RN_NUMBERS))]
     omegas = [0.1, 0.4]
-    for l in (0, 1):
+    for l in (1,):      # l = 0 is checked against its published low-frequency limit below
         values = [greybody(path, l, omegas) for path in paths]
         for t, e in values[1:]:
             np.testing.assert_array_less(np.abs(t - values[0][0]), e + values[0][1] + 1e-14)

@@ -183,8 +183,8 @@ def round_trip(problem, sqrt_f0: float, r0: float = 0.0) -> float:
     from derive.solve.centre import tortoise_distance
 
     best = float("inf")
-    if is_ads(problem):
-        best = tortoise_extent(problem) - tortoise_distance(problem, 0.0, r0)
+    if is_ads(problem):   # the way out to the boundary and back (from r0, not from the centre: a horizon may be there)
+        best = tortoise_extent(problem, start=r0)
     for interface in problem.interfaces:
         best = min(best, tortoise_distance(problem, *sorted((r0, interface.radius))))
     return float(2 * sqrt_f0 * best)

@@ -195,7 +195,7 @@ def detector_response(problem, detector, tolerance: float = 1e-10, gaps=None, st
     gaps = np.asarray(detector.gaps if gaps is None else gaps, dtype=float)
     from derive.solve.bound import is_ads
 
-    if is_ads(problem):      # a reflecting boundary: the spectrum is discrete, the response a sum over modes
+    if is_ads(problem) and not has_horizon(problem):   # reflecting boundary: discrete spectrum, a sum over modes
         if state != "vacuum":
             raise Unsupported(f"state {state!r}: an AdS spacetime without a horizon has its global vacuum only "
                               "(use 'vacuum')")

@@ -94,12 +94,14 @@ def ads_boundary(problem) -> tuple[float, float]:
     return float(np.sqrt(L2)), (n + 1) / 2 + float(np.sqrt(root))
 
 
-def tortoise_extent(problem) -> float:
-    """r* from the centre to the AdS boundary (finite)."""
+def tortoise_extent(problem, start: float = 0.0) -> float:
+    """r* from the centre (or from the radius ``start``) to the AdS boundary (finite)."""
     nodes, weights = np.polynomial.legendre.leggauss(20)
     total = 0.0
     for region in problem.regions:
-        lower = max(region.lower, 1e-9 * problem.length_scale)
+        if region.upper is not None and region.upper <= start:
+            continue
+        lower = max(region.lower, start, 1e-9 * problem.length_scale)
         upper = region.upper if region.upper is not None else 1e9 * problem.length_scale
         edges = np.geomspace(lower, upper, int(np.ceil(np.log10(upper / lower))) * 4 + 2)
         for a, b in zip(edges[:-1], edges[1:]):

@@ -62,9 +62,18 @@ def check_supported(problem) -> None:
         if last.outer_series is None:
             raise Unsupported("the cosmological horizon's series kernel is missing or did not verify")
         return
+    if _ads(problem):
+        return
     if last.upper is not None or last.tail not in TAILS:
         raise Unsupported(f"the outermost region must reach infinity, asymptotically flat (its tail here: "
                           f"{last.tail}); a reflecting (AdS-like) boundary is not handled yet")
+
+
+def _ads(problem) -> bool:
+    """A black hole in AdS: a reflecting conformal boundary at the outer end (Dirichlet, the normalisable falloff)."""
+    from derive.solve.bound import is_ads
+
+    return is_ads(problem)
 
 
 def tail(problem) -> tuple[float, float]:
@@ -91,6 +100,10 @@ def far_radius(problem, l, omegas, probe=None) -> float:
     solution starts; any admixture of the growing one then dies as e^-80 on the way in."""
     if has_cosmological_horizon(problem):   # the matching radius, where the cosmological horizon's wave meets
         return matching_radius(problem, [] if probe is None else [probe])
+    if _ads(problem):     # the normalisable solution starts on its leading power there (next term (L/r)^2)
+        from derive.solve.bound import ads_boundary
+
+        return max(1e6 * ads_boundary(problem)[0], 2 * (probe or 0.0))
     L = problem.length_scale
     threshold, C = tail(problem)
     omegas = np.asarray(omegas, dtype=float)
@@ -143,6 +156,8 @@ def layout(problem, l, omegas, probe=None) -> Layout:
     far = far_radius(problem, l, omegas, probe)
     if has_cosmological_horizon(problem):
         return Layout(s_max, far, 0.0, far, 0)
+    if _ads(problem):     # the tail check starts the normalisable solution four times farther out
+        return Layout(s_max, far, 0.0, 4 * far, BASE_STEPS // 2)
     threshold = continuum_threshold(problem)
     if np.all(omegas < threshold):
         kappa_min = np.sqrt(threshold ** 2 - float(np.max(omegas)) ** 2)
@@ -318,12 +333,21 @@ def _march(problem, l, omegas, steps, start, far_factor, probe, fixed) -> March:
                                               OUTER_START / 4 if far_factor > 1 else OUTER_START)
         return _cosmological_end(omegas, state, log_scale, u_c, du_c, c_scale, probe_u, probe_log, outer,
                                  outer_log, outer_det)
+    if _ads(problem):
+        # a reflecting boundary: nothing is transmitted, the only modes are up modes totally reflected, split
+        # against the normalisable solution exactly as below the mass against the decaying one
+        from derive.solve.bound import _outer_solution
+
+        s0, s1 = _outer_solution(problem, l, omegas, far)
+        return _evanescent(omegas, s0, s1, state, log_scale, total_det, probe_u, outer, outer_log, outer_det)
     below = omegas < continuum_threshold(problem)
     if np.any(below) and not np.all(below):
         raise ValueError("one march takes frequencies all above or all below the mass threshold")
     V, dV = far_potential(problem.regions[-1], l, far)
     if np.all(below):
-        return _evanescent(omegas, V, dV, state, log_scale, total_det, probe_u, outer, outer_log, outer_det)
+        kappa = np.sqrt(V - omegas ** 2)
+        s0, s1 = np.ones(n), -kappa - dV / (4 * kappa * kappa)
+        return _evanescent(omegas, s0, s1, state, log_scale, total_det, probe_u, outer, outer_log, outer_det)
     k = np.sqrt(omegas ** 2 - V)
     # the corrected Liouville-Green split: with g = k'/(2k) = -V'/(4k^2) (' = d/dr*), the waves are
     # k^-1/2 e^{-+i int k} with u'/u = -+ i k - g, so u' + g u carries the split; its amplitude error is then of
@@ -349,20 +373,19 @@ def _march(problem, l, omegas, steps, start, far_factor, probe, fixed) -> March:
     return result
 
 
-def _evanescent(omegas, V, dV, state, log_scale, total_det, probe_u, outer, outer_log, outer_det) -> March:
+def _evanescent(omegas, s0, s1, state, log_scale, total_det, probe_u, outer, outer_log, outer_det) -> March:
     """Below the mass nothing reaches infinity: |T|^2 = 0, |R|^2 = 1, and the only modes are up modes, totally
     reflected.  With u_dec the solution decaying far away (started there as kappa^-1/2 e^{-int kappa}:
     u'/u = -kappa - kappa'/(2 kappa)) and u_H the ingoing solution from the horizon (unit amplitude), the
     Wronskian W[u_H, u_dec] = 2 i omega A at the horizon, where u_dec -> A e^{+i omega r*} + conj(A)
     e^{-i omega r*}; so u_up = u_dec / A.  W is evaluated at the far radius (where u_H is the growing solution
     and no digits cancel) and carried back by the interfaces' determinants; u_dec(r0) comes from the inverse of
-    the propagator beyond r0, growing toward r0, as u_inf does above the mass."""
+    the propagator beyond r0, growing toward r0, as u_inf does above the mass.  (s0, s1) is u_dec's
+    (u, du/dr*) at the far radius; at an AdS boundary the normalisable solution takes its place."""
     n = len(omegas)
     result = March(np.zeros(n), np.ones(n))
     if not probe_u:
         return result
-    kappa = np.sqrt(V - omegas ** 2)
-    s0, s1 = np.ones(n), -kappa - dV / (4 * kappa * kappa)
     wronskian = state[:, 0] * s1 - state[:, 1] * s0
     log_A = np.log(np.abs(wronskian)) + log_scale - np.log(np.abs(total_det)) - np.log(2 * omegas)
     # u_up = u_dec / A: u_dec is real, so its phase is that of 1/A (W's phase, the interfaces' determinants are
@@ -431,7 +454,10 @@ def transmission(problem, l: int, omegas, tolerance: float = 1e-10, steps: int =
     if omegas.ndim != 1 or np.any(~np.isfinite(omegas)) or np.any(omegas <= 0):
         raise ValueError("frequencies must be positive and finite")
     n = len(omegas)
-    below = omegas < continuum_threshold(problem)
+    below = omegas < continuum_threshold(problem) if not _ads(problem) else np.ones(n, dtype=bool)
+    if np.any(below) and _ads(problem):
+        # a reflecting boundary: nothing is transmitted, |T|^2 = 0 and |R|^2 = 1 exactly
+        return Scattering(omegas, l, np.zeros(n), np.ones(n), np.zeros(n), np.zeros(n), tolerance)
     if np.any(below):
         # below the mass nothing reaches infinity: |T|^2 = 0 and |R|^2 = 1 exactly
         T, R, error = np.zeros(n), np.ones(n), np.zeros(n)
