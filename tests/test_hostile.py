@@ -757,3 +757,22 @@ def test_a_point_beyond_the_cosmological_horizon_is_refused(sandbox, capsys, arg
     _spec(text.replace('at = "r = L/2"', 'at = "r = 2*L"'), "outside.toml")
     _spec(text.replace('at = "r = L/2"', 'at = "r = L"'), "edge.toml")
     _run_refused(sandbox, capsys, argv, key, outputs=("outside.toml", "edge.toml"))
+
+
+@pytest.mark.parametrize("where,problem", [
+    ("r > horizon", "no interval"),                # f = 1 - 2M/r - r^2/L^2: f > 0 only between the roots...
+    ("horizon < r < horizon", None),               # ...which is fine
+    ("horizon**2 < r", "alone"),
+    ("r > horizon + 1", "alone"),
+])
+def test_horizon_as_a_bound(sandbox, capsys, where, problem):
+    text = ('format = 1\ntitle = "t"\n[parameters]\nM = { value = 1.0, positive = true }\n'
+            'L = { value = 10.0, positive = true }\n[coordinates]\nnames = ["t", "r", "theta", "phi"]\n'
+            f'positive = ["r"]\n[[region]]\nname = "out"\nwhere = "{where}"\n'
+            'line_element = "-(1 - 2*M/r - r**2/L**2)*dt**2 + dr**2/(1 - 2*M/r - r**2/L**2) + '
+            'r**2*(dtheta**2 + sin(theta)**2*dphi**2)"\n[field]\nmass = "0"\ncoupling = "0"\n')
+    path = _spec(text)
+    if problem is None:
+        assert main(["check", path]) == 0
+        return
+    _run_refused(sandbox, capsys, ["check", path], "region[0].where")

@@ -163,9 +163,21 @@ def test_schwarzschild_de_sitter_example(capsys):
     data = json.loads(capsys.readouterr().out)
     zero = data["gaps"].index(0.0)
     states = {name: value["response"][zero] for name, value in data["states"].items()}
-    assert states["boulware"] == pytest.approx(0.07900, abs=1e-5)
-    assert states["bunch-davies"] == pytest.approx(0.09439, abs=1e-5)
-    assert states["unruh"] == pytest.approx(0.11271, abs=1e-5)
-    assert states["hartle-hawking"] == pytest.approx(0.17026, abs=1e-5)
-    assert data["local_temperature"] == pytest.approx(0.058260, rel=1e-4)
-    assert data["local_cosmological_temperature"] == pytest.approx(0.019918, rel=1e-4)
+    assert states["boulware"] == pytest.approx(0.07902, abs=1e-5)
+    assert states["bunch-davies"] == pytest.approx(0.09514, abs=1e-5)
+    assert states["unruh"] == pytest.approx(0.11388, abs=1e-5)
+    assert states["hartle-hawking"] == pytest.approx(0.16656, abs=1e-5)
+    assert data["local_temperature"] == pytest.approx(0.056689, rel=1e-4)
+    assert data["local_cosmological_temperature"] == pytest.approx(0.020455, rel=1e-4)
+
+
+def test_schwarzschild_de_sitter_horizons_found_from_the_word_horizon():
+    # 'horizon < r < horizon': the roots of r^3 - L^2 r + 2 M L^2 (M = 1, L = 10) between which f > 0, against
+    # numpy's polynomial roots (an outside reference), each classified with its surface gravity |f'|/2.
+    st = derive.load(spec("schwarzschild_de_sitter"))
+    horizons = {h.kind: h for h in st.field_problem.horizons}
+    roots = sorted(z.real for z in np.roots([1.0, 0.0, -100.0, 200.0]) if z.real > 0)
+    assert horizons["black hole"].value == pytest.approx(roots[0], rel=1e-14)
+    assert horizons["cosmological"].value == pytest.approx(roots[1], rel=1e-14)
+    for h, r in ((horizons["black hole"], roots[0]), (horizons["cosmological"], roots[1])):
+        assert h.surface_gravity == pytest.approx(abs(2 / r ** 2 - 2 * r / 100) / 2, rel=1e-12)

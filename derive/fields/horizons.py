@@ -29,9 +29,8 @@ import mpmath
 import sympy as sp
 
 from derive.errors import GeometryError
+from derive.spec.roots import DIGITS, _exact_values, _number, _numerator_poly, real_roots
 
-DIGITS = 40
-MAX_DEGREE = 60          # numerators of higher degree in r are treated as not polynomial
 
 
 @dataclass(frozen=True)
@@ -55,62 +54,6 @@ class Horizon:
     @property
     def hawking_temperature(self) -> float:
         return self.surface_gravity / (2 * float(mpmath.pi))
-
-
-def _numerator_poly(expr, r):
-    """(numerator, denominator) of a rational function of r, the numerator a Poly in r; None otherwise."""
-    expr = sp.cancel(sp.together(expr))
-    if not expr.is_rational_function(r):
-        return None
-    numer, denom = sp.fraction(expr)
-    try:
-        poly = sp.Poly(numer, r)
-    except sp.PolynomialError:
-        return None
-    if poly.degree() > MAX_DEGREE or poly.degree() < 1:
-        return None
-    return poly, denom
-
-
-def _number(expr, values) -> mpmath.mpf | None:
-    try:
-        value = sp.N(sp.S(expr).subs(values), DIGITS)
-    except (TypeError, ValueError):
-        return None
-    if not value.is_number or not value.is_real:
-        return None
-    return mpmath.mpf(str(value))
-
-
-def _exact_values(values: dict) -> dict:
-    """The parameters' double values as exact rationals, so that 40 digits mean 40 digits."""
-    return {k: sp.Rational(repr(float(v))) for k, v in values.items()}
-
-
-def real_roots(expr, r, values) -> list[mpmath.mpf] | None:
-    """The real roots of a rational function's numerator at the parameters' values (40 digits), or None."""
-    split = _numerator_poly(expr, r)
-    if split is None:
-        return None
-    poly, _ = split
-    exact = _exact_values(values)
-    coefficients = []
-    for c in poly.all_coeffs():
-        number = _number(c, exact)
-        if number is None:
-            return None
-        coefficients.append(number)
-    while coefficients and coefficients[0] == 0:
-        coefficients.pop(0)
-    if len(coefficients) < 2:
-        return []
-    with mpmath.workdps(DIGITS):
-        try:
-            roots = mpmath.polyroots(coefficients, maxsteps=400, extraprec=4 * DIGITS)
-        except mpmath.libmp.NoConvergence:
-            return None
-        scale = max(abs(z) for z in roots) if roots else 1
-        return sorted(mpmath.re(z) for z in roots if abs(mpmath.im(z)) <= mpmath.mpf(10) ** (-25) * (1 + scale))
 
 
 def _value_at(expr, r, point, values):

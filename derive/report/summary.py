@@ -108,6 +108,14 @@ def junction_summary(spacetime) -> str:
     return "\n".join(lines)
 
 
+def _numeric(text) -> bool:
+    try:
+        float(str(text))
+    except ValueError:
+        return False
+    return True
+
+
 def field_summary(spacetime, data) -> str:
     lines = [f"{spacetime.title}: field with mass {data['mass']}, coupling {data['coupling']}"
              + (f", l = {data['l']}" if data["l"] is not None else "")]
@@ -120,7 +128,8 @@ def field_summary(spacetime, data) -> str:
             detail = end.get("tail") or end.get("region") or ""
             if end["kind"] == "horizon":
                 detail = (f"({end['horizon']}) at {end['at']}"
-                          + (f" = {end['radius']}" if end['radius'] != end['at'] else "")
+                          + (f" = {end['radius']}" if end['radius'] != end['at'] and not _numeric(end['radius'])
+                             else "")
                           + (f" = {end['value']:.15g}" if str(end['radius']) != f"{end['value']:.15g}" else "")
                           + f", surface gravity kappa = {end['surface_gravity']}")
             lines.append(f"  {side} end: {end['kind']} {detail}".rstrip())

@@ -14,6 +14,7 @@ import stat
 import tomllib
 from typing import Any, Mapping
 
+import mpmath
 import sympy as sp
 
 from derive.errors import ExpressionError, InputError, SpecError
@@ -351,12 +352,16 @@ def from_mapping(data: Mapping[str, Any], path: str = "<spec>", overrides: Mappi
         where_text, where, domains = None, None, ()
         if "where" in table:
             where_text = reader.text(table["where"], f"{key}.where")
+            # 'horizon' may stand for a bound at a root of f (found at 40 digits below)
+            where_names = dict(local) if "horizon" in local else {**local, "horizon": HORIZON}
             try:
-                where = ExpressionParser(local, functions).parse_relation(where_text)
+                where = ExpressionParser(where_names, functions).parse_relation(where_text)
             except ExpressionError as exc:
                 raise exc.located(path, f"{key}.where") from None
             where = reader.substitute(where, definitions, f"{key}.where")
             domains = _domains(reader, where, coordinates, f"{key}.where")
+            if "horizon" not in local and where.has(HORIZON):
+                domains = _resolve_horizons(reader, domains, metric, coordinates, parameters, f"{key}.where")
         regions[name] = Region(name, metric, display, le_text, where, where_text, domains, tuple(unknowns))
 
     # interfaces ---------------------------------------------------------------------------------
@@ -536,6 +541,47 @@ def _equation(reader, parser, text, coordinates, key, definitions):
     if right.free_symbols & set(coordinates):
         reader.fail(f"the right side of {text!r} must not depend on the coordinates", key)
     return left, right, text
+
+
+HORIZON = sp.Symbol("horizon", positive=True)
+
+
+def _resolve_horizons(reader, domains, metric, coordinates, parameters, key) -> tuple[Domain, ...]:
+    """Bounds written as 'horizon' become the roots of f = -g_tt they stand for (30-digit numbers; the field
+    stage then finds them to be horizons, names them r_h, r_c and divides them out)."""
+    from derive.spec.roots import horizon_bounds
+
+    values = {p.symbol: p.value for p in parameters.values() if p.value is not None}
+    out = []
+    for domain in domains:
+        bounds = [domain.lower, domain.upper]
+        if not any(b is not None and b.has(HORIZON) for b in bounds):
+            out.append(domain)
+            continue
+        if domain.coordinate != coordinates[1]:
+            reader.fail("'horizon' can only bound the radial coordinate", key)
+        if any(b is not None and b.has(HORIZON) and b != HORIZON for b in bounds):
+            reader.fail("write 'horizon' alone as a bound (e.g. 'r > horizon', 'horizon < r < horizon')", key)
+        given = []
+        for b in bounds:
+            if b == HORIZON:
+                given.append("horizon")
+            elif b is None:
+                given.append(None)
+            else:
+                value = _value_at(reader, b, values, key)
+                if value is None:
+                    reader.fail(f"the bound {b} needs numeric parameters to locate the horizon beside it", key)
+                given.append(mpmath.mpf(value))
+        try:
+            lower, upper = horizon_bounds(-metric[0, 0], domain.coordinate, values, *given)
+        except ValueError as exc:
+            reader.fail(f"cannot place 'horizon': {exc}", key)
+        out.append(Domain(domain.coordinate,
+                          sp.Float(mpmath.nstr(lower, 30), 30) if lower is not None else domain.lower,
+                          sp.Float(mpmath.nstr(upper, 30), 30) if upper is not None else domain.upper,
+                          domain.lower_closed, domain.upper_closed))
+    return tuple(out)
 
 
 def _domains(reader, where, coordinates, key) -> tuple[Domain, ...]:
