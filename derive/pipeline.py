@@ -46,7 +46,10 @@ def _frequencies(omega) -> np.ndarray:
 
 
 def _unsupported(spacetime, what: str, exc, key=None):
-    return NotSupported(f"derive cannot {what} yet: {exc}", file=spacetime.path, key=key)
+    from derive.solve.centre import Divergent
+
+    when = "" if isinstance(exc, Divergent) else " yet"     # a divergence is not a missing feature
+    return NotSupported(f"derive cannot {what}{when}: {exc}", file=spacetime.path, key=key)
 
 
 def spectrum(spacetime, omega, at: float | None = None, l: int = 0, tolerance: float | None = None,

@@ -16,7 +16,7 @@ import numpy as np
 from derive.detector.response import response, round_trip, trials_to_distinguish
 from derive.detector.switching import switching_from_spec
 from derive.errors import AccuracyError
-from derive.solve.centre import Unsupported
+from derive.solve.centre import Divergent, Unsupported
 
 PERTURBATIVE_LIMIT = 0.1
 
@@ -187,7 +187,7 @@ def detector_response(problem, detector, tolerance: float = 1e-10, gaps=None, st
     switching = switching_from_spec({"shape": detector.shape}, detector.switching, detector.profile)
     D = problem.dimension
     if switching.decay is not None and switching.decay <= D - 2:
-        raise Unsupported(f"|chi_hat|^2 of this switching falls only like k^-{switching.decay} (a jump in chi or "
+        raise Divergent(f"|chi_hat|^2 of this switching falls only like k^-{switching.decay} (a jump in chi or "
                           f"a low derivative), while the density grows like nu^{D - 3} in D = {D}: the response "
                           "diverges in the ultraviolet (logarithmically for a sharp switching in 3+1; Svaiter & "
                           "Svaiter, Phys. Rev. D 46, 5267 (1992), from memory): choose a smoother switching "
@@ -210,7 +210,7 @@ def detector_response(problem, detector, tolerance: float = 1e-10, gaps=None, st
     from derive.solve.cosmological import constant_zero_mode, has_cosmological_horizon
 
     if has_cosmological_horizon(problem) and constant_zero_mode(problem):
-        raise Unsupported("inside a cosmological horizon a massless field without curvature coupling has a constant "
+        raise Divergent("inside a cosmological horizon a massless field without curvature coupling has a constant "
                           "l = 0 solution at zero frequency, bounded at both ends: its density grows like 1/omega at "
                           "low frequency and the response diverges in the infrared (the static patch's infrared "
                           "problem; in de Sitter the Bunch-Davies state does not exist for such a field). Give the "

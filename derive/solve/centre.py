@@ -33,6 +33,10 @@ class Unsupported(Exception):
     """A problem the solver does not handle yet (the message says which part)."""
 
 
+class Divergent(Unsupported):
+    """A quantity that is infinite for this input (an infrared or ultraviolet divergence): refused, not 'yet'."""
+
+
 @dataclass
 class DensityResult:
     """Spectral density per unit omega of the spec's time at the centre, with its error estimate."""
