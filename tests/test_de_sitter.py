@@ -138,3 +138,14 @@ def test_vacuum_is_ambiguous_inside_a_cosmological_horizon(write_spec):
         st.response()
     assert "bunch-davies" in str(caught.value)
 
+
+
+def test_the_infrared_divergence_of_a_massless_minimally_coupled_field_is_refused(write_spec):
+    # psi = const solves the l = 0 equation at omega = 0 and is bounded at the centre and at the horizon, so the
+    # density grows like 1/omega (test above: 0.2558 at omega = 0.1) and every response diverges in the infrared
+    # (the Bunch-Davies state does not exist for this field: Allen, Phys. Rev. D 32, 3136 (1985), from memory).
+    # Refused as a divergence, not as a missing feature; the same check guards Schwarzschild-de Sitter.
+    st = derive.load(write_spec(patch(coupling="0")))
+    with pytest.raises(NotSupported) as caught:
+        st.response()
+    assert "infrared" in str(caught.value) and "yet" not in str(caught.value)

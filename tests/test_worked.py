@@ -167,6 +167,9 @@ def test_schwarzschild_de_sitter_example(capsys):
     assert states["bunch-davies"] == pytest.approx(0.09514, abs=1e-5)
     assert states["unruh"] == pytest.approx(0.11388, abs=1e-5)
     assert states["hartle-hawking"] == pytest.approx(0.16656, abs=1e-5)
+    # ordered as their thermal factors order them: none; both sets at the cooler T_c; each set at its own
+    # horizon's temperature; both at the hotter T_h (docs/conventions.md section 7)
+    assert states["boulware"] < states["bunch-davies"] < states["unruh"] < states["hartle-hawking"]
     assert data["local_temperature"] == pytest.approx(0.056689, rel=1e-4)
     assert data["local_cosmological_temperature"] == pytest.approx(0.020455, rel=1e-4)
 
