@@ -45,8 +45,8 @@ coupling = 0.01
 
 def reference_up_mode(l, omega, r0, dps=25):
     """|u_up(r0)|^2 independently of derive: the radial equation with V = f (l(l+1)/r^2 + f'/r) integrated by
-    mpmath's Taylor-series ODE solver (25 digits; 30 agree to 1e-14), outward in ln(r - r_h) from u_H = (r - r_h)^(-i omega/(2 kappa)) at
-    r - r_h = e^-30, and inward in -ln r from the normalisable u = r^-2 (1 + c/r^2 + ...) at r = 10^8 L (the next
+    mpmath's Taylor-series ODE solver (25 digits; 30 agree to 1e-14), outward in ln(r - r_h) from
+    u_H = (r - r_h)^(-i omega/(2 kappa)) at r - r_h = e^-30, and inward in -ln r from the normalisable u = r^-2 (1 + c/r^2 + ...) at r = 10^8 L (the next
     term is 10^-16 of it); the real boundary solution is u_b = A u_H + conj(A) conj(u_H) near the horizon with
     |A| = |W[u_H, u_b]|/(2 omega), and u_up = u_b/A (unit amplitude from the past horizon; derived here)."""
     with mpmath.workdps(dps):
