@@ -245,7 +245,8 @@ def field_sections(derivation: Derivation, spacetime) -> None:
                 text += f" with region {escape(end['region'])}"
             if end["kind"] == "horizon":
                 text += (f" ({escape(end['horizon'])}) at the root ${sp.latex(end['at'])}"
-                         + (f" = {sp.latex(end['radius'])}" if end["radius"] != end["at"] else "")
+                         + (f" = {sp.latex(end['radius'])}" if end["radius"] != end["at"]
+                            and not sp.S(end["radius"]).is_Float else "")
                          + f" \\approx {end['value']:.10g}$ of $f$")
             if end.get("tail"):
                 text += f", {escape(end['tail'])} tail ({escape(end.get('behaviour', ''))})"
