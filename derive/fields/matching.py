@@ -21,7 +21,7 @@ from functools import cached_property
 import sympy as sp
 
 from derive.errors import JunctionError
-from derive.geometry.checks import simplify_checked, vanishes
+from derive.geometry.checks import bounded, simplify_checked, vanishes
 
 
 class Matching:
@@ -81,8 +81,8 @@ class Matching:
                                 file=self.problem.spacetime.path)
         du_second = sp.expand(solution[0][du2])
         values = self.problem.spacetime.parameter_values
-        row = [simplify_checked(sp.simplify(du_second.coeff(u)), values),
-               simplify_checked(sp.simplify(du_second.coeff(du1)), values)]
+        coefficients = [du_second.coeff(u), du_second.coeff(du1)]
+        row = [simplify_checked(bounded(lambda c=c: sp.simplify(c), c), values) for c in coefficients]
         return sp.Matrix([[1, 0], row])
 
     @cached_property

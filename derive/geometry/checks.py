@@ -8,6 +8,10 @@ terms.  This is a check, not a proof, and the code that relies on it says so.
 
 from __future__ import annotations
 
+import contextlib
+import signal
+import threading
+
 import mpmath
 import sympy as sp
 
@@ -39,6 +43,44 @@ def vanishes(expr, values: dict, points: list[dict] | None = None, simplify: boo
     return True
 
 
+class SymbolicTimeout(Exception):
+    """A display simplification that did not finish within its time limit (see :func:`time_limit`)."""
+
+
+_LIMITED = [False]
+
+
+@contextlib.contextmanager
+def time_limit(seconds: float):
+    """Raise SymbolicTimeout in the block after ``seconds`` (a real-time timer; main thread only, elsewhere and
+    inside another limit the block runs unbounded).  For simplifications whose fallback is the unsimplified,
+    equally exact form: sympy's simplify and factor can run for many minutes on an unlucky term order."""
+    if _LIMITED[0] or threading.current_thread() is not threading.main_thread():
+        yield
+        return
+
+    def expire(signum, frame):
+        raise SymbolicTimeout(f"not finished in {seconds:g} s")
+    previous = signal.signal(signal.SIGALRM, expire)
+    _LIMITED[0] = True
+    signal.setitimer(signal.ITIMER_REAL, seconds)
+    try:
+        yield
+    finally:
+        signal.setitimer(signal.ITIMER_REAL, 0)
+        signal.signal(signal.SIGALRM, previous)
+        _LIMITED[0] = False
+
+
+def bounded(function, fallback, seconds: float = 10.0):
+    """function() within a time limit, else ``fallback`` (an exact form that is merely longer)."""
+    try:
+        with time_limit(seconds):
+            return function()
+    except SymbolicTimeout:
+        return fallback
+
+
 def simplify_checked(expr, values: dict):
     """A shorter form of ``expr`` that takes square roots of squares as positive, accepted only if it agrees
     with ``expr`` at 30 digits at the spec's parameter values (so the sign assumption is checked, not made)."""
@@ -51,9 +93,9 @@ def simplify_checked(expr, values: dict):
         return -arg if number.is_number and number.is_real and number < 0 else arg
     candidate = expr.replace(radical, lambda e: sp.factor(e.base) ** e.exp)
     candidate = sp.powdenest(candidate.replace(sp.Abs, signed), force=True).replace(sp.Abs, signed)
-    candidates = [sp.simplify(candidate) if candidate.count_ops() < 200 else candidate]
-    together = sp.factor(sp.together(candidate))
-    candidates += [together, radical_normal_form(together)]
+    candidates = [bounded(lambda: sp.simplify(candidate), candidate) if candidate.count_ops() < 200 else candidate]
+    together = bounded(lambda: sp.factor(sp.together(candidate)), candidate)
+    candidates += [together, bounded(lambda: radical_normal_form(together), together)]
     best = expr
     for candidate in candidates:
         if sp.count_ops(candidate) < sp.count_ops(best) and vanishes(candidate - expr, values, simplify=False):
