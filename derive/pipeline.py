@@ -19,6 +19,7 @@ import numpy as np
 
 from derive.errors import InputError, NotSupported
 from derive.results import Response, Spectrum
+from derive.solve.cosmological import temperature as cosmological_temperature
 
 DEFAULT_TOLERANCE = 1e-10
 
@@ -103,15 +104,6 @@ def _check_radius(spacetime, problem, radius: float, key: str) -> None:
                          file=spacetime.path, key=key)
 
 
-def _cosmological_temperature(problem) -> float | None:
-    """kappa_c/(2 pi) of a cosmological horizon at the outer end (in the spec's time), else None."""
-    from derive.solve.cosmological import has_cosmological_horizon
-
-    if not has_cosmological_horizon(problem):
-        return None
-    return float(problem.regions[-1].outer_surface_gravity / (2 * np.pi))
-
-
 def _floats(values):
     return [None if v is None or not np.isfinite(v) else float(v) for v in np.asarray(values, dtype=float)]
 
@@ -128,7 +120,7 @@ def _density(spacetime, problem, omegas, at, l, tolerance, progress=None) -> Spe
             "units": "per unit omega of the spec's time coordinate",
             "minkowski_density": _floats(result["minkowski"])}
     ok, message = bool(result["ok"]), result["message"]
-    temperature = _cosmological_temperature(problem)
+    temperature = cosmological_temperature(problem)
     if temperature is not None:
         data["cosmological_temperature"] = temperature
         data["note"] = ("density of the static vacuum (positive frequencies of the static time t); the "
@@ -268,7 +260,7 @@ def two_point(spacetime, omega, between, tolerance: float | None = None, progres
             result = regular_two_point(problem, omegas, first.radius, second.radius, c, tolerance,
                                        progress=progress)
             data["state"] = "vacuum"
-            temperature = _cosmological_temperature(problem)
+            temperature = cosmological_temperature(problem)
             if temperature is not None:   # the static vacuum, and the Bunch-Davies state built on it
                 data["state"] = "static vacuum"
                 data["cosmological_temperature"] = temperature

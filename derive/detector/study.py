@@ -129,7 +129,7 @@ def proper_density(problem, tolerance, r0: float = 0.0, state: str = "vacuum", p
                               "'bunch-davies' (the Euclidean state: thermal, with respect to the static time, at "
                               "the horizon's temperature kappa_c/(2 pi))")
         solve = density_function(problem, r0, tolerance, progress)
-        temperature = problem.regions[-1].outer_surface_gravity / (2 * np.pi)
+        temperature = cosmological_temperature(problem, 1.0)
 
         def thermal_density_at(nu):
             omega = sqrt_f0 * np.asarray(nu)
@@ -162,22 +162,17 @@ def proper_density(problem, tolerance, r0: float = 0.0, state: str = "vacuum", p
 def local_temperature(problem, sqrt_f0: float) -> float | None:
     """The local (Tolman) temperature of the horizon's thermal state in the detector's proper time,
     kappa/(2 pi sqrt(f(r0))), or None without a horizon."""
-    from derive.solve.cosmological import has_cosmological_horizon
-
     if has_horizon(problem):
         return problem.regions[0].surface_gravity / (2 * np.pi) / sqrt_f0
-    if has_cosmological_horizon(problem) and problem.regions[-1].outer_surface_gravity is not None:
-        return problem.regions[-1].outer_surface_gravity / (2 * np.pi) / sqrt_f0
-    return None
+    return cosmological_temperature(problem, sqrt_f0)
 
 
 def cosmological_temperature(problem, sqrt_f0: float) -> float | None:
     """kappa_c/(2 pi sqrt(f(r0))) of a cosmological horizon, or None."""
-    from derive.solve.cosmological import has_cosmological_horizon
+    from derive.solve.cosmological import temperature
 
-    if has_cosmological_horizon(problem) and problem.regions[-1].outer_surface_gravity is not None:
-        return problem.regions[-1].outer_surface_gravity / (2 * np.pi) / sqrt_f0
-    return None
+    value = temperature(problem)
+    return None if value is None else value / sqrt_f0
 
 
 def detector_response(problem, detector, tolerance: float = 1e-10, gaps=None, state=None, progress=None,

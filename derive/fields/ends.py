@@ -87,8 +87,7 @@ def _factored(element):
     cancellation that expanded sums of large terms suffer)."""
     def factor(poly):
         coefficient, factors = poly.factor_list()
-        return coefficient.as_expr() if hasattr(coefficient, "as_expr") else sp.S(coefficient) if not factors else \
-            sp.S(coefficient) * sp.Mul(*[f.as_expr() ** m for f, m in factors])
+        return poly.ring.domain.to_sympy(coefficient) * sp.Mul(*[f.as_expr() ** m for f, m in factors])
     return factor(element.numer) / factor(element.denom)
 
 

@@ -32,6 +32,14 @@ def has_cosmological_horizon(problem) -> bool:
     return last.upper_kind == "horizon" and last.upper is not None
 
 
+def temperature(problem) -> float | None:
+    """kappa_c/(2 pi) of the cosmological horizon at the outer end, in the spec's time; None without one."""
+    last = problem.regions[-1]
+    if not has_cosmological_horizon(problem) or last.outer_surface_gravity is None:
+        return None
+    return float(last.outer_surface_gravity) / (2 * np.pi)
+
+
 def matching_radius(problem, radii=()) -> float:
     """r_m: halfway between the last region's lower end (or the outermost requested radius) and r_c."""
     last = problem.regions[-1]

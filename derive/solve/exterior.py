@@ -38,6 +38,7 @@ from derive.parallel import split_map
 
 from derive.solve.centre import (Unsupported, continuum_threshold, harmonic_weight, region_at, rounding_floor,
                                  shortfall)
+from derive.solve.cosmological import temperature as cosmological_temperature
 from derive.solve.horizon import START, _run, check_supported, layout, threshold_rounding
 
 SPLIT_FROM = 64     # frequencies from which the set is split in two halves (one per core)
@@ -306,15 +307,7 @@ def _summed(problem, omegas, pair, cos_gamma, tolerance, progress):
 
 def states_of(problem) -> tuple:
     """The states outside this black hole: STATES, and 'bunch-davies' inside a cosmological horizon."""
-    return STATES + (("bunch-davies",) if _outer_temperature(problem) is not None else ())
-
-
-def _outer_temperature(problem) -> float | None:
-    from derive.solve.cosmological import has_cosmological_horizon
-
-    if not has_cosmological_horizon(problem):
-        return None
-    return float(problem.regions[-1].outer_surface_gravity) / (2 * np.pi)
+    return STATES + (("bunch-davies",) if cosmological_temperature(problem) is not None else ())
 
 
 def exterior_density(problem, omegas, r0: float, tolerance: float = 1e-10, progress=None) -> ExteriorTwoPoint:
@@ -324,7 +317,7 @@ def exterior_density(problem, omegas, r0: float, tolerance: float = 1e-10, progr
     (inward, outward, size_in, size_up, e_in, e_out), l, temperature = _summed(problem, omegas, (r0, r0), 1.0,
                                                                                 tolerance, progress)
     return ExteriorTwoPoint(np.asarray(omegas, dtype=float), (r0, r0), 1.0, inward.real, outward.real, size_in,
-                            size_up, e_in, e_out, temperature, tolerance, l, _outer_temperature(problem))
+                            size_up, e_in, e_out, temperature, tolerance, l, cosmological_temperature(problem))
 
 
 def exterior_two_point(problem, omegas, r1: float, r2: float, cos_gamma: float, tolerance: float = 1e-10,
@@ -339,4 +332,4 @@ def exterior_two_point(problem, omegas, r1: float, r2: float, cos_gamma: float, 
     if r1 > r2:      # the sum was taken with the points in increasing order: S(x2, x1) = conj(S(x1, x2))
         inward, outward = np.conj(inward), np.conj(outward)
     return ExteriorTwoPoint(np.asarray(omegas, dtype=float), (r1, r2), float(cos_gamma), inward, outward, size_in,
-                            size_up, e_in, e_out, temperature, tolerance, l, _outer_temperature(problem))
+                            size_up, e_in, e_out, temperature, tolerance, l, cosmological_temperature(problem))
