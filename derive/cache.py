@@ -80,14 +80,23 @@ def cache_root() -> Path | None:
 def _signing_key(root: Path) -> bytes | None:
     path = root / KEY_FILE
     if not path.exists():
+        # written whole under a private temporary name, then linked into place: another process (parallel test
+        # workers, two commands at once) sees no key or the whole key, never a half-written one
+        tmp = root / f".{KEY_FILE}.{os.getpid()}.tmp"
         try:
-            fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
+            fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
+        except OSError:
+            return None
+        try:
             with os.fdopen(fd, "wb") as handle:
                 handle.write(os.urandom(32))
+            os.link(tmp, path)
         except FileExistsError:
             pass
         except OSError:
             return None
+        finally:
+            tmp.unlink(missing_ok=True)
     why = _private(path, folder=False)
     if why:
         _warn(root, f"its signing key {path.name}: {why}")

@@ -652,6 +652,26 @@ def test_cache_entries_others_wrote_are_never_unpickled(tmp_path, monkeypatch):
     assert cache.get("christoffel", expected=dict) is None
 
 
+def _read_key(root):
+    from derive.cache import _signing_key
+
+    return _signing_key(root)
+
+
+def test_processes_creating_the_signing_key_at_once_share_one_whole_key(tmp_path):
+    """Parallel test workers and two commands at once create the cache's key together: each sees the same
+    32-byte key (written under a temporary name and linked into place), none a half-written one."""
+    from concurrent.futures import ProcessPoolExecutor
+
+    root = tmp_path / "cache"
+    root.mkdir(mode=0o700)
+    with ProcessPoolExecutor(4) as pool:
+        keys = list(pool.map(_read_key, [root] * 16))
+    assert all(key is not None and len(key) == 32 for key in keys)
+    assert len(set(keys)) == 1
+    assert sorted(p.name for p in root.iterdir()) == ["signing.key"]   # no temporary left behind
+
+
 def test_a_cache_folder_others_may_write_is_not_used(tmp_path, monkeypatch, capsys):
     from derive import cache as cache_module
 
