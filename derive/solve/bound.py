@@ -36,7 +36,7 @@ import numpy as np
 
 from derive.solve.centre import (Unsupported, check_supported, continuum_threshold, coulomb_strength, far_potential,
                                  harmonic_weight, outer_turning_point, region_at)
-from derive.solve.propagation import region_propagator
+from derive.solve.march import Piece, centre_start, march
 
 BISECTIONS = 60
 LEVELS = 4         # levels per l listed by derive spectrum
@@ -164,8 +164,8 @@ def _layout(problem, l, omega_top, points=()):
         elif a > 0 and b / a > 10:
             edges = list(np.geomspace(a, b, int(np.ceil(np.log10(b / a))) + 1))
         edges = sorted(set(edges + [c for c in cuts if a < c < b]))
-        pieces += [(index, x, y, x > 0, 16) for x, y in zip(edges[:-1], edges[1:])]
-    starts = [next((i for i, piece in enumerate(pieces) if piece[1] >= p), len(pieces)) for p in points]
+        pieces += [Piece(index, x, y, 16, "geometric" if x > 0 else "uniform") for x, y in zip(edges[:-1], edges[1:])]
+    starts = [next((i for i, piece in enumerate(pieces) if piece.a >= p), len(pieces)) for p in points]
     return pieces, starts, r_s, far
 
 
@@ -173,62 +173,14 @@ def _march(problem, l, omegas, steps, layout):
     """D(omega) and, at each point of the layout, the regular and the decaying states, all as (value, log scale)
     pairs: the arrays times e^(log scale).  u_reg's normalisation is common to D and its states."""
     pieces, starts, r_s, far = layout
-    n = len(omegas)
-    multiple = max(1, steps // 16)
-    first = problem.regions[0]
-    if r_s == 0.0:
-        state = np.tile([0.0, 1.0], (n, 1))
-        log_scale = np.zeros(n)
-    else:
-        s, a0, a1, a2 = (np.broadcast_to(np.asarray(c, dtype=float), omegas.shape)
-                         for c in np.asarray(first.centre_series(l, omegas), dtype=float)[:4])
-        F = 1.0 / float(np.asarray(first.dtortoise_dr(np.array([r_s]))).reshape(-1)[0])
-        poly = a0 + a1 * r_s + a2 * r_s * r_s
-        state = np.stack([poly, F * (s / r_s * poly + a1 + 2 * a2 * r_s)], axis=1)
-        log_scale = s * np.log(r_s)
-    interfaces = {i.inner: i for i in problem.interfaces}
-    regular = [None] * len(starts)
-    # the propagator from each point to the far radius (unit size, log scale, interface determinants)
-    outer = [np.broadcast_to(np.eye(2), (n, 2, 2)).copy() for _ in starts]
-    outer_log = [np.zeros(n) for _ in starts]
-    outer_det = [np.ones(n) for _ in starts]
-
-    def apply(matrix, scale, position):
-        for j, begin in enumerate(starts):
-            if position >= begin:
-                product = matrix @ outer[j]
-                size = np.max(np.abs(product), axis=(1, 2))
-                outer[j] = product / size[:, None, None]
-                outer_log[j] = outer_log[j] + scale + np.log(size)
-
-    for position, (index, a, b, geometric, count) in enumerate(pieces):
-        region = problem.regions[index]
-        for j, begin in enumerate(starts):
-            if position == begin:
-                regular[j] = (state.copy(), log_scale.copy())
-        matrix, scale = region_propagator(region, l, omegas, a, b, count * multiple, geometric)
-        state = np.einsum("nij,nj->ni", matrix, state)
-        size = np.max(np.abs(state), axis=1)
-        state = state / size[:, None]
-        log_scale = log_scale + scale + np.log(size)
-        apply(matrix, scale, position)
-        last_of_region = position + 1 == len(pieces) or pieces[position + 1][0] != index
-        if last_of_region and region.name in interfaces and (region.upper or np.inf) < far:
-            transfer = np.moveaxis(np.broadcast_to(np.asarray(interfaces[region.name].transfer(l, omegas),
-                                                              dtype=float), (2, 2, n)), -1, 0)
-            state = np.einsum("nij,nj->ni", transfer, state)
-            apply(transfer, np.zeros(n), position)
-            for j, begin in enumerate(starts):
-                if position >= begin:
-                    outer_det[j] = outer_det[j] * np.linalg.det(transfer)
-    for j, begin in enumerate(starts):
-        if begin == len(pieces):
-            regular[j] = (state.copy(), log_scale.copy())
+    state, log_scale = centre_start(problem, l, omegas, r_s)
+    marched = march(problem, l, omegas, pieces, state, log_scale, marks=starts, outer=True,
+                    multiple=max(1, steps // 16))
+    state, log_scale, regular = marched.state, marched.log_scale, marched.marks
     s0, s1 = _outer_solution(problem, l, omegas, far)
     D = (state[:, 0] * s1 - state[:, 1] * s0, log_scale)
     # u_dec at each point through the inverse propagator (adjugate over determinant: the steps are unimodular)
-    decaying = [(np.stack([o[:, 1, 1] * s0 - o[:, 0, 1] * s1, -o[:, 1, 0] * s0 + o[:, 0, 0] * s1], axis=1)
-                 / det[:, None], log) for o, log, det in zip(outer, outer_log, outer_det)]
+    decaying = [marched.back(k, s0, s1) for k in range(len(starts))]
     return D, regular, decaying
 
 

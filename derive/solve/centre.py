@@ -23,7 +23,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from derive.solve.propagation import outer_pieces, region_propagator
+from derive.solve.propagation import outer_pieces
 
 DEFAULT_STEPS = 48
 FAR = 1.0e6          # far radius in units of the problem's length scale
@@ -209,21 +209,16 @@ def rounding_floor(steps: int) -> float:
 
 def _run(problem, omegas, steps):
     """(density, amplitude^2, relative tail error) on a grid of ``steps`` steps per region."""
-    n = len(omegas)
-    first = problem.regions[0]
-    state = np.zeros((n, 2))
-    state[:, 1] = 1.0
-    log_scale = np.zeros(n)
+    from derive.solve.march import Piece, centre_start, march, propagator
+
     start = 0.0
     if problem.dimension != 4:
         # u = r^s (1 + a_1 r + a_2 r^2), s = (D-2)/2: psi = r^-s u -> 1 at the centre; start on the series
         start = min(1e-4 * problem.length_scale, 1e-4 / float(np.max(omegas)))
-        s, a0, a1, a2 = (np.broadcast_to(np.asarray(c, dtype=float), omegas.shape)
-                         for c in np.asarray(first.centre_series(0, omegas), dtype=float)[:4])
-        F = 1.0 / float(np.asarray(first.dtortoise_dr(np.array([start]))).reshape(-1)[0])
-        poly = (a0 + a1 * start + a2 * start * start) / a0
-        state = np.stack([poly, F * (s / start * poly + (a1 + 2 * a2 * start) / a0)], axis=1)
-        log_scale = s * np.log(start)
+    state, log_scale = centre_start(problem, 0, omegas, start)
+    if start > 0:
+        a0 = np.broadcast_to(np.asarray(problem.regions[0].centre_series(0, omegas), dtype=float)[1], omegas.shape)
+        state = state / a0[:, None]
     # the far radius must lie many wavelengths out for the amplitude invariant; the geometric grid makes
     # its cost logarithmic in the radius
     threshold = continuum_threshold(problem)
@@ -232,33 +227,26 @@ def _run(problem, omegas, steps):
 
     cosmological = has_cosmological_horizon(problem)
     r_m = matching_radius(problem) if cosmological else None
-    interfaces = {i.inner: i for i in problem.interfaces}
-    for region in problem.regions:
+    pieces = []
+    for index, region in enumerate(problem.regions):
         lower = max(region.lower, start)
         if cosmological and region is problem.regions[-1]:
-            pieces = [(lower, r_m, steps, False)]
+            pieces.append(Piece(index, lower, r_m, steps))
         elif region.upper is None:
-            pieces = [(a, b, count, True) for a, b, count, _ in
-                      outer_pieces(max(lower, 1e-12), far, steps, problem.length_scale)]
+            pieces += [Piece(index, a, b, count, "geometric") for a, b, count, _ in
+                       outer_pieces(max(lower, 1e-12), far, steps, problem.length_scale)]
         else:
-            pieces = [(lower, region.upper, steps, False)]
-        for lower, upper, count, geometric in pieces:
-            matrix, scale = region_propagator(region, 0, omegas, lower, upper, count, geometric)
-            state = np.einsum("nij,nj->ni", matrix, state)
-            size = np.max(np.abs(state), axis=1)
-            state /= size[:, None]
-            log_scale += scale + np.log(size)
-        if region.name in interfaces:
-            transfer = np.broadcast_to(np.asarray(interfaces[region.name].transfer(0, omegas), dtype=float),
-                                       (2, 2, n))
-            state = np.einsum("ijn,nj->ni", transfer, state)
+            pieces.append(Piece(index, lower, region.upper, steps))
+    marched = march(problem, 0, omegas, pieces, state, log_scale)
+    state, log_scale = marched.state, marched.log_scale
     last = problem.regions[-1]
     if cosmological:
         log_flux, tail_error = flux_at_horizon(problem, 0, omegas, state, r_m, steps)
         amplitude2 = np.exp(log_flux + 2 * log_scale)
     else:
         near = _amplitude2(last, state, omegas, far)
-        matrix, scale = region_propagator(last, 0, omegas, far, 4 * far, max(steps // 8, 8), True)
+        tail = Piece(len(problem.regions) - 1, far, 4 * far, max(steps // 8, 8), "geometric")
+        matrix, scale = propagator(problem, 0, omegas, tail)
         farther = _amplitude2(last, np.einsum("nij,nj->ni", matrix, state), omegas, 4 * far) * np.exp(2 * scale)
         tail_error = np.abs(farther - near) / farther
         amplitude2 = farther * np.exp(2 * log_scale)

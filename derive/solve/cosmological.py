@@ -21,7 +21,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from derive.solve.propagation import region_propagator
+from derive.solve.march import Piece, march
 
 START = 1e-4          # y_0 = START * r_c / max(1, |s|): the truncated series terms ~ (|s| y_0/r_c)^3 stay small
 EFOLD_STEPS = 9.2     # steps are counted per ln(10^4) of y, as at a black hole's horizon (horizon.py)
@@ -47,31 +47,6 @@ def matching_radius(problem, radii=()) -> float:
     return last.upper - (last.upper - inner) / 2
 
 
-class _Reflected:
-    """The last region seen in y = r_c - r (kept per region so that the propagator cache recognises it)."""
-
-    def __init__(self, region):
-        self.region, self.top = region, region.upper
-
-    def potential(self, y, l, omega):
-        return self.region.potential(self.top - np.asarray(y), l, omega)
-
-    def dtortoise_dr(self, y):
-        return self.region.dtortoise_dr(self.top - np.asarray(y))
-
-
-_REFLECTED: dict = {}
-
-
-def _reflected(region) -> _Reflected:
-    hit = _REFLECTED.get(id(region))
-    if hit is None or hit.region is not region:
-        if len(_REFLECTED) > 64:
-            _REFLECTED.clear()
-        hit = _REFLECTED[id(region)] = _Reflected(region)
-    return hit
-
-
 def _offset(top: float, y: float) -> float:
     """A y for which top - y is computed exactly (so the kernels' r - r_c and the series' y agree)."""
     return top - (top - y)
@@ -91,27 +66,23 @@ def horizon_solution(problem, l, omegas, r_m, steps, start=START):
     s_max = max(1.0, float(np.max(np.abs(s))))
     y_m = top - r_m
     y0 = _offset(top, START * top / s_max)
+    index = len(problem.regions) - 1
     pieces = []
     if start < START:
         y_start = _offset(top, start * top / s_max)
-        pieces.append((y_start, y0, max(2, int(round(steps * np.log(y0 / y_start) / EFOLD_STEPS)))))
+        pieces.append(Piece(index, y_start, y0, max(2, int(round(steps * np.log(y0 / y_start) / EFOLD_STEPS))),
+                            "to horizon", top))
     else:
         y_start = y0
-    pieces.append((y0, y_m, max(4, int(round(steps * np.log(y_m / y0) / EFOLD_STEPS)))))
+    pieces.append(Piece(index, y0, y_m, max(4, int(round(steps * np.log(y_m / y0) / EFOLD_STEPS))), "to horizon",
+                        top))
     power = np.exp(s * np.log(y_start))
     poly = a0 + a1 * y_start + a2 * y_start * y_start
     F = 1.0 / float(np.asarray(last.dtortoise_dr(np.array([top - y_start]))).reshape(-1)[0])
     # state (u, du/d rho*) with rho* = -r*, increasing inward like y: d rho*/dy = 1/F
     state = np.stack([power * poly, F * power * (s / y_start * poly + a1 + 2 * a2 * y_start)], axis=1)
-    log_scale = np.zeros(len(omegas))
-    region = _reflected(last)
-    for a, b, count in pieces:
-        matrix, scale = region_propagator(region, l, omegas, a, b, count, True)
-        state = np.einsum("nij,nj->ni", matrix, state)
-        size = np.max(np.abs(state), axis=1)
-        state = state / size[:, None]
-        log_scale = log_scale + scale + np.log(size)
-    return state[:, 0], -state[:, 1], log_scale
+    marched = march(problem, l, omegas, pieces, state)
+    return marched.state[:, 0], -marched.state[:, 1], marched.log_scale
 
 
 def flux_at_horizon(problem, l, omegas, state, r_m, steps, check: bool = True):

@@ -28,7 +28,8 @@ from derive.solve.centre import (FAR, Unsupported, continuum_threshold, coulomb_
                                  outer_turning_point, rounding_floor, shortfall)
 from derive.solve.cosmological import has_cosmological_horizon, horizon_solution, matching_radius
 from derive.solve.cosmological import START as OUTER_START
-from derive.solve.propagation import outer_pieces, region_propagator
+from derive.solve.march import Piece, march
+from derive.solve.propagation import outer_pieces
 
 START = 1e-5          # x_0 / r_h
 BASE_STEPS = 16       # steps of the coarsest grid's pieces; finer grids multiply every count (nested grids)
@@ -184,7 +185,7 @@ def _far_density(problem, omegas) -> float:
 
 def _pieces(problem, l, omegas, steps, start, far_factor, fixed=None, modes=True):
     """The march from the horizon to the far radius (with far_factor > 1, on to the layout's farther radius):
-    (region index, shift, a, b, kind, steps) per piece, the
+    the pieces (derive.solve.march.Piece: near the horizon geometric in r - r_h), the
     start offset x0 and the far radius."""
     horizon = problem.regions[0].lower
     fixed = fixed if fixed is not None else layout(problem, l, omegas)
@@ -203,7 +204,8 @@ def _pieces(problem, l, omegas, steps, start, far_factor, fixed=None, modes=True
     # claim to measure
     x_start = offset(start) if start < START else x0
     if x_start < x0:
-        pieces.append((0, horizon, x_start, x0, "horizon", max(2, int(round(steps * np.log(x0 / x_start) / 9.2)))))
+        pieces.append(Piece(0, x_start, x0, max(2, int(round(steps * np.log(x0 / x_start) / 9.2))), "from horizon",
+                            horizon))
     cosmological = has_cosmological_horizon(problem)
     for index, region in enumerate(problem.regions):
         lower = region.lower
@@ -213,8 +215,8 @@ def _pieces(problem, l, omegas, steps, start, far_factor, fixed=None, modes=True
             middle = min(2 * horizon, top) if top is not None else 2 * horizon
             # a fixed number of steps per e-fold of (r - r_h)
             efolds = np.log((middle - horizon) / x0)
-            pieces.append((index, horizon, x0, middle - horizon, "horizon",
-                           max(4, int(round(steps * efolds / 9.2)))))
+            pieces.append(Piece(index, x0, middle - horizon, max(4, int(round(steps * efolds / 9.2))),
+                                "from horizon", horizon))
             lower = middle
         if region.upper is None:
             for a, b, n, is_far in outer_pieces(lower, far, steps, problem.length_scale, decade=True):
@@ -226,12 +228,12 @@ def _pieces(problem, l, omegas, steps, start, far_factor, fixed=None, modes=True
                 # tail (see _far_density)
                 plain = 1.0 if modes else 0.25
                 share = max(1.0, np.log10(b / a)) * density / 4 if density > 0 else plain
-                pieces.append((index, 0.0, a, b, "geometric", max(4, int(round(steps * share))) if is_far else n))
+                pieces.append(Piece(index, a, b, max(4, int(round(steps * share))) if is_far else n, "geometric"))
             if far_factor > 1:
-                pieces.append((index, 0.0, far, fixed.farther, "geometric",
-                               max(4, fixed.farther_steps * steps // BASE_STEPS)))
+                pieces.append(Piece(index, far, fixed.farther, max(4, fixed.farther_steps * steps // BASE_STEPS),
+                                    "geometric"))
         elif top > lower:
-            pieces.append((index, 0.0, lower, top, "uniform", steps))
+            pieces.append(Piece(index, lower, top, steps))
     return pieces, x_start, fixed.farther if far_factor > 1 else far
 
 
@@ -242,17 +244,18 @@ def _split(pieces, probes):
     out, afters = list(pieces), []
     for probe in probes:      # a later (larger) probe is cut at or after every earlier one: their indices hold
         cut, after = [], None
-        for index, shift, a, b, kind, count in out:
-            p = probe - shift
+        for piece in out:
+            p = probe - piece.shift
+            a, b = piece.a, piece.b
             if after is None and a < p <= b:
-                fraction = np.log(p / a) / np.log(b / a) if kind != "uniform" else (p - a) / (b - a)
-                first = max(2, int(round(count * fraction)))
-                cut.append((index, shift, a, p, kind, first))
+                fraction = np.log(p / a) / np.log(b / a) if piece.spacing != "uniform" else (p - a) / (b - a)
+                first = max(2, int(round(piece.count * fraction)))
+                cut.append(piece._replace(b=p, count=first))
                 after = len(cut)
                 if p < b:
-                    cut.append((index, shift, p, b, kind, max(2, count - first)))
+                    cut.append(piece._replace(a=p, count=max(2, piece.count - first)))
             else:
-                cut.append((index, shift, a, b, kind, count))
+                cut.append(piece)
         if after is None:
             raise Unsupported(f"the point r = {probe:g} is not outside the horizon")
         out = cut
@@ -293,40 +296,17 @@ def _march(problem, l, omegas, steps, start, far_factor, probe, fixed) -> March:
     afters = []
     if probes:
         pieces, afters = _split(pieces, probes)
-    pieces = [piece[:5] + (piece[5] * multiple,) for piece in pieces]
     state = _start_state(problem.regions[0], l, omegas, x0)
     n = len(omegas)
-    log_scale = np.zeros(n)
-    interfaces = {i.inner: i for i in problem.interfaces}
-    probe_u, probe_log = [None] * len(probes), [None] * len(probes)
-    # per probe, the propagator from the probe to the far radius (kept at unit size with its log scale, and its
-    # determinant from the interfaces: every Magnus step is unimodular), for the solution coming from infinity
-    outer = [np.broadcast_to(np.eye(2), (n, 2, 2)).copy() for _ in probes]
-    outer_log, outer_det = [np.zeros(n) for _ in probes], [np.ones(n) for _ in probes]
-    total_det = np.ones(n)
-    for position, (index, shift, a, b, kind, count) in enumerate(pieces):
-        region = problem.regions[index]
-        for k in (k for k, after in enumerate(afters) if after == position):
-            probe_u[k], probe_log[k] = state[:, 0].copy(), log_scale.copy()
-        matrix, scale = _piece(region, l, omegas, shift, a, b, count, kind)
-        state = np.einsum("nij,nj->ni", matrix, state)
-        size = np.max(np.abs(state), axis=1)
-        state = state / size[:, None]
-        log_scale += scale + np.log(size)
-        for k in (k for k, after in enumerate(afters) if position >= after):
-            outer[k], outer_log[k] = _accumulate(matrix, scale, outer[k], outer_log[k])
-        last_of_region = position + 1 == len(pieces) or pieces[position + 1][0] != index
-        if last_of_region and region.name in interfaces:
-            transfer = np.broadcast_to(np.asarray(interfaces[region.name].transfer(l, omegas), dtype=float),
-                                       (2, 2, n))
-            state = np.einsum("ijn,nj->ni", transfer, state)
-            total_det = total_det * np.linalg.det(np.moveaxis(transfer, -1, 0))
-            matrix = np.moveaxis(transfer, -1, 0)
-            for k in (k for k, after in enumerate(afters) if position >= after):
-                outer[k], outer_log[k] = _accumulate(matrix, np.zeros(n), outer[k], outer_log[k])
-                outer_det[k] = outer_det[k] * np.linalg.det(matrix)
-    for k in (k for k, after in enumerate(afters) if after == len(pieces)):
-        probe_u[k], probe_log[k] = state[:, 0].copy(), log_scale.copy()
+    # per probe, the state there and the propagator from the probe to the far radius (unit size with its log
+    # scale and the interfaces' determinant), which carries the solution coming from infinity back to it
+    marched = march(problem, l, omegas, pieces, state, marks=afters, outer=bool(probes), multiple=multiple)
+    state, log_scale, total_det = marched.state, marched.log_scale, marched.det
+    probe_u = [u[:, 0].copy() for u, _ in marched.marks]
+    probe_log = [lg for _, lg in marched.marks]
+    outer = [o for o, _, _ in marched.outer]
+    outer_log = [lg for _, lg, _ in marched.outer]
+    outer_det = [d for _, _, d in marched.outer]
     if has_cosmological_horizon(problem):
         # far_factor > 1 asks for the tail check: here the series at the cosmological horizon starts 4x closer
         u_c, du_c, c_scale = horizon_solution(problem, l, omegas, far, 16 * multiple,
@@ -419,31 +399,6 @@ def _cosmological_end(omegas, state, log_scale, u_c, du_c, c_scale, probe_u, pro
                                   for u, lg, d in zip(u_inf, outer_log, outer_det)])
         result.phase_up = np.array([np.angle(u / d) for u, d in zip(u_inf, outer_det)])
     return result
-
-
-def _accumulate(matrix, scale, product, log):
-    product = matrix @ product
-    size = np.max(np.abs(product), axis=(1, 2))
-    return product / size[:, None, None], log + scale + np.log(size)
-
-
-class _Shifted:
-    """A region seen in the variable x = r - shift (for grids geometric in the distance to the horizon)."""
-
-    def __init__(self, region, shift):
-        self.region, self.shift = region, shift
-
-    def potential(self, x, l, omega):
-        return self.region.potential(np.asarray(x) + self.shift, l, omega)
-
-    def dtortoise_dr(self, x):
-        return self.region.dtortoise_dr(np.asarray(x) + self.shift)
-
-
-def _piece(region, l, omegas, shift, a, b, steps, kind):
-    if kind == "horizon":
-        return region_propagator(_Shifted(region, shift), l, omegas, a, b, steps, True)
-    return region_propagator(region, l, omegas, a, b, steps, kind == "geometric")
 
 
 def transmission(problem, l: int, omegas, tolerance: float = 1e-10, steps: int = 64,

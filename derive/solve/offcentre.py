@@ -38,7 +38,8 @@ from derive.solve.centre import (FAR, DensityResult, Unsupported, check_supporte
                                  harmonic_weight, merge, rounding_floor, tortoise_distance)
 from derive.parallel import split_map
 from derive.solve.cosmological import flux_at_horizon, has_cosmological_horizon, matching_radius
-from derive.solve.propagation import outer_pieces, region_propagator
+from derive.solve.march import Piece, centre_start, march
+from derive.solve.propagation import outer_pieces
 
 MAX_L = 400
 SPLIT_FROM = 64     # frequencies from which the set is split in two halves (one per core)
@@ -125,8 +126,8 @@ def _pieces(problem, l, radii, steps, lowest, highest):
                 fraction = np.log(d / c) / np.log(b / a) if geometric else (d - c) / (b - a)
                 count = max(2, n - given) if d == b else max(2, int(round(n * fraction)))
                 given += count
-                pieces.append((index, c, d, geometric, count))
-    at = [next(i for i, piece in enumerate(pieces) if piece[1] >= r) for r in radii]
+                pieces.append(Piece(index, c, d, count, "geometric" if geometric else "uniform"))
+    at = [next(i for i, piece in enumerate(pieces) if piece.a >= r) for r in radii]
     return pieces, at, r_s, far
 
 
@@ -155,38 +156,13 @@ def _log_u_at(problem, l, omegas, radii, steps, series, fixed):
     """(log|u_l(r)| - log A_l, sign of u_l(r)) at every radius of ``radii`` (positive, increasing), each of
     shape (len(radii), len(omegas)), and log A_l (u_l normalised arbitrarily; the ratio is what matters).  ``fixed`` =
     (lowest, highest) frequency of the whole set: the grid is the same for every subset."""
-    n = len(omegas)
     multiple = max(1, steps // 16)
     pieces, at, r_s, far = _pieces(problem, l, radii, 16, *fixed)
-    if r_s == 0.0:
-        state = np.tile([0.0, 1.0], (n, 1))
-        log_scale = np.zeros(n)
-    else:
-        first = problem.regions[0]
-        coefficients = np.asarray(series(l, omegas), dtype=float)
-        s, a0, a1, a2 = (np.broadcast_to(c, omegas.shape) for c in coefficients[:4])
-        F = 1.0 / float(np.asarray(first.dtortoise_dr(np.array([r_s])))[0])
-        poly = a0 + a1 * r_s + a2 * r_s * r_s
-        state = np.stack([poly, F * (s / r_s * poly + a1 + 2 * a2 * r_s)], axis=1)
-        log_scale = s * np.log(r_s)
-    log_u = np.zeros((len(radii), n))
-    sign = np.ones((len(radii), n))
-    interfaces = {i.inner: i for i in problem.interfaces}
-    for position, (index, a, b, geometric, count) in enumerate(pieces):
-        region = problem.regions[index]
-        for k in (k for k, p in enumerate(at) if p == position):
-            log_u[k] = np.log(np.abs(state[:, 0])) + log_scale
-            sign[k] = np.sign(state[:, 0])
-        matrix, scale = region_propagator(region, l, omegas, a, b, count * multiple, geometric)
-        state = np.einsum("nij,nj->ni", matrix, state)
-        size = np.max(np.abs(state), axis=1)
-        state = state / size[:, None]
-        log_scale = log_scale + scale + np.log(size)
-        last_of_region = position + 1 == len(pieces) or pieces[position + 1][0] != index
-        if last_of_region and region.name in interfaces:
-            transfer = np.broadcast_to(np.asarray(interfaces[region.name].transfer(l, omegas), dtype=float),
-                                       (2, 2, n))
-            state = np.einsum("ijn,nj->ni", transfer, state)
+    state, log_scale = centre_start(problem, l, omegas, r_s, series)
+    marched = march(problem, l, omegas, pieces, state, log_scale, marks=at, multiple=multiple)
+    log_u = np.array([np.log(np.abs(u[:, 0])) + lg for u, lg in marched.marks])
+    sign = np.array([np.sign(u[:, 0]) for u, _ in marched.marks])
+    state, log_scale = marched.state, marched.log_scale
     last = problem.regions[-1]
     if has_cosmological_horizon(problem):
         log_flux, _ = flux_at_horizon(problem, l, omegas, state, far, 16 * multiple, check=False)
