@@ -24,6 +24,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from derive.solve.propagation import outer_pieces
+from derive.solve.summation import rounding_floor
 
 DEFAULT_STEPS = 48
 FAR = 1.0e6          # far radius in units of the problem's length scale
@@ -198,13 +199,6 @@ def centre_density(problem, omegas, tolerance: float = 1e-10, steps: int = DEFAU
         coarse = tuple(part[keep] for part in fine)
         count *= 2
     return DensityResult(omegas, density, error, amplitude, propagation, tail, tolerance)
-
-
-def rounding_floor(steps: int) -> float:
-    """Relative rounding error of a product of about 2*steps 2x2 matrices per region in double precision:
-    bounded by 8 * steps * eps, and never taken below 1e-12 (what the far-field phase, omega r* ~ 1e8,
-    leaves of the amplitude)."""
-    return max(1e-12, 8 * steps * np.finfo(float).eps)
 
 
 def _run(problem, omegas, steps):

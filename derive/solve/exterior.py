@@ -34,14 +34,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from derive.parallel import split_map
-
-from derive.solve.centre import (Unsupported, continuum_threshold, harmonic_weight, region_at, rounding_floor,
-                                 shortfall)
+from derive.solve.centre import Unsupported, continuum_threshold, harmonic_weight, region_at, shortfall
 from derive.solve.cosmological import temperature as cosmological_temperature
 from derive.solve.horizon import START, _run, check_supported, layout, threshold_rounding
+from derive.solve.summation import l_sum, on_both_cores, refine
 
-SPLIT_FROM = 64     # frequencies from which the set is split in two halves (one per core)
 MAX_L = 400
 STATES = ("boulware", "hartle-hawking", "unruh")
 
@@ -88,14 +85,10 @@ def _batches(problem, omegas) -> np.ndarray:
 
 def mode_term(problem, l, omegas, pair, cos_gamma, tolerance, floor=None, steps=32, max_steps=16384):
     """The l-terms of the in and up parts between the radii ``pair`` (see :func:`_values`), their sizes and
-    errors, refined by grid doubling until each is within the tolerance of its size or of ``floor`` (the size of
-    the sum so far), whichever is larger: (in, up, size_in, size_up, error_in, error_up).
-
-    The grids of N, 2N and 4N steps are nested (derive.solve.horizon), so the fourth-order error falls cleanly
-    as N^-4 and each pair extrapolates (Richardson): e(2N) = v(2N) + (v(2N) - v(N))/15.  The value is e(4N);
-    its error is |e(4N) - e(2N)| (the error of the less refined extrapolation, so conservative) plus the changes
-    from moving the series' start point and the far radius on the N-step grid (series truncation and tail) and
-    a rounding floor."""
+    errors, refined until each is within the tolerance of its size or of ``floor`` (the size of the sum so far),
+    whichever is larger (derive.solve.summation.refine, Richardson on nested grids): (in, up, size_in, size_up,
+    error_in, error_up).  The errors count the changes from moving the series' start point and the far radius
+    (series truncation and tail) and a rounding floor that grows near the mass threshold."""
     n = len(omegas)
     floor = np.zeros(n) if floor is None else floor
     tolerance = np.broadcast_to(np.asarray(tolerance, dtype=float), (n,))
@@ -111,88 +104,35 @@ def mode_term(problem, l, omegas, pair, cos_gamma, tolerance, floor=None, steps=
             for whole, piece in zip(merged, part):
                 whole[index] = piece
         return merged
-    inward, outward = np.zeros(n, complex), np.zeros(n, complex)
-    size_in, size_out, e_in, e_out = (np.zeros(n) for _ in range(4))
     probes = tuple(sorted(set(pair)))
-    active = np.arange(n)
-    count = steps
     fixed = layout(problem, l, omegas, probe=probes[-1])
 
     def values(w, count, start=START, far_factor=1.0):
         march = _run(problem, l, w, count, start, far_factor=far_factor, probe=probes, fixed=fixed)
-        return _values(problem, march, l, w, pair, cos_gamma)
+        inward, outward, size_in, size_up = _values(problem, march, l, w, pair, cos_gamma)
+        return (inward, outward), (size_in, size_up)
 
-    coarse = values(omegas, count)
-    fine = values(omegas, 2 * count)
-    while len(active):
-        w = omegas[active]
-        finest = values(w, 4 * count)
-        with np.errstate(invalid="ignore", over="ignore"):
-            before = [fine[p] + (fine[p] - coarse[p]) / 15 for p in (0, 1)]
-            after = [finest[p] + (finest[p] - fine[p]) / 15 for p in (0, 1)]
-            change = [np.abs(after[p] - before[p]) for p in (0, 1)]
-        sizes = [np.maximum(finest[2 + p], np.abs(after[p])) for p in (0, 1)]
-        scale = np.maximum(sizes[0] + sizes[1], floor[active])
-        done = change[0] + change[1] <= tolerance[active] * scale
-        last = 4 * count >= max_steps
-        if last:
-            done[:] = True
-        if np.any(done):
-            index = active[done]
-            wd = omegas[index]
-            # series truncation and tail: measured on the coarsest of the three grids (they do not depend on the
-            # resolution, and only the moved piece's grid differs between the two runs)
-            moved = values(wd, count, start=START / 2)
-            farther = values(wd, count, far_factor=4.0)
-            for part, (value, size, error) in enumerate(((inward, size_in, e_in), (outward, size_out, e_out))):
-                raw = coarse[part][done]
-                value[index] = after[part][done]
-                size[index] = sizes[part][done]
-                error[index] = (change[part][done] + np.abs(raw - moved[part]) + np.abs(raw - farther[part])
-                                + (rounding_floor(4 * count) + threshold_rounding(problem, wd)) * size[index])
-            if not last:   # not there yet with every source of error counted: refine further
-                short = e_in[index] + e_out[index] > tolerance[index] * scale[done]
-                done[np.nonzero(done)[0][short]] = False
-        finished = active[done]
-        bad = ~np.isfinite(e_in[finished] + e_out[finished] + np.abs(inward[finished]) + np.abs(outward[finished]))
-        if np.any(bad):   # a grid too coarse for an evanescent stretch: say so rather than return a number
-            e_in[finished[bad]] = np.inf
-        active = active[~done]
-        coarse = tuple(part[~done] for part in fine)
-        fine = tuple(part[~done] for part in finest)
-        count *= 2
-    return inward, outward, size_in, size_out, e_in, e_out
+    def alternatives(w, count):   # series truncation (an earlier start) and the tail (a farther end)
+        return [values(w, count, start=START / 2)[0], values(w, count, far_factor=4.0)[0]]
+
+    (inward, outward), (size_in, size_up), (e_in, e_out), _ = refine(
+        values, omegas, tolerance, floor, steps, max_steps, alternatives,
+        rounding=lambda w: threshold_rounding(problem, w))
+    return inward, outward, size_in, size_up, e_in, e_out
 
 
 def _l_sum(problem, omegas, pair, cos_gamma, tolerance, reach, progress):
-    """The sum over l for each frequency: (in, up, size_in, size_up, error_in, error_up, the largest l
-    reached).  Each frequency sums its own l: its reach omega r/sqrt(f(r)) (at the farther point) sets its share
-    of the tolerance, and it stops after three quiet terms beyond its reach while the others go on."""
-    n = len(omegas)
-    inward, outward = np.zeros(n, complex), np.zeros(n, complex)
-    size_in, size_out, e_in, e_out = (np.zeros(n) for _ in range(4))
-    quiet = np.zeros(n, dtype=int)
-    summing = np.arange(n)
-    for l in range(MAX_L + 1):
-        # each term to a share of the tolerance (of itself, or of the sum so far): about reach + 1 terms count
-        w = omegas[summing]
-        t_in, t_out, ts_in, ts_out, te_in, te_out = mode_term(problem, l, w, pair, cos_gamma,
-                                                              tolerance / (4 + reach[summing]),
-                                                              floor=size_in[summing] + size_out[summing])
-        for whole, term in ((inward, t_in), (outward, t_out), (size_in, ts_in), (size_out, ts_out),
-                            (e_in, te_in), (e_out, te_out)):
-            whole[summing] += term
-        small = ts_in + ts_out <= 0.01 * tolerance * (size_in[summing] + size_out[summing])
-        quiet[summing] = np.where(small & (l > reach[summing]), quiet[summing] + 1, 0)
-        finished = quiet[summing] >= 3
-        e_in[summing[finished]] += ts_in[finished]     # the first neglected terms are smaller than the last kept
-        e_out[summing[finished]] += ts_out[finished]
-        summing = summing[~finished]
-        if progress is not None:
-            progress(l, 1.0 - len(summing) / n)
-        if not len(summing):
-            return inward, outward, size_in, size_out, e_in, e_out, l
-    raise Unsupported(f"the l-sum did not converge by l = {MAX_L}")
+    """The sum over l for each frequency (derive.solve.summation.l_sum): (in, up, size_in, size_up, error_in,
+    error_up, the largest l reached); the reach omega r/sqrt(f(r)) at the farther point."""
+
+    def term(l, summing, share, floor):
+        t_in, t_up, s_in, s_up, e_in, e_up = mode_term(problem, l, omegas[summing], pair, cos_gamma, share,
+                                                       floor=floor)
+        return (t_in, t_up), (s_in, s_up), (e_in, e_up)
+
+    (inward, outward), (size_in, size_up), (e_in, e_up), l = l_sum(term, len(omegas), tolerance, reach, MAX_L,
+                                                                   progress)
+    return inward, outward, size_in, size_up, e_in, e_up, l
 
 
 @dataclass
@@ -291,18 +231,15 @@ def _summed(problem, omegas, pair, cos_gamma, tolerance, progress):
     far = max(pair)
     f0 = float(np.asarray(region_at(problem, far).metric_f(np.array([far]))).reshape(-1)[0])
     reach = omegas * far / np.sqrt(f0)
-    # two fixed halves (every other frequency), on both cores where there are two: the same result either way
-    halves = [np.arange(len(omegas))] if len(omegas) < SPLIT_FROM else [np.arange(0, len(omegas), 2),
-                                                                           np.arange(1, len(omegas), 2)]
-    parts = split_map(_l_sum, [(problem, omegas[index], pair, cos_gamma, tolerance, reach[index],
-                                progress if i == 0 else None) for i, index in enumerate(halves)])
+    parts = on_both_cores(_l_sum, len(omegas), lambda index, first: (
+        problem, omegas[index], pair, cos_gamma, tolerance, reach[index], progress if first else None))
     n = len(omegas)
     merged = (np.zeros(n, complex), np.zeros(n, complex)) + tuple(np.zeros(n) for _ in range(4))
-    for index, part in zip(halves, parts):
+    for index, part in parts:
         for whole, piece in zip(merged, part[:6]):
             whole[index] = piece
     kappa = problem.regions[0].surface_gravity
-    return merged, max(part[6] for part in parts), float(kappa) / (2 * np.pi)
+    return merged, max(part[6] for _, part in parts), float(kappa) / (2 * np.pi)
 
 
 def states_of(problem) -> tuple:

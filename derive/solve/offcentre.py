@@ -35,14 +35,13 @@ from dataclasses import dataclass
 import numpy as np
 
 from derive.solve.centre import (FAR, DensityResult, Unsupported, check_supported, continuum_threshold,
-                                 harmonic_weight, merge, rounding_floor, tortoise_distance)
-from derive.parallel import split_map
+                                 harmonic_weight, merge, tortoise_distance)
 from derive.solve.cosmological import flux_at_horizon, has_cosmological_horizon, matching_radius
 from derive.solve.march import Piece, centre_start, march
 from derive.solve.propagation import outer_pieces
+from derive.solve.summation import l_sum, on_both_cores, refine
 
 MAX_L = 400
-SPLIT_FROM = 64     # frequencies from which the set is split in two halves (one per core)
 
 
 def angular_factor(l: int, n: int, cos_gamma: float) -> float:
@@ -229,33 +228,12 @@ def _term(problem, l, omegas, pair, cos_gamma, series, tolerance, floor, fixed, 
             for whole, piece in zip(out, part):
                 whole[index] = piece
         return out
-    count = int(starts[0]) if n else 32
-    value, size, error = np.zeros(n), np.zeros(n), np.zeros(n)
-    converged = np.full(n, count)
-    active = np.arange(n)
-    values = lambda w, count: _term_values(problem, l, w, pair, cos_gamma, count, series, fixed)
-    coarse, _ = values(omegas, count)
-    fine, _ = values(omegas, 2 * count)
-    while len(active):
-        finest, finest_size = values(omegas[active], 4 * count)
-        with np.errstate(invalid="ignore", over="ignore"):
-            before = fine + (fine - coarse) / 15
-            after = finest + (finest - fine) / 15
-            change = np.abs(after - before)
-        scale = np.maximum(np.maximum(np.abs(after), finest_size), floor[active])
-        done = change <= tolerance[active] * scale
-        if 4 * count >= max_steps:
-            done[:] = True
-        index = active[done]
-        value[index] = after[done]
-        size[index] = np.maximum(finest_size[done], np.abs(after[done]))
-        error[index] = change[done] + rounding_floor(4 * count) * size[index]
-        bad = ~np.isfinite(value[index] + error[index])
-        error[index[bad]] = np.inf
-        converged[index] = count
-        active = active[~done]
-        coarse, fine = fine[~done], finest[~done]
-        count *= 2
+    def values(w, count):
+        value, size = _term_values(problem, l, w, pair, cos_gamma, count, series, fixed)
+        return (value,), (size,)
+
+    (value,), (size,), (error,), converged = refine(values, omegas, tolerance, floor, int(starts[0]) if n else 32,
+                                                    max_steps)
     return value, size, error, converged
 
 
@@ -272,15 +250,12 @@ def _summed(problem, omegas, pair, cos_gamma, tolerance, series, threshold, prog
     """The l-sum for every frequency above the threshold, on both cores: (value, size, error, l reached)."""
     fixed = (float(np.min(np.sqrt(omegas ** 2 - threshold ** 2))), float(np.max(omegas)))
     distance = tortoise_distance(problem, 0.0, max(pair))
-    # two fixed halves (every other frequency), on both cores where there are two: the same result either way
-    halves = [np.arange(len(omegas))] if len(omegas) < SPLIT_FROM else [np.arange(0, len(omegas), 2),
-                                                                           np.arange(1, len(omegas), 2)]
-    parts = split_map(_l_sum, [(problem, omegas[index], pair, cos_gamma, tolerance, series, fixed, distance,
-                                progress if i == 0 else None) for i, index in enumerate(halves)])
+    parts = on_both_cores(_l_sum, len(omegas), lambda index, first: (
+        problem, omegas[index], pair, cos_gamma, tolerance, series, fixed, distance, progress if first else None))
     value, size, error = np.zeros(len(omegas)), np.zeros(len(omegas)), np.zeros(len(omegas))
-    for index, part in zip(halves, parts):
+    for index, part in parts:
         value[index], size[index], error[index] = part[:3]
-    return value, size, error, max(part[3] for part in parts)
+    return value, size, error, max(part[3] for _, part in parts)
 
 
 def density_off_centre(problem, omegas, r0: float, tolerance: float = 1e-10, series=None,
@@ -328,34 +303,18 @@ def two_point(problem, omegas, r1: float, r2: float, cos_gamma: float, tolerance
 
 
 def _l_sum(problem, omegas, pair, cos_gamma, tolerance, series, fixed, distance, progress=None):
-    """The sum over l for each frequency: (value, size, error, the largest l reached).  Each frequency sums its
-    own l (see :func:`density_off_centre`); with the centre as one point only l = 0 is summed (the others vanish
-    there).  ``progress(l, share)`` is told the l reached and the share of frequencies done."""
-    n = len(omegas)
-    total, size, error = np.zeros(n), np.zeros(n), np.zeros(n)
-    quiet = np.zeros(n, dtype=int)
-    reach = omegas * distance
-    summing = np.arange(n)
-    steps = np.full(n, 32)
-    for l in range(MAX_L + 1):
-        # each term to a share of the tolerance (of itself or of the sum so far): about reach + 1 terms count
-        term, term_size, term_error, converged = _term(problem, l, omegas[summing], pair, cos_gamma, series,
-                                                       tolerance / (4 + reach[summing]), size[summing], fixed,
-                                                       steps=steps[summing])
-        # each frequency's next l starts at half the count where this one converged: 32 times a power of two
-        # (never a mean of two counts: the grids of a refinement must stay nested)
+    """The sum over l for each frequency (derive.solve.summation.l_sum): (value, size, error, the largest l
+    reached).  With the centre as one point only l = 0 is summed (the others vanish there).  Each frequency's
+    next l starts at half the step count where its last term converged: 32 times a power of two (never a mean
+    of two counts: the grids of a refinement must stay nested)."""
+    steps = np.full(len(omegas), 32)
+
+    def term(l, summing, share, floor):
+        value, size, error, converged = _term(problem, l, omegas[summing], pair, cos_gamma, series, share, floor,
+                                              fixed, steps=steps[summing])
         steps[summing] = np.maximum(32, converged // 2)
-        total[summing] += term
-        size[summing] += term_size
-        error[summing] += term_error
-        small = term_size <= 0.01 * tolerance * size[summing]
-        quiet[summing] = np.where(small & (l > reach[summing]), quiet[summing] + 1, 0)
-        finished = (quiet[summing] >= 3) | (pair[0] == 0)
-        if pair[0] > 0:     # the first neglected terms are smaller than the last kept
-            error[summing[finished]] += term_size[finished]
-        summing = summing[~finished]
-        if progress is not None:
-            progress(l, 1.0 - len(summing) / n)
-        if not len(summing):
-            return total, size, error, l
-    raise Unsupported(f"the l-sum did not converge by l = {MAX_L}")
+        return (value,), (size,), (error,)
+
+    (total,), (size,), (error,), l = l_sum(term, len(omegas), tolerance, omegas * distance, MAX_L, progress,
+                                           single=pair[0] == 0)
+    return total, size, error, l

@@ -1,0 +1,143 @@
+"""The two loops every two-point function runs: refinement with extrapolation of one l-term, and the sum over l.
+
+Refinement (:func:`refine`).  The march's grids are nested (derive.solve.march: a base layout whose step counts
+are multiplied), so the grids of N, 2N and 4N steps refine each other node for node and the fourth-order error
+falls cleanly as N^-4.  Each pair extrapolates (Richardson): e(2N) = v(2N) + (v(2N) - v(N))/15.  A frequency is
+accepted when the extrapolations of two successive pairs agree, |e(4N) - e(2N)|, to its tolerance of the term's
+size or of ``floor`` (the size of the sum so far: tiny terms need only absolute accuracy), whichever is larger;
+the value returned is e(4N) and its error |e(4N) - e(2N)| (the error of the less refined extrapolation, so
+conservative: 5-10x measured), plus, for each *alternative* (the same grid with one piece moved: an earlier
+series start, a farther end), its change from the plain grid, plus a rounding floor.  With alternatives a
+frequency is accepted only when every source of error counted meets its tolerance.  Frequencies that are done
+drop out; the rest go on to 8N, 16N, ...  A term may have several parts (the in and up modes) that share one
+acceptance test on their summed sizes.
+
+The sum over l (:func:`l_sum`).  Each frequency sums its own l: its reach (omega times the tortoise distance of
+the farther point: about reach + 1 terms count) sets its share of the tolerance, tolerance/(4 + reach), and it
+stops after three successive terms beyond its reach whose size is below a hundredth of the tolerance of the sum
+so far; the size of the last term kept is added to the error (the first neglected terms are smaller).
+
+A term's size bounds |term| and equals it on the diagonal (one point): acceptance, tolerances and the stopping
+rule refer to sizes, because an off-diagonal sum may cancel to far below its terms.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from derive.parallel import split_map
+
+SPLIT_FROM = 64     # frequencies from which a set is split in two halves (one per core)
+
+
+def rounding_floor(steps: int) -> float:
+    """Relative rounding error of a product of about 2*steps 2x2 matrices per region in double precision:
+    bounded by 8 * steps * eps, and never taken below 1e-12 (what the far-field phase, omega r* ~ 1e8,
+    leaves of the amplitude)."""
+    return max(1e-12, 8 * steps * np.finfo(float).eps)
+
+
+def refine(values, omegas, tolerance, floor, count: int = 32, max_steps: int = 8192, alternatives=None,
+           rounding=None):
+    """One l-term refined frequency by frequency (see the module docstring).
+
+    ``values(w, count)`` returns (values, sizes), tuples with one array per part, on the grid of ``count`` times
+    the base steps; ``alternatives(w, count)`` a list of such value tuples on that grid with one piece moved;
+    ``rounding(w)`` an extra relative rounding floor per frequency.  Returns (values, sizes, errors) as tuples
+    per part and the count at which each frequency was accepted."""
+    n = len(omegas)
+    tolerance = np.broadcast_to(np.asarray(tolerance, dtype=float), (n,))
+    floor = np.broadcast_to(np.asarray(floor, dtype=float), (n,))
+    coarse, _ = values(omegas, count)
+    fine, _ = values(omegas, 2 * count)
+    parts = range(len(coarse))
+    value = tuple(np.zeros(n, dtype=np.result_type(c, float)) for c in coarse)
+    size = tuple(np.zeros(n) for _ in parts)
+    error = tuple(np.zeros(n) for _ in parts)
+    converged = np.full(n, count)
+    active = np.arange(n)
+    while len(active):
+        finest, finest_size = values(omegas[active], 4 * count)
+        with np.errstate(invalid="ignore", over="ignore"):
+            before = [fine[p] + (fine[p] - coarse[p]) / 15 for p in parts]
+            after = [finest[p] + (finest[p] - fine[p]) / 15 for p in parts]
+            change = [np.abs(after[p] - before[p]) for p in parts]
+            sizes = [np.maximum(finest_size[p], np.abs(after[p])) for p in parts]
+            scale = np.maximum(sum(sizes), floor[active])
+            done = sum(change) <= tolerance[active] * scale
+        last = 4 * count >= max_steps
+        if last:
+            done[:] = True
+        if np.any(done):
+            index = active[done]
+            w = omegas[index]
+            # series truncation and tail: measured on the coarsest of the three grids (they do not depend on the
+            # resolution, and only the moved piece's grid differs between the two runs)
+            moved = alternatives(w, count) if alternatives is not None else []
+            extra = rounding(w) if rounding is not None else 0.0
+            for p in parts:
+                raw = coarse[p][done]
+                value[p][index] = after[p][done]
+                size[p][index] = sizes[p][done]
+                error[p][index] = (change[p][done] + sum(np.abs(raw - alternative[p]) for alternative in moved)
+                                   + (rounding_floor(4 * count) + extra) * size[p][index])
+            if moved and not last:   # not there yet with every source of error counted: refine further
+                short = sum(error[p][index] for p in parts) > tolerance[index] * scale[done]
+                done[np.nonzero(done)[0][short]] = False
+        finished = active[done]
+        converged[finished] = count
+        with np.errstate(invalid="ignore"):
+            bad = ~np.isfinite(sum(error[p][finished] + np.abs(value[p][finished]) for p in parts))
+        if np.any(bad):   # a grid too coarse for an evanescent stretch: say so rather than return a number
+            error[0][finished[bad]] = np.inf
+        active = active[~done]
+        coarse = tuple(part[~done] for part in fine)
+        fine = tuple(part[~done] for part in finest)
+        count *= 2
+    return value, size, error, converged
+
+
+def l_sum(term, n: int, tolerance: float, reach, max_l: int, progress=None, single: bool = False):
+    """The sum over l for each of n frequencies (see the module docstring).
+
+    ``term(l, summing, share, floor)`` returns (values, sizes, errors), tuples per part, for the frequencies
+    ``summing`` (indices), each to the relative ``share`` of its tolerance with ``floor`` the size of its sum so
+    far.  ``single``: only l = 0 (a point at a regular centre, where the other l vanish).  Returns (values,
+    sizes, errors) per part and the largest l reached; raises ``Unsupported`` past ``max_l``."""
+    from derive.solve.centre import Unsupported
+
+    reach = np.asarray(reach, dtype=float)
+    total = size = error = None
+    quiet = np.zeros(n, dtype=int)
+    summing = np.arange(n)
+    for l in range(max_l + 1):
+        floor = sum(s[summing] for s in size) if size is not None else np.zeros(len(summing))
+        values, sizes, errors = term(l, summing, tolerance / (4 + reach[summing]), floor)
+        if total is None:
+            total = tuple(np.zeros(n, dtype=np.result_type(v, float)) for v in values)
+            size = tuple(np.zeros(n) for _ in values)
+            error = tuple(np.zeros(n) for _ in values)
+        for whole, part in zip(total + size + error, values + sizes + errors):
+            whole[summing] += part
+        term_size = sum(sizes)
+        small = term_size <= 0.01 * tolerance * sum(s[summing] for s in size)
+        quiet[summing] = np.where(small & (l > reach[summing]), quiet[summing] + 1, 0)
+        finished = (quiet[summing] >= 3) | single
+        if not single:      # the first neglected terms are smaller than the last kept
+            for whole, part in zip(error, sizes):
+                whole[summing[finished]] += part[finished]
+        summing = summing[~finished]
+        if progress is not None:
+            progress(l, 1.0 - len(summing) / n)
+        if not len(summing):
+            return total, size, error, l
+    raise Unsupported(f"the l-sum did not converge by l = {max_l}")
+
+
+def on_both_cores(function, n: int, arguments):
+    """``function(*arguments(index, first))`` on two fixed halves of n frequencies (every other one), on both
+    cores where there are two (derive.parallel); below SPLIT_FROM one call.  The halves do not depend on the
+    number of workers, so neither does the result.  Returns [(index, result), ...]."""
+    halves = [np.arange(n)] if n < SPLIT_FROM else [np.arange(0, n, 2), np.arange(1, n, 2)]
+    results = split_map(function, [arguments(index, i == 0) for i, index in enumerate(halves)])
+    return list(zip(halves, results))
