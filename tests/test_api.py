@@ -91,3 +91,11 @@ def test_notsupported_is_an_input_error_naming_why():
         st.response(switching={"width": -1.0})
     with pytest.raises(derive.InputError, match="omega"):
         st.spectrum([-1.0])
+
+
+def test_shells_and_field_problems_print_what_they_are_not_an_address():
+    # a notebook prints objects: say what they are without deriving anything (no "object at 0x...")
+    st = derive.load(os.path.join(ROOT, "worked", "dust_shell", "spec.toml"))
+    shell, problem = repr(st.shells[0]), repr(st.field_problem)
+    assert "between 'inside' and 'outside' at r = R" in shell and "0x" not in shell
+    assert "regions inside, outside; 1 interface(s)" in problem and "0x" not in problem

@@ -257,6 +257,16 @@ class FieldProblem:
     def __init__(self, spacetime):
         self.spacetime = spacetime
 
+    def __repr__(self) -> str:
+        # cheap on purpose: nothing is derived to print the problem in a notebook (horizons once found)
+        found = self.__dict__.get("regions")
+        horizons = ""
+        if found is not None:
+            listed = ", ".join(f"{h.symbol} = {float(h.value):.6g}" for h in self.horizons)
+            horizons = f"; horizons {listed}" if listed else "; no horizons"
+        return (f"<FieldProblem of {self.spacetime.title!r}: regions {', '.join(self.spacetime.regions)}; "
+                f"{len(self.spacetime.interfaces)} interface(s){horizons}>")
+
     @cached_property
     def shells(self):
         return self.spacetime.shells

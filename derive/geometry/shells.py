@@ -56,6 +56,11 @@ class Shell:
         self.tangential = [c for c in self.coordinates if c != self.coordinate]
         self.tangential_index = [i for i, c in enumerate(self.coordinates) if c != self.coordinate]
 
+    def __repr__(self) -> str:
+        # cheap on purpose: nothing is solved to print a shell in a notebook
+        return (f"<Shell between {self.minus!r} and {self.plus!r} at {self.coordinate} = {self.position} "
+                f"({self.spacetime.title!r})>")
+
     # -- first junction condition ---------------------------------------------------------------------
     def _on_shell(self, expr):
         return expr.subs(self.coordinate, self.position)
