@@ -250,3 +250,20 @@ def test_flat_massive_two_point(write_spec):
     np.testing.assert_allclose(result.wightman["re"], exact, rtol=0, atol=1e-9 * float(np.max(result.scale)))
     both = st.two_point(omegas, between=("r = 0", "r = 0"), tolerance=1e-9)
     np.testing.assert_allclose(both.wightman["re"], k / (4 * np.pi ** 2), rtol=1e-9, atol=1e-15)
+
+
+def test_high_l_terms_are_finite_on_the_coarsest_grid():
+    # Regression (derive's own behaviour, no outside value): under the centrifugal barrier a step of
+    # gamma h = sqrt(l(l+1)) d ln r e-folds made the step's first-order correction overflow, so every l beyond ~20
+    # was inf/nan on the coarse grids and refinement climbed to 8-16 times the steps everywhere.  Each grid is
+    # finite now, and the coarsest is within a quarter of the finest (a few percent where the term matters).
+    from derive.solve.offcentre import _term_values
+
+    problem = problem_of(DUST)
+    omegas = np.array([40.0, 80.0])
+    series = problem.regions[0].centre_series
+    for l in (30, 45):
+        coarse, _ = _term_values(problem, l, omegas, (0.5, 0.5), 1.0, 32, series, (0.5, 80.0))
+        fine, _ = _term_values(problem, l, omegas, (0.5, 0.5), 1.0, 512, series, (0.5, 80.0))
+        assert np.all(np.isfinite(coarse))
+        np.testing.assert_allclose(coarse, fine, rtol=0.25)

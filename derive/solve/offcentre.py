@@ -148,7 +148,12 @@ def _first_spans(region, l, r_s, top, steps, highest):
     full = int(round(steps * max(1.0, np.log10(top / max(cut, r_s)))))
     if cut <= r_s * 10:
         return [(r_s, top, True, full)]
-    return [(r_s, cut, True, max(4, steps // 4)), (cut, top, True, full)]
+    # below the cut the solution grows like r^(l+1) under the barrier: a step of gamma h = sqrt(l(l+1)) d ln r
+    # e-folds makes the first-order (interaction-picture) correction of the step exponentially large, and past
+    # gamma h ~ 10 it overflows (the term was then inf/nan on the coarse grids, and refinement went on to 8-16
+    # times the steps everywhere for every l beyond ~20); so gamma h <= 6 at the coarsest grid (2x the base)
+    evanescent = int(np.ceil(np.sqrt(l * (l + 1.0)) * np.log(cut / r_s) / 12))
+    return [(r_s, cut, True, max(4, steps // 4, evanescent)), (cut, top, True, full)]
 
 
 def _log_u_at(problem, l, omegas, radii, steps, series, fixed):
