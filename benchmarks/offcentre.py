@@ -1,4 +1,4 @@
-"""Benchmark: the l-summed spectral density off the centre (a detector at r = R/2 inside worked/dust_shell),
+"""Benchmark: the l-summed spectral density off the centre (a detector at r = R/2 inside worked/static_shell),
 this code against the previous code path in the same run.
 
 The previous code path is the solver as it was at git revision BASE (default: the commit before the l-sum was
@@ -63,7 +63,7 @@ def main() -> None:
     import derive
     from derive.solve import offcentre
 
-    st = derive.load(os.path.join(ROOT, "worked", "dust_shell", "spec.toml"))
+    st = derive.load(os.path.join(ROOT, "worked", "static_shell", "spec.toml"))
     problem = st.numeric_problem
     omegas = np.linspace(1.0, 100.0, args.count)
     r0 = 0.5
@@ -88,7 +88,7 @@ def main() -> None:
 
     if args.response:
         os.environ.pop("DERIVE_WORKERS", None)
-        text = open(os.path.join(ROOT, "worked", "dust_shell", "spec.toml")).read()
+        text = open(os.path.join(ROOT, "worked", "static_shell", "spec.toml")).read()
         text = text.replace('at = "r = 0"', 'at = "r = R/2"').replace('width = "0.2"', 'width = "0.1"')
         with tempfile.NamedTemporaryFile("w", suffix=".toml", delete=False) as handle:
             handle.write(text)

@@ -1,4 +1,4 @@
-"""Benchmark: 64 gaps for a thin-shell spacetime (worked/dust_shell), modes included, derive against the
+"""Benchmark: 64 gaps for a thin-shell spacetime (worked/static_shell), modes included, derive against the
 straightforward way in the same run: scipy's quad over frequency, each integrand value from a solve_ivp
 (DOP853, rtol 1e-10) solution of the radial problem from the centre to r = 200 R.  The straightforward way is
 timed on one gap with a cap (--cap seconds, default 120) and scaled to 64; when it does not finish within the
@@ -45,7 +45,7 @@ def main():
     from derive.codegen.problem import numeric_detector, numeric_problem
     from derive.detector.study import detector_response
 
-    st = derive.load(os.path.join(HERE, "..", "worked", "dust_shell", "spec.toml"))
+    st = derive.load(os.path.join(HERE, "..", "worked", "static_shell", "spec.toml"))
     start = time.perf_counter()
     problem = numeric_problem(KernelSet(st))
     detector = numeric_detector(st)
@@ -73,7 +73,7 @@ def main():
         value, finished = float("nan"), False
     t_theirs = (time.perf_counter() - start) * len(gaps)
     deviation = abs(value - result.response[40]) / result.response[40] if finished else float("nan")
-    print("64 gaps, dust shell, Gaussian switching, tolerance 1e-9, modes included")
+    print("64 gaps, static shell, Gaussian switching, tolerance 1e-9, modes included")
     print(f"  derive:         {t_ours:9.2f} s (kernels, modes and quadrature; largest estimated relative error "
           f"{np.max(result.error / result.response):.1e})")
     bound = "" if finished else "> "

@@ -1,6 +1,6 @@
 """Benchmark: the engine's speed targets in one run, each printed beside its target.
 
-* A detector at r = R/2 inside the dust shell of worked/dust_shell (Gaussian width 0.1, gaps -5, 0, 5): the whole
+* A detector at r = R/2 inside the static shell of worked/static_shell (Gaussian width 0.1, gaps -5, 0, 5): the whole
   response at 1e-8 (target: under 10 s) and at 1e-10 (target: under 30 s), and the same detector at the centre
   of the same spec (target: off the centre at most 5 times the centred cost).
 * The Schwarzschild example's response in its three states (worked/schwarzschild; target: under 10 s).
@@ -28,7 +28,7 @@ sys.path.insert(0, ROOT)
 def _detector_at(position: str):
     import derive
 
-    text = open(os.path.join(ROOT, "worked", "dust_shell", "spec.toml"), encoding="utf-8").read()
+    text = open(os.path.join(ROOT, "worked", "static_shell", "spec.toml"), encoding="utf-8").read()
     text = text.replace('at = "r = 0"', f'at = "{position}"').replace('width = "0.2"', 'width = "0.1"')
     with tempfile.NamedTemporaryFile("w", suffix=".toml", delete=False) as handle:
         handle.write(text)
@@ -52,7 +52,7 @@ def main() -> None:
     import derive
 
     off, centre = _detector_at("r = R/2"), _detector_at("r = 0")
-    print("dust shell, Gaussian width 0.1, gaps -5, 0, 5")
+    print("static shell, Gaussian width 0.1, gaps -5, 0, 5")
     for tolerance, target in ((1e-8, 10.0), (1e-10, 30.0)):
         if args.skip_slow and tolerance < 1e-8:
             continue

@@ -3,7 +3,7 @@
 The public API::
 
     import derive
-    st = derive.load("worked/dust_shell/spec.toml", M=0.2)
+    st = derive.load("worked/static_shell/spec.toml", M=0.2)
     geo = st.geometry["outside"]
     geo.kretschmann, geo.christoffel, geo.einstein, geo.energy_conditions
     s = st.spectrum("0.5:10:20")          # the spectral density at the centre, with errors

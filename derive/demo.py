@@ -1,4 +1,4 @@
-"""The bundled demo: a probe at the centre of a charged dust shell (derive/examples/charged_shell.toml).
+"""The bundled demo: a probe at the centre of a static charged shell (derive/examples/charged_shell.toml).
 
 It runs every stage derive has so far (geometry, the shell, the field, verified kernels), prints what each
 found in plain words, and with --out writes the derivation (LaTeX, and PDF where pdflatex exists) and the
@@ -83,7 +83,7 @@ def run_demo(out: str | None = None) -> int:
     spacetime = load(demo_spec_path())
     values = spacetime.parameter_values
     M, Q, R = (spacetime.parameters[n].value for n in ("M", "Q", "R"))
-    print("derive demo: a probe at the centre of a charged dust shell\n")
+    print("derive demo: a probe at the centre of a static charged shell\n")
     print(spec_summary(spacetime))
 
     print("\n1. Geometry")
@@ -102,9 +102,10 @@ def run_demo(out: str | None = None) -> int:
               "time: the first junction condition fixes it")
     sigma, p = shell.surface_energy_density, shell.surface_pressure
     print(f"   surface energy density sigma = {sigma} = {_number(sigma, values):.12e}")
-    print(f"   surface pressure       p     = {_number(p, values):.12e}")
+    print(f"   surface pressure       p     = {_number(p, values):.12e} (what holds the shell static: "
+          "with p = 0, a shell of dust, it would need |Q| = M)")
     m = _number(shell.proper_mass, values)
-    print(f"   proper mass of the dust m = {m:.12f}; total mass M = {M} (binding energy and field energy make "
+    print(f"   proper mass of the shell m = {m:.12f}; total mass M = {M} (binding energy and field energy make "
           f"up the difference: M = m - m^2/(2R) + Q^2/(2R) = {m - m * m / (2 * R) + Q * Q / (2 * R):.12f})")
 
     print("\n3. The field across the shell")

@@ -11,7 +11,7 @@ import derive
 from derive.cli import main
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
-SHELL = os.path.join(ROOT, "worked", "dust_shell", "spec.toml")
+SHELL = os.path.join(ROOT, "worked", "static_shell", "spec.toml")
 
 
 def test_load_takes_overrides_as_keywords():
@@ -95,7 +95,7 @@ def test_notsupported_is_an_input_error_naming_why():
 
 def test_shells_and_field_problems_print_what_they_are_not_an_address():
     # a notebook prints objects: say what they are without deriving anything (no "object at 0x...")
-    st = derive.load(os.path.join(ROOT, "worked", "dust_shell", "spec.toml"))
+    st = derive.load(os.path.join(ROOT, "worked", "static_shell", "spec.toml"))
     shell, problem = repr(st.shells[0]), repr(st.field_problem)
     assert "between 'inside' and 'outside' at r = R" in shell and "0x" not in shell
     assert "regions inside, outside; 1 interface(s)" in problem and "0x" not in problem

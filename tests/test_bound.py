@@ -13,13 +13,13 @@ from derive.codegen.problem import numeric_problem
 from derive.solve.bound import bound_states
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
-DUST_SHELL = os.path.join(ROOT, "worked", "dust_shell", "spec.toml")
+DUST_SHELL = os.path.join(ROOT, "worked", "static_shell", "spec.toml")
 M, R, MU = 1.0, 10.0, 0.02          # alpha = M mu = 0.02; Bohr radius 1/(M mu^2) = 2500 >> R
 ALPHA, BOHR = M * MU, 1 / (M * MU * MU)
 
 
 def light_field_around_a_shell(folder) -> str:
-    """The worked dust shell with M = 1, R = 10 and a field of mass 0.02: a 'gravitational atom' whose Bohr
+    """The worked static shell with M = 1, R = 10 and a field of mass 0.02: a 'gravitational atom' whose Bohr
     radius is 250 times the shell's."""
     with open(DUST_SHELL) as handle:
         text = handle.read()

@@ -137,7 +137,7 @@ def test_flagged_kernels_are_refused_by_the_solver_gate():
 
 def test_kernels_command_exports_an_importable_folder(tmp_path, capsys):
     out = tmp_path / "shell_kernels"
-    spec = os.path.join(WORKED, "dust_shell", "spec.toml")
+    spec = os.path.join(WORKED, "static_shell", "spec.toml")
     assert main(["kernels", spec, "--out", str(out), "--json"]) == 0
     data = json.loads(capsys.readouterr().out)
     record = data["kernels"][0]

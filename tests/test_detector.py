@@ -82,7 +82,7 @@ def test_gaussian_transform_against_direct_quadrature(k):
 def test_locality_of_a_centred_detector():
     # docs/conventions.md section 9: from the centre of a flat interior of radius R the light round trip is 2R in the
     # interior's proper units; the Gaussian's duration is 2 sigma erfcinv(1e-12).
-    result = run_study(os.path.join(ROOT, "worked", "dust_shell", "spec.toml"))
+    result = run_study(os.path.join(ROOT, "worked", "static_shell", "spec.toml"))
     assert result["locality"]["round_trip"] == pytest.approx(2.0, rel=1e-13)
     assert result["locality"]["duration"] == pytest.approx(2 * 0.2 * erfcinv(1e-12), rel=1e-14)
     assert result["locality"]["local"] is False   # 2.017 > 2: the worked example is deliberately just non-local
@@ -99,7 +99,7 @@ def test_trials_formula():
 def test_response_command_json_contract(tmp_path, capsys):
     # Issue 6 contract: {"gaps", "response", "error", "reference": {"with", "response", "error"},
     # "relative_difference", "locality": {"duration", "round_trip", "local"}, "trials_to_distinguish"}
-    spec = os.path.join(ROOT, "worked", "dust_shell", "spec.toml")
+    spec = os.path.join(ROOT, "worked", "static_shell", "spec.toml")
     assert main(["response", spec, "--json", "--out", str(tmp_path / "out"), "--gaps=-2,0,2"]) == 0
     data = json.loads(capsys.readouterr().out)
     for key in ("gaps", "response", "error", "reference", "relative_difference", "locality",
@@ -113,7 +113,7 @@ def test_response_command_json_contract(tmp_path, capsys):
 
 def test_states_need_the_right_spacetime(capsys, tmp_path):
     # A thermal state needs a horizon; a regular spacetime says so (exit 2, with the reason).
-    text = open(os.path.join(ROOT, "worked", "dust_shell", "spec.toml")).read().replace(
+    text = open(os.path.join(ROOT, "worked", "static_shell", "spec.toml")).read().replace(
         'state = "vacuum"', 'state = "hartle-hawking"')
     assert 'state = "hartle-hawking"' in text
     path = tmp_path / "spec.toml"
@@ -125,7 +125,7 @@ def test_states_need_the_right_spacetime(capsys, tmp_path):
 def test_sharp_switching_is_refused_as_divergent(capsys, tmp_path):
     # Svaiter & Svaiter, Phys. Rev. D 46, 5267 (1992) (from memory): sharp switching gives a logarithmically
     # UV-divergent response in 3+1; derive refuses with the reason rather than print a cut-off-dependent number.
-    text = open(os.path.join(ROOT, "worked", "dust_shell", "spec.toml")).read()
+    text = open(os.path.join(ROOT, "worked", "static_shell", "spec.toml")).read()
     start = text.index("switching =")
     end = text.index("\n", start)
     path = tmp_path / "spec.toml"
@@ -238,7 +238,7 @@ def test_flat_massive_gaussian_response_against_direct_quadrature(write_spec):
 def test_massive_field_with_bound_states_is_refused(capsys, tmp_path):
     # A massive field around a gravitating shell has bound states below the mass (the Coulomb-like tail
     # -M mu^2/r supports hydrogen-like levels); their discrete spectrum is not computed, so no response.
-    text = open(os.path.join(ROOT, "worked", "dust_shell", "spec.toml")).read().replace('mass = "0"', 'mass = "1"')
+    text = open(os.path.join(ROOT, "worked", "static_shell", "spec.toml")).read().replace('mass = "0"', 'mass = "1"')
     path = tmp_path / "spec.toml"
     path.write_text(text)
     assert main(["response", str(path)]) == 2
@@ -289,7 +289,7 @@ def test_sharp_switching_in_2plus1_converges_with_its_tail_bounded(write_spec):
                                             ('{ shape = "gaussian", width = "-1" }', "width")])
 def test_bad_switching_names_file_and_key(capsys, tmp_path, switching, key):
     # Bad input gets exit 2 and a message naming the file and the key (house rule).
-    text = open(os.path.join(ROOT, "worked", "dust_shell", "spec.toml")).read()
+    text = open(os.path.join(ROOT, "worked", "static_shell", "spec.toml")).read()
     start = text.index("switching =")
     path = tmp_path / "spec.toml"
     path.write_text(text[:start] + f"switching = {switching}" + text[text.index("\n", start):])

@@ -45,7 +45,7 @@ def test_a_failing_run_leaves_the_earlier_folder(tmp_path, monkeypatch):
         raise KeyboardInterrupt
     monkeypatch.setattr(run_module, "_numerics", interrupted)
     with pytest.raises(KeyboardInterrupt):
-        run_module.run(derive.load(os.path.join(ROOT, "worked", "dust_shell", "spec.toml")), str(out),
+        run_module.run(derive.load(os.path.join(ROOT, "worked", "static_shell", "spec.toml")), str(out),
                        progress=lambda message: None)
     assert (out / "earlier.txt").read_text() == "keep"
     assert sorted(p.name for p in tmp_path.iterdir()) == ["result"]

@@ -73,7 +73,7 @@ def test_de_sitter_bubble_inside_schwarzschild(write_spec):
         assert sp.N((shell.surface_pressure - p).subs(values), 30) == pytest.approx(0, abs=1e-25)
 
 
-def test_ricci_delta_of_the_dust_shell(write_spec):
+def test_ricci_delta_of_the_static_shell(write_spec):
     # Source: computed independently: for the flat/Schwarzschild shell at M = 1, R = 4 the
     # integral of R across the shell is -2[K] = 0.116116523516816 (docs/conventions.md section 3).
     st = derive.load(write_spec(two_region_spec("1", "1 - 2*M/r", DUST)))

@@ -63,7 +63,7 @@ def test_shell_of_vanishing_mass_gives_flat_space(write_spec):
 
 def test_error_estimates_bound_the_true_error():
     # The reported error must be at least the difference from a much finer solution (common practice).
-    problem = problem_of(os.path.join(ROOT, "worked", "dust_shell", "spec.toml"))
+    problem = problem_of(os.path.join(ROOT, "worked", "static_shell", "spec.toml"))
     result = centre_density(problem, OMEGAS)
     assert result.ok, result.message()
     reference = _run(problem, OMEGAS, 4096)[0]
@@ -75,7 +75,7 @@ def test_high_frequencies_see_the_interior_clock_rate():
     # docs/conventions.md section 7: in the detector's proper time the interior is flat; at frequencies far above the
     # shell's scale the modes cross it unreflected, so the density per unit t tends to omega/(4 pi^2 alpha^2)
     # with alpha^2 = 1 - 2M/R (here 1/2): the ratio to Minkowski tends to 2, oscillating with decaying amplitude.
-    problem = problem_of(os.path.join(ROOT, "worked", "dust_shell", "spec.toml"))
+    problem = problem_of(os.path.join(ROOT, "worked", "static_shell", "spec.toml"))
     omegas = np.array([300.0, 1000.0, 3000.0])
     result = centre_density(problem, omegas)
     ratio = result.density / minkowski_density(omegas)
@@ -86,7 +86,7 @@ def test_high_frequencies_see_the_interior_clock_rate():
 def test_independent_mpmath_solution():
     # Issue 5 check: an independent solution at 30 digits (mpmath's Taylor-series ODE solver on the mpmath twin
     # kernels, in r) agrees with the propagator to 1e-10 at a handful of frequencies.
-    st = derive.load(os.path.join(ROOT, "worked", "dust_shell", "spec.toml"))
+    st = derive.load(os.path.join(ROOT, "worked", "static_shell", "spec.toml"))
     kernels = KernelSet(st)
     problem = numeric_problem(kernels)
     values = [st.parameter_values[p] for p in kernels.parameters]
@@ -114,7 +114,7 @@ def test_independent_mpmath_solution():
 def test_cost_per_frequency_does_not_depend_on_omega():
     # Structural, not timed: the same grid serves every frequency, and the accuracy at omega = 3000 on that
     # grid is no worse than at omega = 1 (the method's error falls as omega grows).
-    problem = problem_of(os.path.join(ROOT, "worked", "dust_shell", "spec.toml"))
+    problem = problem_of(os.path.join(ROOT, "worked", "static_shell", "spec.toml"))
     omegas = np.array([1.0, 3000.0])
     coarse, fine = _run(problem, omegas, 64)[0], _run(problem, omegas, 128)[0]
     change = np.abs(fine - coarse) / fine
@@ -145,7 +145,7 @@ def test_off_centre_density_tends_to_the_centre():
     # the difference falling like (omega r0)^2.
     from derive.solve.offcentre import density_off_centre
 
-    problem = problem_of(os.path.join(ROOT, "worked", "dust_shell", "spec.toml"))
+    problem = problem_of(os.path.join(ROOT, "worked", "static_shell", "spec.toml"))
     omegas = np.array([0.5, 3.0])
     centre = centre_density(problem, omegas).density
     gaps = [np.abs(density_off_centre(problem, omegas, r0).density / centre - 1) for r0 in (0.02, 0.01)]

@@ -17,7 +17,7 @@ from derive.solve.offcentre import angular_factor, two_point
 from test_solve import FLAT
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
-DUST = os.path.join(ROOT, "worked", "dust_shell", "spec.toml")
+DUST = os.path.join(ROOT, "worked", "static_shell", "spec.toml")
 SCHWARZSCHILD = os.path.join(ROOT, "worked", "schwarzschild", "spec.toml")
 
 
@@ -87,7 +87,7 @@ def test_flat_two_point_in_other_dimensions(write_spec, dimension):
 
 
 def test_centre_to_point_inside_a_shell_is_the_interior_standing_wave():
-    # Inside the dust shell the metric is flat with the clock rate alpha = sqrt(1 - 2M/R) (first junction
+    # Inside the static shell the metric is flat with the clock rate alpha = sqrt(1 - 2M/R) (first junction
     # condition); only l = 0 reaches the centre and its interior solution is u = sin(omega r/alpha) exactly, so
     # W(0, r) = W(0, 0) sin(k r)/(k r) with k = omega/alpha, whatever the shell does to the amplitude (derived
     # here from the radial equation; the flat-interior standing wave is common practice).

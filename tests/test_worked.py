@@ -42,7 +42,7 @@ def test_every_example_checks_and_has_geometry(name, capsys):
 @pytest.mark.parametrize("name, sigma, p", [
     # Source: Israel (1966); Poisson, A Relativist's Toolkit (2004) ch. 3 — general static-shell formula,
     # values at the examples' parameters computed independently from the closed forms in each README.
-    ("dust_shell", 0.0233077017861285, 0.00241359154689052),
+    ("static_shell", 0.0233077017861285, 0.00241359154689052),
     ("charged_shell", 0.0174254794108268, 0.000966668905793953),
     ("de_sitter_bubble", 0.0267213434032004, 0.00808113468783867),
 ])
@@ -51,7 +51,7 @@ def test_shell_examples(name, sigma, p):
     shell = st.shells[0]
     assert at_values(st, shell.surface_energy_density) == pytest.approx(sigma, rel=1e-13)
     assert at_values(st, shell.surface_pressure) == pytest.approx(p, rel=1e-13)
-    if name == "dust_shell":   # the tabulated value is the README's closed form at M = 0.25, R = 1
+    if name == "static_shell":   # the tabulated value is the README's closed form at M = 0.25, R = 1
         import math
         M, R = st.parameters["M"].value, st.parameters["R"].value
         assert sigma == pytest.approx((1 - math.sqrt(1 - 2 * M / R)) / (4 * math.pi * R), rel=1e-14)
