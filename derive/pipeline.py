@@ -366,9 +366,11 @@ def response_json(result) -> dict:
                           "duration": switching.duration,
                           "support": None if switching.support is None else list(switching.support)},
             "state": result["state"], "at": result["at"], "coupling": result["coupling"],
-            "sigmas": result["sigmas"], "locality": result["locality"], "notes": result["notes"]}
+            "sigmas": result["sigmas"], "locality": result["locality"], "notes": result["notes"],
+            "effective_temperature": result["effective_temperature"]}
     if "states" in result:
-        data["states"] = {name: {"response": _floats(value["response"]), "error": _floats(value["error"])}
+        data["states"] = {name: {"response": _floats(value["response"]), "error": _floats(value["error"]),
+                                 "effective_temperature": value["effective_temperature"]}
                           for name, value in result["states"].items()}
     for key in ("local_temperature", "local_cosmological_temperature"):
         if key in result:

@@ -149,3 +149,22 @@ def test_the_infrared_divergence_of_a_massless_minimally_coupled_field_is_refuse
     with pytest.raises(NotSupported) as caught:
         st.response()
     assert "infrared" in str(caught.value) and "yet" not in str(caught.value)
+
+
+def test_effective_temperature_against_the_thermal_reference(write_spec):
+    # T_eff = Omega / ln(F(-Omega)/F(Omega)) from derive's response at the centre (Bunch-Davies, conformal) against
+    # the same ratio of the independent thermal flat quadrature above (thermality: Narnhofer, Peter & Thirring
+    # 1996; Deser & Levin 1997); for a switching of width 1 it is not yet the KMS temperature 1/(2 pi L), and
+    # for long switching it tends to it (Unruh 1976, detailed balance).
+    st = derive.load(write_spec(patch(width="1")))
+    result = st.response(tolerance=1e-9)
+    teff = result.effective_temperature
+    assert list(teff["gap"]) == [1.0, 2.0]
+    temperature = 1 / (2 * np.pi * L)
+    for gap, value, error in zip(teff["gap"], teff["value"], teff["error"]):
+        expected = gap / np.log(thermal_gaussian_response(-gap, 1.0, temperature)
+                                / thermal_gaussian_response(gap, 1.0, temperature))
+        assert abs(value - expected) <= error + 1e-12 * expected
+        assert error < 1e-7 * value
+    long = st.response(gaps=[-1.0, 1.0], switching={"width": 40.0}, tolerance=1e-8).effective_temperature
+    assert long["value"][0] == pytest.approx(temperature, rel=2e-2)

@@ -236,7 +236,8 @@ def study(problem, detector, reference_problem=None, tolerance: float = 1e-10, g
     _check_response(ours, tolerance, shortfalls)
     out = {"gaps": gaps, "response": ours.response, "error": ours.error, "switching": switching,
            "state": detector.state, "at": detector.radius, "coupling": detector.coupling,
-           "sigmas": detector.sigmas, "notes": []}
+           "sigmas": detector.sigmas, "notes": [],
+           "effective_temperature": effective_temperature(gaps, ours.response, ours.error)}
     if has_horizon(problem):
         from derive.solve.exterior import states_of
 
@@ -244,7 +245,9 @@ def study(problem, detector, reference_problem=None, tolerance: float = 1e-10, g
         for name in states_of(problem):
             other = ours if name == detector.state else detector_response(problem, detector, tolerance, gaps,
                                                                            state=name, shortfalls=shortfalls)[0]
-            out["states"][name] = {"response": other.response, "error": other.error}
+            out["states"][name] = {"response": other.response, "error": other.error,
+                                   "effective_temperature": effective_temperature(gaps, other.response,
+                                                                                  other.error)}
     if local_temperature(problem, sqrt_f0) is not None:
         out["local_temperature"] = local_temperature(problem, sqrt_f0)
     if has_horizon(problem) and cosmological_temperature(problem, sqrt_f0) is not None:
@@ -291,6 +294,33 @@ def study(problem, detector, reference_problem=None, tolerance: float = 1e-10, g
                           + (f". Every value is reported with the error it reached; --tolerance {passing:.0e} "
                              "would pass" if passing else ""))
         out["passing_tolerance"] = passing
+    return out
+
+
+def effective_temperature(gaps, F, error) -> dict:
+    """T_eff(Omega) = Omega / ln(F(-Omega)/F(Omega)) for every gap Omega > 0 whose opposite -Omega is also a gap
+    (the temperature at which a thermal state would give the same ratio of excitation to de-excitation; for a
+    state that is KMS at T along the worldline it tends to T as the switching grows long: the detailed-balance
+    form of thermality).  Its error to first order: T^2/Omega (e(-Omega)/F(-Omega) + e(Omega)/F(Omega)).  Where
+    the ratio is not above 1 (no de-excitation excess) the value is None.  Returns {"gap", "value", "error"}
+    (lists, in the order of the gaps)."""
+    gaps, F, error = (np.asarray(a, dtype=float) for a in (gaps, F, error))
+    out = {"gap": [], "value": [], "error": []}
+    for i, gap in enumerate(gaps):
+        if not gap > 0:
+            continue
+        match = np.nonzero(np.abs(gaps + gap) <= 1e-12 * gap)[0]
+        if not len(match):
+            continue
+        j = int(match[0])
+        out["gap"].append(float(gap))
+        if F[i] > 0 and F[j] > F[i]:
+            T = gap / np.log(F[j] / F[i])
+            out["value"].append(float(T))
+            out["error"].append(float(T * T / gap * (error[j] / F[j] + error[i] / F[i])))
+        else:
+            out["value"].append(None)
+            out["error"].append(None)
     return out
 
 

@@ -167,6 +167,11 @@ def response_summary(title: str, data: dict) -> str:
         for name, value in data["states"].items():
             lines.append(f"  {name:>15}: " + ", ".join(f"{f:.6e} +- {e:.1e}"
                                                          for f, e in zip(value["response"], value["error"])))
+    teff = data.get("effective_temperature") or {}
+    shown = [f"{g:g}: {v:.8g} +- {e:.1e}" for g, v, e in zip(teff.get("gap", []), teff.get("value", []),
+                                                             teff.get("error", [])) if v is not None]
+    if shown:
+        lines.append("effective temperature Omega/ln(F(-Omega)/F(Omega)) at gap " + "; ".join(shown))
     loc = data["locality"]
     lines.append(f"locality: switching duration {loc['duration']:.4g} vs light round trip {loc['round_trip']:.4g} "
                  f"-> {'local' if loc['local'] else 'NOT local'}")
