@@ -247,9 +247,11 @@ def cmd_spectrum(args) -> int:
         return _deliver(args, result, write_spectrum_files,
                         f"{spacetime.title}: normal modes of l = {data['l']} (reflecting AdS boundary), weights at "
                         f"r = {data['at']:g}\n{'omega':>22} {'error':>10} {'weight':>22} {'error':>10}", rows)
-    rows = [f"{w:12.6g} {d:22.15e} {e:10.1e} " + (f"{d / m:14.10f}" if m else "")
-            for w, d, e, m in zip(data["omega"], data["density"], data["error"]["density"],
-                                  data["minkowski_density"])]
+    # the comparison at equal local (proper) frequency: at equal coordinate frequency the ratio would be the
+    # redshift 1/alpha^2, which reads like an enhancement
+    ratios = data.get("ratio_to_minkowski") or [None] * len(data["omega"])
+    rows = [f"{w:12.6g} {d:22.15e} {e:10.1e} " + (f"{q:14.10f}" if q is not None else "")
+            for w, d, e, q in zip(data["omega"], data["density"], data["error"]["density"], ratios)]
     levels = data.get("bound_states")
     if levels is not None:
         rows.append(f"bound states (l = {data['l']}; discrete: a weight per level, per unit omega integrated):\n"
@@ -260,7 +262,9 @@ def cmd_spectrum(args) -> int:
             rows.append("  (more levels accumulate at the mass: the lowest are listed)")
     where = f"l = {data['l']}" if data["l"] is not None else "summed over l"
     return _deliver(args, result, write_spectrum_files,
-                    f"{spacetime.title}: spectral density at r = {data['at']:g}, {where}\n"
+                    f"{spacetime.title}: spectral density at r = {data['at']:g}, {where}"
+                    + (f"; redshift factor sqrt(-g_tt) = {data['redshift_factor']:.10g}, the last column compares "
+                       "with Minkowski at equal proper frequency" if "redshift_factor" in data else "") + "\n"
                     f"{'omega':>12} {'density':>22} {'error':>10} {'/ Minkowski':>14}", rows)
 
 

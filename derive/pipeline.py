@@ -108,8 +108,14 @@ def _floats(values):
     return [None if v is None or not np.isfinite(v) else float(v) for v in np.asarray(values, dtype=float)]
 
 
+def _compared(comparison: dict) -> dict:
+    return {"redshift_factor": comparison["redshift_factor"],
+            "ratio_to_minkowski": _floats(comparison["ratio_to_minkowski"]),
+            "ratio_to_minkowski_error": _floats(comparison["ratio_to_minkowski_error"])}
+
+
 def _density(spacetime, problem, omegas, at, l, tolerance, progress=None) -> Spectrum:
-    from derive.solve.api import METHOD, bound_state_table, spectrum_at_centre, spectrum_off_centre
+    from derive.solve.api import METHOD, bound_state_table, local_comparison, spectrum_at_centre, spectrum_off_centre
 
     if at:
         result = spectrum_off_centre(problem, omegas, at, tolerance, progress)
@@ -119,6 +125,9 @@ def _density(spacetime, problem, omegas, at, l, tolerance, progress=None) -> Spe
             "error": {"density": _floats(result["error"])}, "tolerance": tolerance, "method": METHOD,
             "units": "per unit omega of the spec's time coordinate",
             "minkowski_density": _floats(result["minkowski"])}
+    if result["l"] == 0 or at:    # the whole density at this point (l = 0 is all there is at the centre)
+        data.update(_compared(local_comparison(problem, omegas, float(at or 0.0), result["density"],
+                                               result["error"])))
     ok, message = bool(result["ok"]), result["message"]
     temperature = cosmological_temperature(problem)
     if temperature is not None:
@@ -176,6 +185,9 @@ def _scattering(spacetime, problem, omegas, at, l, tolerance, progress) -> Spect
                           "summed over l"})
     data["error"].update({"density": _floats(outside.error), "density_in": _floats(outside.inward_error),
                           "density_up": _floats(outside.outward_error)})
+    from derive.solve.api import local_comparison
+
+    data.update(_compared(local_comparison(problem, omegas, float(at), outside.density, outside.error)))
     data["states"] = {}
     if outside.outer_temperature is not None:
         data["cosmological_temperature"] = outside.outer_temperature

@@ -99,3 +99,21 @@ def test_shells_and_field_problems_print_what_they_are_not_an_address():
     shell, problem = repr(st.shells[0]), repr(st.field_problem)
     assert "between 'inside' and 'outside' at r = R" in shell and "0x" not in shell
     assert "regions inside, outside; 1 interface(s)" in problem and "0x" not in problem
+
+
+def test_ratio_to_minkowski_compares_at_equal_proper_frequency():
+    # Inside the static shell the geometry is flat with the lapse alpha = sqrt(1 - 2M/R) fixed by the first
+    # junction condition (continuity of the induced metric, Israel, Nuovo Cimento B 44, 1 (1966)).  Per unit
+    # proper frequency the centre's density is then flat space's, nu/(4 pi^2) (Birrell & Davies 1982, ch. 3),
+    # up to the waves the shell reflects, which fade as the wavelength shrinks below R; at the same coordinate
+    # frequency the ratio would instead plateau at 1/alpha^2 = 2.
+    st = derive.load(SHELL)
+    result = st.spectrum([20.0, 40.0], tolerance=1e-10)
+    assert result.redshift_factor == pytest.approx(np.sqrt(1 - 2 * 0.25 / 1.0), rel=1e-15)
+    np.testing.assert_allclose(result.ratio_to_minkowski, 1.0, atol=1e-3)
+    assert np.all(result.ratio_to_minkowski_error < 1e-9)
+    off = st.spectrum([30.0], at=0.5, tolerance=1e-8)
+    np.testing.assert_allclose(off.ratio_to_minkowski, 1.0, atol=1e-2)
+    # without the shell the ratio is one at every frequency
+    flat = derive.load(SHELL, M=1e-9).spectrum([0.3, 3.0], tolerance=1e-10)
+    np.testing.assert_allclose(flat.ratio_to_minkowski, 1.0, rtol=1e-8)

@@ -6,6 +6,8 @@ import csv
 import io
 import os
 
+import numpy as np
+
 from derive.outputs import write_atomic
 
 
@@ -54,8 +56,12 @@ def _interactive() -> bool:
 
 # -- tables: (header, columns) of each result, shared by the CSV files and the notebook's data frames --------
 def spectrum_table(data: dict) -> tuple[list[str], list[list]]:
-    return (["omega", "density", "density_error", "minkowski_density"],
-            [data["omega"], data["density"], data["error"]["density"], data["minkowski_density"]])
+    header = ["omega", "density", "density_error", "minkowski_density"]
+    columns = [data["omega"], data["density"], data["error"]["density"], data["minkowski_density"]]
+    if data.get("ratio_to_minkowski") is not None:
+        header += ["ratio_to_minkowski", "ratio_to_minkowski_error"]
+        columns += [data["ratio_to_minkowski"], data["ratio_to_minkowski_error"]]
+    return header, columns
 
 
 def bound_state_table(levels: dict) -> tuple[list[str], list[list]]:
@@ -113,9 +119,20 @@ def spectrum_figure(data: dict, title: str):
     axes[0].plot(data["omega"], data["minkowski_density"], "--", label=r"Minkowski $\omega/4\pi^2$")
     axes[0].set_ylabel(r"density per unit $\omega$")
     axes[0].legend()
-    ratio = [d / m if m else float("nan") for d, m in zip(data["density"], data["minkowski_density"])]
-    axes[1].plot(data["omega"], ratio)
-    axes[1].set_ylabel("ratio to Minkowski")
+    if data.get("ratio_to_minkowski") is not None:
+        # equal local (proper) frequency: the plateau is 1 in a flat region, not the redshift 1/alpha^2
+        ratio = np.array([np.nan if v is None else v for v in data["ratio_to_minkowski"]], dtype=float)
+        error = np.array([np.nan if v is None else v for v in data["ratio_to_minkowski_error"]], dtype=float)
+        axes[1].plot(data["omega"], ratio)
+        axes[1].fill_between(data["omega"], ratio - error, ratio + error, alpha=0.3, linewidth=0)
+        axes[1].axhline(1.0, color="0.6", linewidth=0.8)
+        axes[1].set_ylabel("ratio to Minkowski\nat equal proper frequency")
+        axes[1].text(0.98, 0.05, f"redshift factor sqrt(-g_tt) = {data['redshift_factor']:.6g}",
+                     transform=axes[1].transAxes, ha="right", va="bottom", fontsize=8)
+    else:
+        ratio = [d / m if m else float("nan") for d, m in zip(data["density"], data["minkowski_density"])]
+        axes[1].plot(data["omega"], ratio)
+        axes[1].set_ylabel("ratio to Minkowski\nat equal coordinate frequency")
     axes[1].set_xlabel(r"$\omega$ (spec's time coordinate; $G=c=\hbar=1$)")
     label = f"l = {data['l']}" if data["l"] is not None else "summed over l"
     axes[0].set_title(f"{title}: {label} at r = {data['at']:g}", fontsize=10)

@@ -33,6 +33,23 @@ def spectrum_off_centre(problem, omegas, r0: float, tolerance: float = 1e-10, pr
             "ok": result.ok, "message": result.message(), "minkowski": minkowski_density(result.omega)}
 
 
+def local_comparison(problem, omegas, r0: float, density, error) -> dict:
+    """The density at r0 against Minkowski's at equal local (proper) frequency: with the redshift factor
+    alpha = sqrt(-g_tt(r0)) (proper time per unit of the spec's time), the density per unit proper frequency
+    nu = omega/alpha is alpha S(omega), and the ratio is alpha S(omega) / S_flat(nu) with S_flat the flat density
+    of the same dimension and mass (nu/(4 pi^2) massless in 3+1).  At the same coordinate frequency the ratio
+    would plateau at 1/alpha^2, the redshift, not an enhancement.  Below the mass (S_flat = 0) the ratio is nan."""
+    from derive.detector.study import _sqrt_f, flat_density
+
+    omegas = np.asarray(omegas, dtype=float)
+    alpha = _sqrt_f(problem, r0)
+    flat, _ = flat_density(problem.dimension, problem.mass)(omegas / alpha)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ratio = np.where(flat > 0, alpha * np.asarray(density, dtype=float) / flat, np.nan)
+        ratio_error = np.where(flat > 0, alpha * np.asarray(error, dtype=float) / flat, np.nan)
+    return {"redshift_factor": alpha, "ratio_to_minkowski": ratio, "ratio_to_minkowski_error": ratio_error}
+
+
 def density_function(problem, r0: float, tolerance: float, progress=None):
     """omega -> DensityResult at radius r0 (the centre, or the l-sum off it)."""
     if r0 == 0.0:
