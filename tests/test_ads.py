@@ -102,3 +102,21 @@ def test_a_short_detector_at_the_centre_of_ads_sees_flat_space_plus_curvature(tm
     assert data["error"][0] < 1e-10 * data["response"][0]
     assert data["locality"]["round_trip"] == pytest.approx(np.pi * L, rel=1e-8)
     assert data["locality"]["local"]
+
+
+def test_neumann_and_transparent_normal_modes(tmp_path, capsys):
+    # A conformally coupled field in AdS4 has nu = 1/2: both falloffs Delta = 2 and Delta = 1 are normalisable
+    # (Breitenlohner & Freedman 1982; Ishibashi & Wald, Class. Quantum Grav. 21, 2981 (2004)).  Neumann (the
+    # slower one): omega L = 1 + l + 2n; for l = 0, u = sin(omega r*) with u'(pi L/2) = 0, and the same
+    # normalisation as above gives the weight omega/(2 pi^2 L) (derived here).  Transparent is the average of the
+    # two two-point functions (Avis, Isham & Storey 1978): both sets of modes with half their weights.
+    spec = ads_spec(str(tmp_path), coupling="1/6")
+    with open(spec) as handle:
+        text = handle.read()
+    for boundary, expected, half in (("neumann", [1.0, 3.0, 5.0, 7.0], 1.0),
+                                     ("transparent", [1.0, 2.0, 3.0, 4.0, 5.0, 6.0, 7.0], 0.5)):
+        with open(spec, "w") as handle:
+            handle.write(text.replace('coupling = "1/6"', f'coupling = "1/6"\nboundary = "{boundary}"'))
+        modes = normal_modes(spec, 0, capsys)
+        np.testing.assert_allclose(modes["omega"], np.array(expected) / L, rtol=1e-11)
+        np.testing.assert_allclose(modes["weight"], half * np.array(expected) / (2 * np.pi ** 2 * L), rtol=1e-10)

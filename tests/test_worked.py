@@ -184,3 +184,18 @@ def test_schwarzschild_de_sitter_horizons_found_from_the_word_horizon():
     assert horizons["cosmological"].value == pytest.approx(roots[1], rel=1e-14)
     for h, r in ((horizons["black hole"], roots[0]), (horizons["cosmological"], roots[1])):
         assert h.surface_gravity == pytest.approx(abs(2 / r ** 2 - 2 * r / 100) / 2, rel=1e-12)
+
+
+@pytest.mark.parametrize("name, zeta", [("spec", 1), pytest.param("neumann", -1, marks=pytest.mark.slow),
+                                        pytest.param("transparent", 0, marks=pytest.mark.slow)])
+def test_btz_example(capsys, name, zeta):
+    # The README's table: each boundary condition against the image sum of AdS3's Wightman function (Lifschytz &
+    # Ortiz, Phys. Rev. D 49, 1929 (1994); the reference integration is in tests/test_btz.py).
+    from test_btz import image_sum_response
+
+    path = os.path.join(ROOT, "worked", "btz", f"{name}.toml")
+    assert main(["response", path, "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    expected = [image_sum_response(g, zeta, r0=1.5, rh=1.0, ell=2.0, width=1.0) for g in data["gaps"]]
+    np.testing.assert_allclose(data["response"], expected, rtol=1e-11)
+    assert data["local_temperature"] == pytest.approx(1.0 / (2 * np.pi * 4.0 * np.sqrt(1.25 / 4.0)), rel=1e-12)

@@ -21,6 +21,8 @@ UNITS = {
     "transfer_matrix": "[[1, 0], [1/length, 1]] on (u, du/dr*)",
     "centre_series": "[exponent, a_0 = 1, a_1 (1/length), a_2 (1/length^2), ...]",
     "horizon_series": "[exponent (complex), a_0 = 1, a_1 (1/length), ...]",
+    "boundary_series_dirichlet": "[exponent, a_0 = 1, a_1 (length), a_2 (length^2), ...] in z = 1/r",
+    "boundary_series_neumann": "[exponent, a_0 = 1, a_1 (length), a_2 (length^2), ...] in z = 1/r",
     "surface_gravity": "1/length", "kretschmann": "1/length^4",
 }
 

@@ -74,8 +74,13 @@ def numeric_problem(kernel_set) -> NumericProblem:
             _bind(kernel_set.get("potential", name).kernel, values),
             _bind(kernel_set.get("dtortoise_dr", name).kernel, values),
             _bind(kernel_set.get("metric_f", name).kernel, values),
-            *(series.get(name, (None, None))), centre.get(name), *(outer.get(name, (None, None))))
+            *(series.get(name, (None, None))), centre.get(name), *(outer.get(name, (None, None))),
+            {c: verified(f"boundary_series_{c}", name) for c in ("dirichlet", "neumann")}
+            if ends["upper"].get("tail") == "AdS-like" else None)
     order = sorted(regions.values(), key=lambda reg: reg.lower)
+    if st.field.boundary != "dirichlet" and order[-1].tail != "AdS-like":
+        raise InputError(f"boundary = {st.field.boundary!r} is a condition at an AdS boundary, and this spacetime "
+                         "has none (its outermost region does not end on one)", file=st.path, key="field.boundary")
     interfaces = []
     for matching in field.interfaces:
         first, second = matching.between
@@ -87,7 +92,7 @@ def numeric_problem(kernel_set) -> NumericProblem:
             interfaces.append(NumericInterface(radius, second, first, _inverse(kernel)))
     mass = float(st.field.mass.subs(st.parameter_values))
     return NumericProblem(st.title, tuple(order), tuple(interfaces), mass, kernel_set._length_scale(),
-                          len(st.coordinates))
+                          len(st.coordinates), st.field.boundary)
 
 
 def _inverse(transfer):

@@ -61,13 +61,16 @@ def frobenius(p, q, r, r0, exponent, order: int = SERIES_ORDER, upper: bool = Fa
     return coefficients
 
 
-def _frobenius_in_field(p, q, r, shift, exponent, order, x) -> list:
+def _frobenius_in_field(p, q, r, shift, exponent, order, x, exact: bool = False, factored: bool = True) -> list:
+    """``exact``: the exponent is put into the field itself (it must be rational in the symbols), so that a
+    resonance (an exponent k above this one is also a root) is seen: where the recursion's right side vanishes
+    there too, no logarithm enters and the free coefficient is set to 0; otherwise the series stops (nan)."""
     P = (x * p).subs(r, shift)
     Q = (x ** 2 * q).subs(r, shift)
     s_symbol = sp.Dummy("s")
-    symbols = sorted((P.free_symbols | Q.free_symbols) - {x}, key=str)
+    symbols = sorted((P.free_symbols | Q.free_symbols | (exponent.free_symbols if exact else set())) - {x}, key=str)
     field, *_ = sp.field([x, s_symbol] + symbols, sp.QQ)
-    s = field.from_expr(s_symbol)
+    s = field.from_expr(exponent if exact else s_symbol)
     Ps = _field_taylor(field.from_expr(P), field, order + 1)
     Qs = _field_taylor(field.from_expr(Q), field, order + 1)
     coefficients = [field.one]
@@ -75,11 +78,15 @@ def _frobenius_in_field(p, q, r, shift, exponent, order, x) -> list:
         indicial = (s + k) * (s + k - 1) + Ps[0] * (s + k) + Qs[0]
         total = sum((coefficients[k - j] * (Ps[j] * (s + k - j) + Qs[j]) for j in range(1, k + 1)), field.zero)
         if indicial == 0:
+            if total == 0:
+                coefficients.append(field.zero)
+                continue
             coefficients.append(None)
             break
         coefficients.append(-total / indicial)
     # rational in s with real coefficients; the exponent (complex at a horizon) is put in at the end
-    return [sp.nan if c is None else _factored(c).subs(s_symbol, exponent) for c in coefficients]
+    tidy = _factored if factored else (lambda c: c.as_expr())
+    return [sp.nan if c is None else tidy(c).subs(s_symbol, exponent) for c in coefficients]
 
 
 def _factored(element):
@@ -145,7 +152,8 @@ def classify_ends(field) -> dict:
     p = sp.cancel(sp.diff(F2, r) / (2 * F2))
     q = sp.cancel((OMEGA ** 2 - V) / F2)
     return {"lower": _finite_end(field, lower, interfaces, p, q, F2, "lower"),
-            "upper": _infinity(field, V) if upper is None else _finite_end(field, upper, interfaces, p, q, F2, "upper")}
+            "upper": (_infinity(field, V, p, q) if upper is None
+                      else _finite_end(field, upper, interfaces, p, q, F2, "upper"))}
 
 
 def _horizon_end(field, horizon, side) -> dict:
@@ -225,15 +233,21 @@ def _finite_end(field, r0, interfaces, p, q, F2, side) -> dict:
     return {"kind": "boundary", "at": r0}
 
 
-def _infinity(field, V) -> dict:
+BOUNDARY_ORDER = 12  # terms of the series at an AdS boundary (the solver starts on them a few radii out)
+
+
+def _infinity(field, V, p=None, q=None) -> dict:
     r, f = field.r, field.f
     z = sp.Symbol("z", positive=True)
     f_inf = sp.limit(f, r, sp.oo)
     if f_inf in (sp.oo, -sp.oo):
         lead = sp.limit(f / r ** 2, r, sp.oo)
-        return {"kind": "infinity", "tail": "AdS-like" if lead.is_positive else "growing",
-                "f_leading": sp.simplify(lead) * r ** 2,
-                "behaviour": "reflecting conformal boundary at finite r*: the spectrum is discrete"}
+        end = {"kind": "infinity", "tail": "AdS-like" if lead.is_positive else "growing",
+               "f_leading": sp.simplify(lead) * r ** 2,
+               "behaviour": "reflecting conformal boundary at finite r*: the spectrum is discrete"}
+        if lead.is_positive and p is not None:
+            end.update(ads_boundary_series(p, q, r))
+        return end
     try:
         expansion = sp.series(V.subs(r, 1 / z), z, 0, 3).removeO()
         f_expansion = sp.series(f.subs(r, 1 / z), z, 0, 2).removeO()
@@ -255,3 +269,39 @@ def _infinity(field, V) -> dict:
                           "Coulomb-like": "Coulomb wave functions",
                           "Coulomb-like (massive)": "Coulomb wave functions; evanescent below the mass",
                           "massive, short-range": "free waves in sqrt(omega^2 - V0); evanescent below"}[tail]}
+
+
+def ads_boundary_series(p, q, r, order: int = BOUNDARY_ORDER) -> dict:
+    """The two falloffs at an AdS boundary as Frobenius series in z = 1/r (a regular singular point of
+    u'' + p u' + q u = 0 there): with d/dr = -z^2 d/dz the equation in z has P = 2/z - p(1/z)/z^2 and
+    Q = q(1/z)/z^4, exponents s of u ~ z^s, u = z^s (1 + a_1 z + ...).  The larger exponent is the faster falloff
+    (Dirichlet: the field's boundary value vanishes), the smaller the slower one (Neumann), a solution only
+    where both are normalisable.  Derived where the exponents are rational in the parameters (a conformally
+    coupled field, for example); otherwise left out (None).  When the exponents differ by an integer the slower
+    series is kept without a logarithm where the recursion allows (its free coefficient 0: the one with no
+    admixture of the faster falloff), and is missing (None) where a logarithm enters."""
+    z = sp.Symbol("z", positive=True)
+    P = sp.cancel(2 / z - p.subs(r, 1 / z) / z ** 2)
+    Q = sp.cancel(q.subs(r, 1 / z) / z ** 4)
+    P0 = _limit(sp.cancel(z * P), z)
+    Q0 = _limit(sp.cancel(z ** 2 * Q), z)
+    if any(v.has(sp.oo, -sp.oo, sp.zoo, sp.nan) or v.free_symbols & {OMEGA, L_SYMBOL} for v in (P0, Q0)):
+        return {}
+    # s(s - 1) + P0 s + Q0 = 0; real where the effective mass respects the Breitenlohner-Freedman bound (the
+    # solver checks that at the parameters' values)
+    root = sp.sqrt(sp.factor((1 - P0) ** 2 - 4 * Q0))
+    fast, slow = ((1 - P0) + root) / 2, ((1 - P0) - root) / 2
+    out = {"boundary_exponents": {"dirichlet": sp.simplify(fast), "neumann": sp.simplify(slow)}}
+    for name, exponent in (("dirichlet", fast), ("neumann", slow)):
+        if name == "neumann" and root.is_number and root >= 2:    # nu >= 1: the slower falloff is not normalisable
+            out["series_neumann"] = None
+            continue
+        try:
+            series = _frobenius_in_field(P, Q, z, z, exponent, order, z, exact=True, factored=False)
+        except (sp.PolynomialError, sp.CoercionFailed, ValueError, TypeError):
+            # an irrational exponent (a generic mass): no series; the solver starts on the leading power far out
+            # (Dirichlet) and refuses Neumann
+            out[f"series_{name}"] = None
+            continue
+        out[f"series_{name}"] = None if any(c is sp.nan or c == sp.nan for c in series) else series
+    return out

@@ -125,4 +125,5 @@ def field_json(problem, l_value=None) -> dict:
                    "transfer_matrix": matrix_text(m.transfer_matrix.applyfunc(at_l)),
                    "derivative_jump": expr_text(m.derivative_jump)} for m in problem.interfaces]
     return {"l": l_value, "mass": expr_text(problem.spacetime.field.mass),
-            "coupling": expr_text(problem.spacetime.field.coupling), "regions": regions, "interfaces": interfaces}
+            "coupling": expr_text(problem.spacetime.field.coupling), "boundary": problem.spacetime.field.boundary,
+            "regions": regions, "interfaces": interfaces}

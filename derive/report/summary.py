@@ -21,7 +21,8 @@ def spec_json(spacetime) -> dict:
                            "diagonal": r.metric.is_diagonal()} for name, r in spacetime.regions.items()},
         "interfaces": [{"between": list(i.between), "at": i.text} for i in spacetime.interfaces],
         "field": None if spacetime.field is None else {"mass": str(spacetime.field.mass),
-                                                       "coupling": str(spacetime.field.coupling)},
+                                                       "coupling": str(spacetime.field.coupling),
+                                                       "boundary": spacetime.field.boundary},
         "detector": None if spacetime.detector is None else {
             "at": None if spacetime.detector.coordinate is None else
             f"{spacetime.detector.coordinate} = {spacetime.detector.position}",
@@ -47,7 +48,9 @@ def spec_summary(spacetime) -> str:
     for interface in info["interfaces"]:
         lines.append(f"  interface:   {interface['between'][0]} | {interface['between'][1]} at {interface['at']}")
     if info["field"]:
-        lines.append(f"  field:       mass {info['field']['mass']}, coupling {info['field']['coupling']}")
+        lines.append(f"  field:       mass {info['field']['mass']}, coupling {info['field']['coupling']}"
+                     + (f", {info['field']['boundary']} at an AdS boundary"
+                        if info["field"]["boundary"] != "dirichlet" else ""))
     if info["detector"]:
         d = info["detector"]
         lines.append(f"  detector:    at {d['at']}, {d['switching'].get('shape')} switching, state {d['state']}, "

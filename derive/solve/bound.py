@@ -30,7 +30,7 @@ returned (their weights fall like n^-3), and the caller is told that the list is
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -142,7 +142,7 @@ def _layout(problem, l, omega_top, points=()):
     L = problem.length_scale
     if is_ads(problem):
         # the normalisable solution starts on its leading power far out: the next term is (L/r)^2 ~ 1e-12 of it
-        far = max([1e6 * ads_boundary(problem)[0]] + list(points))
+        far = max([boundary_radius(problem, l, omega_top)] + list(points))
         scale = 1.0 / max(omega_top, 1e-300)
     else:
         threshold = continuum_threshold(problem)
@@ -184,19 +184,73 @@ def _march(problem, l, omegas, steps, layout):
     return D, regular, decaying
 
 
+BOUNDARY_REACH = 40.0   # the march starts on the boundary series this many length scales out
+
+
+def boundary_radius(problem, l: int = 0, omega_top: float = 0.0) -> float:
+    """Where the series at an AdS boundary starts the march: 40 times the largest of L, the last region's lower
+    end and the length scale (the series in z = 1/r converges out to the nearest singular radius: the horizon,
+    or f's complex roots, of size L), and of omega L^2 and (l + 1) L (its terms grow like (omega L^2 z)^k/k!
+    and (l L z)^k/k! before they fall), so that the 12 terms gain about 40 each."""
+    L_ads, _ = ads_boundary(problem)
+    if _boundary_series(problem) is None:     # the leading power alone: far enough that the next term is 1e-12
+        return 1e6 * L_ads
+    scale = max(L_ads, problem.regions[-1].lower, problem.length_scale, omega_top * L_ads ** 2, (l + 1) * L_ads)
+    return BOUNDARY_REACH * scale
+
+
+def check_boundary(problem, which: str) -> None:
+    """Neumann (and transparent, their average) needs both falloffs normalisable: 0 < nu < 1 with
+    nu = Delta_+ - (D - 1)/2 (Breitenlohner & Freedman 1982; Ishibashi & Wald, Class. Quantum Grav. 21, 2981
+    (2004)); and the series of the slower falloff must exist (no logarithm)."""
+    from derive.errors import InputError
+
+    _, delta = ads_boundary(problem)
+    nu = delta - (problem.dimension - 1) / 2
+    if which != "dirichlet" and not 0 < nu < 1:
+        raise InputError(f"boundary = {which!r} needs both falloffs at the AdS boundary normalisable, 0 < nu < 1 "
+                         f"with nu = sqrt((D-1)^2/4 + m^2 L^2); here nu = {nu:.6g}, and only the faster falloff "
+                         "(dirichlet) is normalisable", key="field.boundary")
+    if which != "dirichlet" and _boundary_series(problem, "neumann") is None:
+        raise Unsupported(f"boundary = {which!r}: the series of the slower falloff at the AdS boundary is derived "
+                          "where the exponents are rational in the parameters (a conformally coupled field, for "
+                          "example) and no logarithm enters; here it is missing or did not verify")
+
+
+def _boundary_series(problem, which: str | None = None):
+    which = which or ("dirichlet" if problem.boundary == "dirichlet" else "neumann")
+    return (problem.regions[-1].boundary_series or {}).get(which)
+
+
+def boundary_solution(problem, l, omegas, far, which: str | None = None):
+    """(u, du/dr*) at ``far`` of the solution the AdS boundary condition selects, from its series in z = 1/r:
+    u = z^s sum_k a_k z^k, scaled by z^-s (the scale cancels in every Wronskian).  'dirichlet' (the faster
+    falloff, the default) or 'neumann' (the slower; with 0 < nu < 1 only)."""
+    omegas = np.asarray(omegas, dtype=float)
+    series = _boundary_series(problem, which)
+    F = 1.0 / float(np.asarray(problem.regions[-1].dtortoise_dr(np.array([far]))).reshape(-1)[0])
+    if series is None:     # no series (an irrational exponent; Dirichlet only): the leading power
+        _, delta = ads_boundary(problem)
+        return np.ones(len(omegas)), np.full(len(omegas), F * ((problem.dimension - 2) / 2 - delta) / far)
+    rows = [np.broadcast_to(np.asarray(c, dtype=float), omegas.shape) for c in series(l, omegas)]
+    s, terms = rows[0], rows[1:]
+    z = 1.0 / far
+    value = sum(a * z ** k for k, a in enumerate(terms))
+    slope = sum(k * a * z ** (k - 1) for k, a in enumerate(terms) if k > 0)
+    # du/dz = z^s (s S/z + S'), du/dr = -z^2 du/dz
+    return value, -F * z * z * (s * value / z + slope)
+
+
 def _outer_solution(problem, l, omegas, far):
-    """(u, du/dr*) at the far radius of the solution that the outer end allows: at an AdS boundary the
-    normalisable one, u = r^(n/2 - Delta); otherwise the one decaying below the mass, u'/u = -kappa -
-    kappa'/(2 kappa) (corrected Liouville-Green)."""
-    n = len(omegas)
+    """(u, du/dr*) at the far radius of the solution that the outer end allows: at an AdS boundary the one the
+    boundary condition selects (:func:`boundary_solution`); otherwise the one decaying below the mass, u'/u =
+    -kappa - kappa'/(2 kappa) (corrected Liouville-Green)."""
     region = problem.regions[-1]
     if is_ads(problem):
-        F = 1.0 / float(np.asarray(region.dtortoise_dr(np.array([far]))).reshape(-1)[0])
-        _, delta = ads_boundary(problem)
-        return np.ones(n), np.full(n, F * ((problem.dimension - 2) / 2 - delta) / far)
+        return boundary_solution(problem, l, omegas, far)
     V, dV = far_potential(region, l, far)
     kappa = np.sqrt(V - omegas ** 2)
-    return np.ones(n), -kappa - dV / (4 * kappa * kappa)
+    return np.ones(len(omegas)), -kappa - dV / (4 * kappa * kappa)
 
 
 def _d_value(problem, l, omegas, steps, layout):
@@ -316,6 +370,19 @@ def bound_states(problem, l: int = 0, r0: float = 0.0, tolerance: float = 1e-10,
         check_supported(problem, any_dimension=True)
     elif problem.regions[0].lower_kind != "regular centre":
         raise Unsupported("normal modes of an AdS spacetime need a regular centre, so far")
+    else:
+        check_boundary(problem, problem.boundary)
+        if problem.boundary == "transparent":
+            # the average of the two two-point functions: both sets of normal modes, each with half its weight
+            both = [bound_states(replace(problem, boundary=b), l, r0, tolerance, count, steps, max_steps)
+                    for b in ("dirichlet", "neumann")]
+            # every level up to the lower of the two lists' tops (each list is complete up to its own)
+            top = min(float(np.max(b.omega)) if len(b.omega) else np.inf for b in both)
+            omegas = np.concatenate([b.omega for b in both])
+            order = np.argsort(omegas)[:max(count, int(np.sum(omegas <= top)))]
+            merged = [np.concatenate([getattr(b, key) for b in both])[order] * factor
+                      for key, factor in (("omega", 1), ("omega_error", 1), ("weight", 0.5), ("weight_error", 0.5))]
+            return BoundStates(l, r0, *merged, any(b.truncated for b in both), tolerance)
     if r0 == 0.0 and problem.dimension != 4:
         raise Unsupported("bound-state weights at the centre are implemented in 3+1; give a radius r0 > 0")
     if not is_ads(problem) and continuum_threshold(problem) == 0.0:

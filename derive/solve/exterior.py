@@ -30,7 +30,7 @@ hundredth of the tolerance of the total, and the last term kept counts as the tr
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -217,8 +217,22 @@ class ExteriorTwoPoint:
 
 
 def _summed(problem, omegas, pair, cos_gamma, tolerance, progress):
-    """The l-sums of the in and up parts between the radii ``pair`` outside the horizon, on both cores."""
+    """The l-sums of the in and up parts between the radii ``pair`` outside the horizon, on both cores.
+
+    At an AdS boundary the field's condition there chooses the modes (derive.solve.bound.boundary_solution);
+    'transparent' is the average of the Dirichlet and Neumann two-point functions (Avis, Isham & Storey,
+    Phys. Rev. D 18, 3565 (1978); the zeta = 0 member of the image sums of Lifschytz & Ortiz, Phys. Rev. D 49,
+    1929 (1994)), and its errors the average of theirs."""
     check_supported(problem)
+    from derive.solve.bound import check_boundary, is_ads
+
+    if is_ads(problem):
+        check_boundary(problem, problem.boundary)
+        if problem.boundary == "transparent":
+            both = [_summed(replace(problem, boundary=b), omegas, pair, cos_gamma, tolerance, progress)
+                    for b in ("dirichlet", "neumann")]
+            merged = tuple((a + b) / 2 for a, b in zip(both[0][0], both[1][0]))
+            return merged, max(both[0][1], both[1][1]), both[0][2]
     first, last = problem.regions[0], problem.regions[-1]
     for r in pair:
         if not r > first.lower:

@@ -101,10 +101,10 @@ def far_radius(problem, l, omegas, probe=None) -> float:
     solution starts; any admixture of the growing one then dies as e^-80 on the way in."""
     if has_cosmological_horizon(problem):   # the matching radius, where the cosmological horizon's wave meets
         return matching_radius(problem, [] if probe is None else [probe])
-    if _ads(problem):     # the normalisable solution starts on its leading power there (next term (L/r)^2)
-        from derive.solve.bound import ads_boundary
+    if _ads(problem):     # the boundary's series starts the march there
+        from derive.solve.bound import boundary_radius
 
-        return max(1e6 * ads_boundary(problem)[0], 2 * (probe or 0.0))
+        return max(boundary_radius(problem, l, float(np.max(omegas))), 2 * (probe or 0.0))
     L = problem.length_scale
     threshold, C = tail(problem)
     omegas = np.asarray(omegas, dtype=float)

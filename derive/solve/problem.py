@@ -34,6 +34,8 @@ class NumericRegion:
     outer_series: Callable | None = None      # (l, omega) -> [exponent, a_0, a_1, a_2] in y = r_c - r at an
                                               # upper (cosmological) horizon r_c = ``upper``
     outer_surface_gravity: float | None = None
+    boundary_series: dict | None = None       # at an AdS boundary: {"dirichlet" | "neumann": (l, omega) ->
+                                              # [exponent, a_0, a_1, ...]}, u = z^s sum a_k z^k in z = 1/r
 
 
 @dataclass(frozen=True)
@@ -56,6 +58,7 @@ class NumericProblem:
     mass: float
     length_scale: float
     dimension: int = 4          # spacetime dimension D
+    boundary: str = "dirichlet"  # the condition at an AdS boundary: "dirichlet", "neumann" or "transparent"
 
 
 @dataclass(frozen=True)

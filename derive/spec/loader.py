@@ -31,7 +31,8 @@ TOP_KEYS = ("format", "title", "parameters", "coordinates", "definitions", "func
             "interface", "field", "detector", "compare", "numerics")
 REGION_KEYS = ("name", "where", "line_element", "metric", "unknowns")
 INTERFACE_KEYS = ("between", "at")
-FIELD_KEYS = ("mass", "coupling")
+FIELD_KEYS = ("mass", "coupling", "boundary")
+BOUNDARIES = ("dirichlet", "neumann", "transparent")
 DETECTOR_KEYS = ("at", "switching", "gaps", "state", "coupling")
 COMPARE_KEYS = ("with", "sigmas")
 NUMERICS_KEYS = ("tolerance",)
@@ -631,7 +632,11 @@ def _field(reader, parser, table, dimension, definitions):
             reader.fail("expected a real value", f"field.{k}")
     if mass.is_number and mass < 0:
         reader.fail("the mass must not be negative", "field.mass")
-    return FieldSpec(mass, coupling, text)
+    boundary = table.get("boundary", "dirichlet")
+    if boundary not in BOUNDARIES:
+        reader.fail(f"expected one of {', '.join(repr(b) for b in BOUNDARIES)} (the condition at an AdS boundary), "
+                    f"got {boundary!r}", "field.boundary")
+    return FieldSpec(mass, coupling, text, boundary)
 
 
 def _detector(reader, parser, table, coordinates, definitions):

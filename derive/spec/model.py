@@ -78,6 +78,7 @@ class FieldSpec:
     mass: sp.Expr
     coupling: sp.Expr
     coupling_text: str
+    boundary: str = "dirichlet"    # at an AdS boundary: "dirichlet", "neumann" or "transparent"
 
 
 @dataclass(frozen=True)
