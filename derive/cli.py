@@ -286,6 +286,28 @@ def cmd_two_point(args) -> int:
     return _deliver(args, result, write_two_point_files, title, rows)
 
 
+def cmd_correlations(args) -> int:
+    from derive.report.tables import write_correlations_files
+
+    spacetime = _load(args)
+    tolerance = _tolerance(args, spacetime)
+    result = spacetime.correlations(tolerance=tolerance, progress=_progress(args))
+    data = result.to_json()
+    rows = [f"  {name:<12} at {d['at']['text']:<28} gap {d['gap']:<8g} P = {d['probability']:.10e} "
+            f"+- {d['error']:.1e}" for name, d in data["detectors"].items()]
+    rows.append(f"{'pair':<16} {'|L_AB|':>12} {'|M|':>12} {'error':>8} {'concurrence':>12} {'negativity':>12} "
+                f"{'mutual inf.':>12} {'light time':>11} signalling")
+    for p in data["pairs"]:
+        s = p["signalling"]
+        rows.append(f"{p['between'][0] + '-' + p['between'][1]:<16} {abs(complex(*p['L'])):12.5e} "
+                    f"{abs(complex(*p['M'])):12.5e} {p['error']['M']:8.1e} {p['concurrence']:12.5e} "
+                    f"{p['negativity']:12.5e} {p['mutual_information']:12.5e} {s['light_time']:11.6g} "
+                    + ("possible (the switchings reach across the light time)" if s["overlap"] else "none"))
+    title = (f"{spacetime.title}: {len(data['detectors'])} detectors, {data['state']} state, coupling "
+             f"{data['coupling']:g}; probabilities:")
+    return _deliver(args, result, write_correlations_files, title, rows)
+
+
 def _scattering_rows(spacetime, data):
     n = len(data["omega"])
     density = data["density"] or [None] * n
@@ -416,6 +438,13 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--tolerance", type=float, help="tolerance relative to the scale (default: [numerics] or 1e-10)")
     p.add_argument("--json", action="store_true", help="print JSON")
     p.add_argument("--out", metavar="DIR", help="write two_point.csv and two_point.png here")
+    p.add_argument("--quiet", action="store_true", help="no progress report")
+
+    p = spec_command("correlations", "several detectors ([[detectors]]): probabilities, every pair's joint state, "
+                     "entanglement and signalling", cmd_correlations)
+    p.add_argument("--tolerance", type=float, help="relative tolerance (default: [numerics] or 1e-10)")
+    p.add_argument("--json", action="store_true", help="print JSON")
+    p.add_argument("--out", metavar="DIR", help="write correlations.csv, detectors.csv and correlations.png here")
     p.add_argument("--quiet", action="store_true", help="no progress report")
 
     p = spec_command("response", "response of the static detector, comparison, locality and runs needed",

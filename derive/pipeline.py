@@ -229,8 +229,7 @@ def two_point(spacetime, omega, between, tolerance: float | None = None, progres
     """
     from derive.results import TwoPoint
     from derive.solve.api import METHOD
-    from derive.solve.bound import is_ads
-    from derive.solve.centre import Unsupported, bound_states_possible
+    from derive.solve.centre import Unsupported
     from derive.spec.positions import cos_angle, parse_position
 
     omegas = _frequencies(omega)
@@ -247,45 +246,56 @@ def two_point(spacetime, omega, between, tolerance: float | None = None, progres
             "tolerance": tolerance, "method": METHOD, "convention": TWO_POINT_CONVENTION,
             "units": "per unit omega of the spec's time coordinate"}
     try:
-        if is_ads(problem) and problem.regions[0].lower_kind != "horizon":
-            raise Unsupported("the two-point function with a reflecting AdS boundary (normal modes) is not built")
-        if problem.regions[0].lower_kind == "horizon":
-            from derive.solve.exterior import exterior_two_point
-
-            result = exterior_two_point(problem, omegas, first.radius, second.radius, c, tolerance,
-                                        progress=progress)
-            data["hawking_temperature"] = result.temperature
-            if result.outer_temperature is not None:
-                data["cosmological_temperature"] = result.outer_temperature
-            data["states"] = {}
-            for name in result.states:
-                plus, plus_error, minus, minus_error = result.state(name)
-                data["states"][name] = {"positive": _complex(plus), "negative": _complex(minus),
-                                        "error": {"positive": _floats(plus_error), "negative": _floats(minus_error)}}
-            data["state"] = "boulware"
-        else:
-            if problem.regions[0].lower_kind == "regular centre" and bound_states_possible(problem):
-                raise Unsupported("the bound states' part of the two-point function is not built (the spectral "
-                                  "density lists them: derive spectrum)")
-            from derive.solve.offcentre import two_point as regular_two_point
-
-            result = regular_two_point(problem, omegas, first.radius, second.radius, c, tolerance,
-                                       progress=progress)
-            data["state"] = "vacuum"
-            temperature = cosmological_temperature(problem)
-            if temperature is not None:   # the static vacuum, and the Bunch-Davies state built on it
-                data["state"] = "static vacuum"
-                data["cosmological_temperature"] = temperature
-                n = 1.0 / np.expm1(omegas / temperature)
-                value, error = np.asarray(result.value), np.asarray(result.error)
-                data["states"] = {"bunch-davies": {
-                    "positive": _complex((1 + n) * value), "negative": _complex(n * np.conj(value)),
-                    "error": {"positive": _floats((1 + n) * error), "negative": _floats(n * error)}}}
+        result, states, default, extra = _two_point_parts(problem, omegas, first.radius, second.radius, c, tolerance,
+                                                          progress)
     except Unsupported as exc:
         raise _unsupported(spacetime, "compute this two-point function", exc, key="between") from None
+    data.update(extra)
+    data["state"] = default
+    if states:
+        data["states"] = {name: {"positive": _complex(plus), "negative": _complex(minus),
+                                 "error": {"positive": _floats(plus_error), "negative": _floats(minus_error)}}
+                          for name, (plus, plus_error, minus, minus_error) in states.items()}
     data.update({"wightman": _complex(result.value), "error": {"wightman": _floats(result.error)},
                  "scale": _floats(result.scale), "l_max": result.l_max})
     return TwoPoint(data, spacetime, result.ok, result.message(), tolerance)
+
+
+def _two_point_parts(problem, omegas, r1, r2, c, tolerance, progress=None):
+    """The engine's two-point function between radii r1 and r2 an angle arccos(c) apart: (the result, {state:
+    (S_+, its error, S_-, its error)} for the states beyond the default one, the default state's name, extra JSON
+    keys).  The one place that chooses between the regular-centre and the horizon computations."""
+    from derive.solve.bound import is_ads
+    from derive.solve.centre import Unsupported, bound_states_possible
+
+    if is_ads(problem) and problem.regions[0].lower_kind != "horizon":
+        raise Unsupported("the two-point function with a reflecting AdS boundary (normal modes) is not built")
+    states, extra = {}, {}
+    if problem.regions[0].lower_kind == "horizon":
+        from derive.solve.exterior import exterior_two_point
+
+        result = exterior_two_point(problem, omegas, r1, r2, c, tolerance, progress=progress)
+        extra["hawking_temperature"] = result.temperature
+        if result.outer_temperature is not None:
+            extra["cosmological_temperature"] = result.outer_temperature
+        for name in result.states:
+            states[name] = result.state(name)
+        return result, states, "boulware", extra
+    if problem.regions[0].lower_kind == "regular centre" and bound_states_possible(problem):
+        raise Unsupported("the bound states' part of the two-point function is not built (the spectral "
+                          "density lists them: derive spectrum)")
+    from derive.solve.offcentre import two_point as regular_two_point
+
+    result = regular_two_point(problem, omegas, r1, r2, c, tolerance, progress=progress)
+    default = "vacuum"
+    temperature = cosmological_temperature(problem)
+    if temperature is not None:   # the static vacuum, and the Bunch-Davies state built on it
+        default = "static vacuum"
+        extra["cosmological_temperature"] = temperature
+        n = 1.0 / np.expm1(np.asarray(omegas, dtype=float) / temperature)
+        value, error = np.asarray(result.value), np.asarray(result.error)
+        states["bunch-davies"] = ((1 + n) * value, (1 + n) * error, n * np.conj(value), n * error)
+    return result, states, default, extra
 
 
 def _complex(values) -> dict:
@@ -342,6 +352,10 @@ def response(spacetime, gaps=None, tolerance: float | None = None, switching: di
     if spacetime.detector is None:
         raise InputError("no [detector] section: a response needs a detector", file=spacetime.path,
                          key="detector")
+    if spacetime.detector.coordinate is None and spacetime.detectors:
+        raise InputError("[detector] has no 'at': this spec describes several detectors ([[detectors]]), whose "
+                         "joint state derive correlations gives; for one detector's response give [detector] "
+                         "at = \"r = ...\", gaps and a switching", file=spacetime.path, key="detector.at")
     detector = numeric_detector(spacetime)
     _check_radius(spacetime, spacetime.numeric_problem, detector.radius, "detector.at")
     if gaps is not None:
@@ -400,3 +414,206 @@ def response_json(result) -> dict:
         if "trials_note" in result:
             data["trials_note"] = result["trials_note"]
     return data
+
+
+CORRELATIONS_CONVENTION = (
+    "two-level detectors |g>, |e> with gaps Omega_i, coupled as lambda chi_i(tau) (e^{i Omega_i tau} sigma_i^+ + h.c.) "
+    "phi(x_i(tau)), all in their ground states and the field in the state named; to second order in lambda the "
+    "joint state of a pair in the basis |gg>, |ge>, |eg>, |ee> (the first named first) is rho = "
+    "[[1 - L_AA - L_BB, 0, 0, M*], [0, L_BB, L_AB*, 0], [0, L_AB, L_AA, 0], [M, 0, 0, 0]], with "
+    "L_ij = lambda^2 int dtau dtau' chi_i(tau) chi_j(tau') e^{-i (Omega_i tau - Omega_j tau')} W(x_i(tau), x_j(tau')) "
+    "and M = -lambda^2 int dtau dtau' chi_A(tau) chi_B(tau') e^{i (Omega_A tau + Omega_B tau')} "
+    "<T phi(x_A(tau)) phi(x_B(tau'))> (time ordering in the spec's time coordinate); concurrence "
+    "2 max(0, |M| - sqrt(L_AA L_BB)), negativity max(0, sqrt((L_AA - L_BB)^2/4 + |M|^2) - (L_AA + L_BB)/2), mutual "
+    "information (natural log) L_+ ln L_+ + L_- ln L_- - L_AA ln L_AA - L_BB ln L_BB with "
+    "L_+- = (L_AA + L_BB +- sqrt((L_AA - L_BB)^2 + 4 |L_AB|^2))/2; light_time is the shortest coordinate time of a "
+    "light signal between the two points, overlap whether some pair of instants of the two switchings' effective "
+    "durations is that far apart (they can signal), commutator_part the part of M from the field's commutator "
+    "(state-independent: communication rather than harvesting)")
+
+
+def correlations(spacetime, tolerance: float | None = None, progress=None, reference: bool = True):
+    """Several static detectors ([[detectors]] in the spec): each one's excitation probability and, for every
+    pair, L_AB, M, the concurrence, negativity and mutual information of their joint state at second order,
+    and what can signal between them (see ``CORRELATIONS_CONVENTION``).
+
+    Returns a :class:`~derive.results.Correlations`: ``.detectors`` {name: {"probability", "error", "at", "gap",
+    ...}}, ``.pairs`` (every pair once, in the order the spec lists them), ``.convention``, ``.coupling``,
+    ``.state``; ``.to_dataframe()`` is the table of pairs."""
+    from derive.detector.correlations import (Probe, entanglement, light_time, pair_terms, probability)
+    from derive.results import Correlations
+    from derive.solve.centre import Unsupported
+    from derive.spec.positions import cos_angle, parse_position
+
+    if len(spacetime.detectors) < 2:
+        raise InputError("correlations need two or more detectors: add [[detectors]] entries (name, at, gap, "
+                         "switching)", file=spacetime.path, key="detectors")
+    tolerance = tolerance_of(spacetime, tolerance)
+    problem = spacetime.numeric_problem
+    shared = spacetime.detector
+    state = shared.state if shared is not None else "vacuum"
+    coupling = shared.coupling if shared is not None and shared.coupling is not None else 1.0
+    from derive.codegen.problem import numeric_switchings
+    from derive.detector.response import round_trip
+    from derive.detector.study import _sqrt_f
+
+    probes, points = [], []
+    for i, (entry, switching) in enumerate(zip(spacetime.detectors, numeric_switchings(spacetime))):
+        key = f"detectors[{i}]"
+        point = parse_position(spacetime, entry.at, key=f"{key}.at")
+        _check_radius(spacetime, problem, point.radius, f"{key}.at")
+        if switching["shape"] != "gaussian":
+            raise InputError(f"correlations are computed for gaussian switchings so far (their transforms make the "
+                             f"time-ordered term one frequency integral); this one is {switching['shape']!r}",
+                             file=spacetime.path, key=f"{key}.switching.shape")
+        width, centre = switching.get("width", 1.0), switching["centre"]
+        if not width > 0:
+            raise InputError("expected a positive width (proper time)", file=spacetime.path,
+                             key=f"{key}.switching.width")
+        probes.append(Probe(entry.name, point.radius, _sqrt_f(problem, point.radius), entry.gap, width, centre))
+        points.append(point)
+
+    def spectrum_between(i, j):
+        c = cos_angle(points[i], points[j])
+
+        def spectrum(omegas):
+            result, states, default, _ = _two_point_parts(problem, omegas, points[i].radius, points[j].radius, c,
+                                                          tolerance, progress)
+            if state in states:
+                return states[state]
+            if state != default and not (default == "vacuum" and state == "boulware"):
+                names = ", ".join([default] + list(states))
+                raise Unsupported(f"state {state!r}: here the states are {names}")
+            value = np.asarray(result.value, dtype=complex)
+            zero = np.zeros(len(omegas))
+            return value, np.asarray(result.error, dtype=float), zero.astype(complex), zero
+        return spectrum
+
+    detectors, shortfalls = {}, []
+    try:
+        for i, probe in enumerate(probes):
+            value, error = probability(probe, spectrum_between(i, i), tolerance)
+            duration = 2 * probe.half_duration * probe.alpha
+            trip = round_trip(problem, probe.alpha, probe.radius)
+            detectors[probe.name] = {"probability": coupling ** 2 * value, "error": coupling ** 2 * error,
+                                     "at": points[i].to_json(), "gap": probe.gap, "width": probe.sigma,
+                                     "centre": probe.centre, "redshift_factor": probe.alpha,
+                                     "locality": {"duration": duration, "round_trip": trip,
+                                                  "local": bool(duration < trip), "tail": 1e-12}}
+            if error > tolerance * abs(value):
+                shortfalls.append(f"{probe.name}: probability error {error / abs(value):.1e} (relative)")
+        pairs = []
+        for i in range(len(probes)):
+            for j in range(i + 1, len(probes)):
+                A, B = probes[i], probes[j]
+                light, light_error = light_time(problem, points[i], points[j])
+                terms = pair_terms(A, B, spectrum_between(i, j), light, tolerance)
+                L_AA, L_BB = (detectors[p.name]["probability"] for p in (A, B))
+                e_AA, e_BB = (detectors[p.name]["error"] for p in (A, B))
+                lam2 = coupling ** 2
+                reach = A.half_duration + B.half_duration + abs(A.centre - B.centre)
+                pair = {"between": [A.name, B.name],
+                        "L": [lam2 * terms.L.real, lam2 * terms.L.imag],
+                        "M": [lam2 * terms.M.real, lam2 * terms.M.imag],
+                        "error": {"L": lam2 * terms.L_error, "M": lam2 * terms.M_error},
+                        "signalling": {"light_time": light, "light_time_error": light_error,
+                                       "overlap": bool(reach >= light),
+                                       "commutator_part": [lam2 * terms.commutator.real,
+                                                           lam2 * terms.commutator.imag],
+                                       "commutator_part_error": lam2 * terms.commutator_error}}
+                pair.update(entanglement(L_AA, L_BB, lam2 * terms.L, lam2 * terms.M,
+                                         (e_AA, e_BB, lam2 * terms.L_error, lam2 * terms.M_error)))
+                scale = np.sqrt(L_AA * L_BB)
+                if max(pair["error"]["L"], pair["error"]["M"]) > tolerance * scale:
+                    shortfalls.append(f"{A.name}-{B.name}: error {max(pair['error'].values()) / scale:.1e} of "
+                                      "sqrt(L_AA L_BB)")
+                pairs.append(pair)
+    except Unsupported as exc:
+        raise _unsupported(spacetime, "compute these correlations", exc, key="detectors") from None
+    compare = spacetime.compare
+    if compare is not None and reference is not False:
+        other = _correlations_reference(spacetime, compare.with_, probes, points, coupling, tolerance)
+        _compared_pairs(detectors, pairs, other)
+        ok_reference = other.pop("ok")
+        if not ok_reference:
+            shortfalls.append("the reference: " + other.pop("message"))
+        other.pop("message", None)
+    data = {"detectors": detectors, "pairs": pairs, "convention": CORRELATIONS_CONVENTION, "state": state,
+            "coupling": coupling, "tolerance": tolerance,
+            "units": "probabilities and matrix elements of the joint state (dimensionless); light times in the "
+                     "spec's time coordinate; widths in each detector's proper time"}
+    ok = not shortfalls
+    message = "" if ok else (f"tolerance {tolerance:.0e} not met: " + "; ".join(shortfalls)
+                             + f" (a tolerance of {10 * tolerance:.0e} may pass)")
+    if compare is not None and reference is not False:
+        data["reference"] = other
+    return Correlations(data, spacetime, ok, message, tolerance)
+
+
+def _correlations_reference(spacetime, with_, probes, points, coupling, tolerance) -> dict:
+    """The same detectors in the [compare] spacetime: in Minkowski (3+1, massless) at the same positions read as
+    flat polar coordinates, with the same gaps and proper widths and the peaks at each detector's proper time
+    alpha_i T_i; or in another spec, loaded with these [[detectors]] and [detector]."""
+    import dataclasses
+
+    from derive.detector.correlations import Probe, entanglement, pair_terms, probability
+
+    if with_ != "minkowski":
+        from derive import load
+
+        other = load(with_)
+        other = dataclasses.replace(other, detectors=spacetime.detectors, detector=spacetime.detector, compare=None)
+        result = correlations(other, tolerance, reference=False)
+        data = result.to_json()
+        return {"with": with_, "detectors": data["detectors"], "pairs": data["pairs"], "ok": result.ok,
+                "message": result.message}
+    field = spacetime.numeric_problem
+    if field.dimension != 4 or field.mass != 0:
+        raise InputError("the Minkowski comparison of several detectors is built for a massless field in 3+1; "
+                         "compare with the path of a flat spec instead", file=spacetime.path, key="compare.with")
+    flat = [Probe(p.name, p.radius, 1.0, p.gap, p.sigma, p.alpha * p.centre) for p in probes]
+    position = [point.radius * point.unit_vector() for point in points]
+
+    def spectrum(i, j):
+        d = float(np.linalg.norm(position[i] - position[j]))
+
+        def values(w):
+            zero = np.zeros_like(w)
+            s_plus = w / (4 * np.pi ** 2) if d == 0 else np.sin(w * d) / (4 * np.pi ** 2 * d)
+            return s_plus.astype(complex), 1e-16 * np.abs(s_plus), zero.astype(complex), zero
+        return values, d
+    lam2 = coupling ** 2
+    detectors = {}
+    for i, probe in enumerate(flat):
+        value, error = probability(probe, spectrum(i, i)[0], tolerance)
+        detectors[probe.name] = {"probability": lam2 * value, "error": lam2 * error}
+    pairs = []
+    for i in range(len(flat)):
+        for j in range(i + 1, len(flat)):
+            values, d = spectrum(i, j)
+            terms = pair_terms(flat[i], flat[j], values, d, tolerance)
+            L_AA, L_BB = detectors[flat[i].name]["probability"], detectors[flat[j].name]["probability"]
+            pair = {"between": [flat[i].name, flat[j].name], "L": [lam2 * terms.L.real, lam2 * terms.L.imag],
+                    "M": [lam2 * terms.M.real, lam2 * terms.M.imag],
+                    "error": {"L": lam2 * terms.L_error, "M": lam2 * terms.M_error}}
+            pair.update(entanglement(L_AA, L_BB, lam2 * terms.L, lam2 * terms.M,
+                                     (detectors[flat[i].name]["error"], detectors[flat[j].name]["error"],
+                                      lam2 * terms.L_error, lam2 * terms.M_error)))
+            pairs.append(pair)
+    return {"with": "minkowski", "detectors": detectors, "pairs": pairs, "ok": True, "message": ""}
+
+
+def _compared_pairs(detectors, pairs, reference) -> None:
+    """Each pair's differences from the reference (concurrence, negativity, |M|), each with its error."""
+    theirs = {tuple(p["between"]): p for p in reference["pairs"]}
+    for pair in pairs:
+        other = theirs.get(tuple(pair["between"]))
+        if other is None:
+            continue
+        difference = {}
+        for key in ("concurrence", "negativity", "mutual_information"):
+            difference[key] = pair[key] - other[key]
+            difference[f"{key}_error"] = pair[f"{key}_error"] + other[f"{key}_error"]
+        difference["abs_M"] = float(abs(complex(*pair["M"])) - abs(complex(*other["M"])))
+        difference["abs_M_error"] = pair["error"]["M"] + other["error"]["M"]
+        pair["difference_from_reference"] = difference

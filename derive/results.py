@@ -170,6 +170,19 @@ class Response(Result):
                 f"{_worst_relative(data['response'], data['error']):.1e}")
 
 
+class Correlations(Result):
+    """Several detectors: each one's probability, and every pair's joint state (L, M, entanglement, signalling)."""
+
+    kind = "correlations"
+    _tables = ("correlations_table", "correlations_figure")
+
+    def _summary(self) -> str:
+        data = self._data
+        entangled = sum(1 for p in data["pairs"] if p["concurrence"] > 0)
+        return (f"{len(data['detectors'])} detectors, {len(data['pairs'])} pairs ({entangled} entangled), "
+                f"{data['state']} state")
+
+
 class TwoPoint(Result):
     """The field's spectral two-point function between two static points (per unit omega), with errors."""
 

@@ -164,6 +164,32 @@ def _numerics(spacetime, staging, tolerance, summary, timings, progress, l_progr
             _note(summary, "spectrum", result)
     timings["spectrum"] = time.perf_counter() - start
     _response(spacetime, staging, tolerance, summary, timings, progress, l_progress)
+    _correlations(spacetime, staging, tolerance, summary, timings, progress, l_progress)
+
+
+def _correlations(spacetime, staging, tolerance, summary, timings, progress, l_progress=None):
+    """With [[detectors]]: every detector's probability and every pair's joint state (derive correlations)."""
+    from derive.report.tables import write_correlations_files
+
+    if len(spacetime.detectors) < 2:
+        return
+    _stage(summary, timings, progress, "correlations", "correlations between the detectors ...",
+           lambda: spacetime.correlations(tolerance=tolerance, progress=l_progress),
+           lambda data: write_correlations_files(staging, data, spacetime.title, pdf=True))
+
+
+def _stage(summary, timings, progress, name, label, compute, write) -> None:
+    """One numeric stage of run: compute through the API, write its files, record its JSON, shortfall and time."""
+    start = time.perf_counter()
+    progress(label)
+    result = _try(summary, name, compute)
+    if result is None:
+        return
+    data = result.to_json()
+    write(data)
+    summary[name] = data
+    _note(summary, name, result)
+    timings[name] = time.perf_counter() - start
 
 
 def _detector_radius(spacetime) -> float:
@@ -195,18 +221,12 @@ def _response(spacetime, staging, tolerance, summary, timings, progress, l_progr
     from derive.report.tables import write_response_files
 
     if spacetime.detector is None or not spacetime.detector.gaps:
-        summary["skipped"]["response"] = "no [detector] section with gaps"
+        summary["skipped"]["response"] = ("several detectors: see correlations" if spacetime.detectors else
+                                          "no [detector] section with gaps")
         return
-    start = time.perf_counter()
-    progress("detector response ...")
-    result = _try(summary, "response", lambda: spacetime.response(tolerance=tolerance, progress=l_progress))
-    if result is None:
-        return
-    data = result.to_json()
-    write_response_files(staging, data, spacetime.title, pdf=True)
-    summary["response"] = data
-    _note(summary, "response", result)
-    timings["response"] = time.perf_counter() - start
+    _stage(summary, timings, progress, "response", "detector response ...",
+           lambda: spacetime.response(tolerance=tolerance, progress=l_progress),
+           lambda data: write_response_files(staging, data, spacetime.title, pdf=True))
 
 
 def _plain(value):

@@ -157,3 +157,21 @@ def _switching_profile(spacetime, expression):
             raise AccuracyError("the switching expression's kernel disagrees with its mpmath twin",
                                 {"at": point, "numpy": value, "mpmath": exact})
     return kernel
+
+
+def numeric_switchings(spacetime) -> list[dict]:
+    """The [[detectors]] switchings as plain numbers: {"shape", "width", "centre", ...} per detector, in order."""
+    values = spacetime.parameter_values
+    out = []
+    for i, entry in enumerate(spacetime.detectors):
+        numbers = {"shape": entry.switching.get("shape", "gaussian"), "centre": 0.0}
+        for key, value in entry.switching.items():
+            if key in ("shape", "expression"):
+                continue
+            number = value.subs(values)
+            if not number.is_number or not np.isfinite(float(number)):
+                raise InputError(f"switching {key} = {value} has no finite numeric value", file=spacetime.path,
+                                 key=f"detectors[{i}].switching.{key}")
+            numbers[key] = float(number)
+        out.append(numbers)
+    return out

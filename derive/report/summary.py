@@ -28,6 +28,8 @@ def spec_json(spacetime) -> dict:
             f"{spacetime.detector.coordinate} = {spacetime.detector.position}",
             "state": spacetime.detector.state, "gaps": list(spacetime.detector.gaps),
             "switching": {k: str(v) for k, v in spacetime.detector.switching.items()}},
+        "detectors": [{"name": d.name, "at": str(d.at), "gap": d.gap,
+                       "switching": {k: str(v) for k, v in d.switching.items()}} for d in spacetime.detectors],
         "compare": None if spacetime.compare is None else {"with": spacetime.compare.with_,
                                                            "sigmas": spacetime.compare.sigmas},
         "source_hash": spacetime.source_hash,
@@ -51,10 +53,15 @@ def spec_summary(spacetime) -> str:
         lines.append(f"  field:       mass {info['field']['mass']}, coupling {info['field']['coupling']}"
                      + (f", {info['field']['boundary']} at an AdS boundary"
                         if info["field"]["boundary"] != "dirichlet" else ""))
-    if info["detector"]:
+    if info["detector"] and info["detector"]["at"] is None:
+        lines.append(f"  detector:    shared by the detectors below: state {info['detector']['state']}")
+    elif info["detector"]:
         d = info["detector"]
         lines.append(f"  detector:    at {d['at']}, {d['switching'].get('shape')} switching, state {d['state']}, "
                      f"{len(d['gaps'])} gaps")
+    for d in info["detectors"]:
+        lines.append(f"  detectors:   {d['name']} at {d['at']}, gap {d['gap']:g}, {d['switching'].get('shape')} "
+                     "switching")
     if info["compare"]:
         lines.append(f"  compare:     with {info['compare']['with']}")
     return "\n".join(lines)

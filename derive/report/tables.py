@@ -201,6 +201,65 @@ def two_point_figure(data: dict, title: str):
     return figure
 
 
+def correlations_table(data: dict) -> tuple[list[str], list[list]]:
+    """One row per pair: L, M, their errors, the entanglement measures and the signalling read-outs."""
+    pairs = data["pairs"]
+    header = ["first", "second", "L_re", "L_im", "L_error", "M_re", "M_im", "M_error", "concurrence",
+              "concurrence_error", "negativity", "negativity_error", "mutual_information", "mutual_information_error",
+              "light_time", "overlap", "commutator_part_re", "commutator_part_im"]
+    columns = [[p["between"][0] for p in pairs], [p["between"][1] for p in pairs],
+               [p["L"][0] for p in pairs], [p["L"][1] for p in pairs], [p["error"]["L"] for p in pairs],
+               [p["M"][0] for p in pairs], [p["M"][1] for p in pairs], [p["error"]["M"] for p in pairs]]
+    columns += [[p[k] for p in pairs] for k in ("concurrence", "concurrence_error", "negativity", "negativity_error",
+                                                "mutual_information", "mutual_information_error")]
+    columns += [[p["signalling"]["light_time"] for p in pairs], [p["signalling"]["overlap"] for p in pairs],
+                [p["signalling"]["commutator_part"][0] for p in pairs],
+                [p["signalling"]["commutator_part"][1] for p in pairs]]
+    return header, columns
+
+
+def detectors_table(data: dict) -> tuple[list[str], list[list]]:
+    names = list(data["detectors"])
+    rows = [data["detectors"][n] for n in names]
+    return (["name", "at", "gap", "width", "centre", "redshift_factor", "probability", "error"],
+            [names, [r["at"]["text"] for r in rows]] + [[r[k] for r in rows] for k in
+                                                        ("gap", "width", "centre", "redshift_factor", "probability",
+                                                         "error")])
+
+
+def correlations_figure(data: dict, title: str):
+    """|M| against sqrt(L_AA L_BB) per pair (entanglement where the first is larger), with error bars."""
+    import numpy as np
+
+    plt = _pyplot()
+    figure, axis = plt.subplots(figsize=(6.4, 4.2))
+    pairs = data["pairs"]
+    labels = [f"{p['between'][0]}-{p['between'][1]}" for p in pairs]
+    x = np.arange(len(pairs))
+    M = [float(np.hypot(*p["M"])) for p in pairs]
+    noise = [float(np.sqrt(data["detectors"][p["between"][0]]["probability"]
+                           * data["detectors"][p["between"][1]]["probability"])) for p in pairs]
+    axis.errorbar(x - 0.1, M, yerr=[p["error"]["M"] for p in pairs], fmt="o", capsize=3, label="|M|")
+    axis.plot(x + 0.1, noise, "s", label=r"$\sqrt{L_{AA} L_{BB}}$")
+    axis.set_xticks(x, labels, rotation=30 if len(pairs) > 4 else 0, fontsize=8)
+    axis.set_xlim(-0.6, len(pairs) - 0.4)
+    axis.set_yscale("log")
+    axis.set_ylabel("second-order matrix elements (with $\\lambda^2$)")
+    axis.set_title(f"{title}: {data['state']} state; entangled where |M| is above", fontsize=10)
+    axis.legend(fontsize=8)
+    figure.tight_layout()
+    return figure
+
+
+def write_correlations_files(out: str, data: dict, title: str, pdf: bool = False) -> list[str]:
+    paths = _write_table_and_figure(out, "correlations", correlations_table(data), correlations_figure(data, title),
+                                    pdf)
+    header, columns = detectors_table(data)
+    path = os.path.join(out, "detectors.csv")
+    write_atomic(path, _csv(header, zip(*columns)))
+    return paths + [path]
+
+
 # -- files ---------------------------------------------------------------------------------------------------
 def _write_table_and_figure(out, stem, table, figure, pdf) -> list[str]:
     header, columns = table

@@ -20,20 +20,22 @@ import sympy as sp
 from derive.errors import ExpressionError, InputError, SpecError
 from derive.spec.expressions import ExpressionParser, is_identifier, substitute_bounded
 from derive.spec.line_element import differential_name, metric_from_line_element
-from derive.spec.model import (CompareSpec, DetectorSpec, Domain, FieldSpec, Interface, Parameter, Region,
-                               Spacetime)
+from derive.spec.model import (ArrayDetectorSpec, CompareSpec, DetectorSpec, Domain, FieldSpec, Interface,
+                               Parameter, Region, Spacetime)
 
 MAX_SPEC_BYTES = 1_000_000
 MAX_NESTING = 8              # tables and arrays inside each other (format 1 needs 4)
 MAX_MAGNITUDE = 1e12         # largest |value| of a parameter, a gap or any other number a spec gives
 ASSUMPTIONS = ("positive", "nonnegative", "negative", "nonpositive", "real", "integer", "nonzero")
 TOP_KEYS = ("format", "title", "parameters", "coordinates", "definitions", "functions", "region",
-            "interface", "field", "detector", "compare", "numerics")
+            "interface", "field", "detector", "detectors", "compare", "numerics")
 REGION_KEYS = ("name", "where", "line_element", "metric", "unknowns")
 INTERFACE_KEYS = ("between", "at")
 FIELD_KEYS = ("mass", "coupling", "boundary")
 BOUNDARIES = ("dirichlet", "neumann", "transparent")
 DETECTOR_KEYS = ("at", "switching", "gaps", "state", "coupling")
+ARRAY_KEYS = ("name", "at", "gap", "switching")      # each [[detectors]] entry
+MAX_DETECTORS = 64
 COMPARE_KEYS = ("with", "sigmas")
 NUMERICS_KEYS = ("tolerance",)
 CHOSEN_BY_DERIVE = ("l_max", "omega_max", "outer_radius")   # read by no solver: refused with the reason
@@ -387,6 +389,7 @@ def from_mapping(data: Mapping[str, Any], path: str = "<spec>", overrides: Mappi
 
     field = _field(reader, parser, data.get("field"), len(coordinates), definitions)
     detector = _detector(reader, parser, data.get("detector"), coordinates, definitions)
+    detectors = _detectors(reader, parser, data.get("detectors"), definitions)
     compare = None
     if "compare" in data:
         table = data["compare"]
@@ -421,10 +424,16 @@ def from_mapping(data: Mapping[str, Any], path: str = "<spec>", overrides: Mappi
     digest = hashlib.sha256()
     digest.update(raw if raw is not None else repr(sorted(data.items(), key=str)).encode())
     digest.update(repr(sorted((overrides or {}).items())).encode())
-    return Spacetime(path=path, title=title, source_hash=digest.hexdigest(), parameters=parameters,
-                     coordinates=coordinates, definitions=definitions, functions=functions, regions=regions,
-                     interfaces=tuple(interfaces), field=field, detector=detector, compare=compare,
-                     numerics=numerics)
+    spacetime = Spacetime(path=path, title=title, source_hash=digest.hexdigest(), parameters=parameters,
+                          coordinates=coordinates, definitions=definitions, functions=functions, regions=regions,
+                          interfaces=tuple(interfaces), field=field, detector=detector, compare=compare,
+                          numerics=numerics, detectors=detectors)
+    if detectors:
+        from derive.spec.positions import parse_position
+
+        for i, entry in enumerate(detectors):     # positions read now, so that check names a bad one
+            parse_position(spacetime, entry.at, key=f"detectors[{i}].at")
+    return spacetime
 
 
 def _check_joined(reader, regions, interfaces) -> None:
@@ -639,6 +648,68 @@ def _field(reader, parser, table, dimension, definitions):
     return FieldSpec(mass, coupling, text, boundary)
 
 
+def _switching(reader, parser, switching, definitions, key, extra=()):
+    """A switching table: its shape and its keys as expressions (``extra``: keys allowed beside the usual)."""
+    if not isinstance(switching, Mapping):
+        reader.fail('expected a table such as { shape = "gaussian", width = "1" }', key)
+    reader.check_keys(switching, SWITCHING_KEYS + tuple(extra), key)
+    switching = dict(switching)
+    shape = switching.get("shape", "gaussian")
+    if shape not in SWITCHING_SHAPES:
+        close = suggest(shape, SWITCHING_SHAPES)
+        hint = f"; did you mean '{close}'?" if close else f" (one of {', '.join(SWITCHING_SHAPES)})"
+        reader.fail(f"unknown switching shape {shape!r}{hint}", f"{key}.shape")
+    switching["shape"] = shape
+    for k in ("width", "duration", "ramp", "tail") + tuple(extra):
+        if k in switching:
+            value = reader.substitute(reader.expression(parser, switching[k], f"{key}.{k}"),
+                                      definitions, f"{key}.{k}")
+            switching[k] = value
+    if shape == "expression":
+        if "expression" not in switching:
+            reader.fail("a switching of shape 'expression' needs expression = \"...\" in tau", f"{key}.expression")
+        tau = sp.Symbol("tau", real=True)
+        symbols = dict(parser.symbols)
+        symbols["tau"] = tau
+        switching["expression"] = reader.expression(ExpressionParser(symbols, parser.functions),
+                                                    switching["expression"], f"{key}.expression")
+    return switching
+
+
+def _detectors(reader, parser, entries, definitions):
+    """[[detectors]]: each with a name, a static position (checked once the spacetime is built), one gap and a
+    switching whose ``centre`` is the time of its peak in the spec's time coordinate (default 0)."""
+    if entries is None:
+        return ()
+    if not isinstance(entries, list) or not all(isinstance(e, Mapping) for e in entries):
+        reader.fail("expected an array of tables: [[detectors]] name = ..., at = ..., gap = ..., switching = {...}",
+                    "detectors")
+    if not 2 <= len(entries) <= MAX_DETECTORS:
+        reader.fail(f"expected between 2 and {MAX_DETECTORS} detectors (one detector: use [detector] alone)",
+                    "detectors")
+    out, names = [], set()
+    for i, table in enumerate(entries):
+        key = f"detectors[{i}]"
+        reader.check_keys(table, ARRAY_KEYS, key)
+        for required in ("name", "at", "gap"):
+            if required not in table:
+                reader.fail(f"missing {required!r}", f"{key}.{required}")
+        name = table["name"]
+        if not isinstance(name, str) or not name.strip() or len(name) > 64:
+            reader.fail("expected a name (a short string)", f"{key}.name")
+        if name in names:
+            reader.fail(f"the name {name!r} is used twice", f"{key}.name")
+        names.add(name)
+        at = table["at"]
+        if isinstance(at, bool) or not isinstance(at, (str, int, float)):
+            reader.fail('expected a position such as "r = 2, theta = pi/2, phi = 0"', f"{key}.at")
+        gap = reader.number(table["gap"], f"{key}.gap")
+        switching = _switching(reader, parser, table.get("switching", {"shape": "gaussian", "width": 1.0}),
+                               definitions, f"{key}.switching", extra=("centre",))
+        out.append(ArrayDetectorSpec(name, at, gap, switching))
+    return tuple(out)
+
+
 def _detector(reader, parser, table, coordinates, definitions):
     if table is None:
         return None
@@ -646,29 +717,8 @@ def _detector(reader, parser, table, coordinates, definitions):
     coordinate = position = None
     if "at" in table:
         coordinate, position, _ = _equation(reader, parser, table["at"], coordinates, "detector.at", definitions)
-    switching = table.get("switching", {"shape": "gaussian", "width": 1.0})
-    reader.check_keys(switching, SWITCHING_KEYS, "detector.switching")
-    switching = dict(switching)
-    shape = switching.get("shape", "gaussian")
-    if shape not in SWITCHING_SHAPES:
-        close = suggest(shape, SWITCHING_SHAPES)
-        hint = f"; did you mean '{close}'?" if close else f" (one of {', '.join(SWITCHING_SHAPES)})"
-        reader.fail(f"unknown switching shape {shape!r}{hint}", "detector.switching.shape")
-    switching["shape"] = shape
-    for k in ("width", "duration", "ramp", "tail"):
-        if k in switching:
-            value = reader.substitute(reader.expression(parser, switching[k], f"detector.switching.{k}"),
-                                      definitions, f"detector.switching.{k}")
-            switching[k] = value
-    if shape == "expression":
-        if "expression" not in switching:
-            reader.fail("a switching of shape 'expression' needs expression = \"...\" in tau",
-                        "detector.switching.expression")
-        tau = sp.Symbol("tau", real=True)
-        symbols = dict(parser.symbols)
-        symbols["tau"] = tau
-        switching["expression"] = reader.expression(ExpressionParser(symbols, parser.functions),
-                                                    switching["expression"], "detector.switching.expression")
+    switching = _switching(reader, parser, table.get("switching", {"shape": "gaussian", "width": 1.0}),
+                           definitions, "detector.switching")
     gaps = table.get("gaps", [])
     if not isinstance(gaps, list) or not all(isinstance(g, (int, float)) and not isinstance(g, bool) for g in gaps):
         reader.fail("expected a list of numbers", "detector.gaps")

@@ -94,6 +94,18 @@ class DetectorSpec:
 
 
 @dataclass(frozen=True)
+class ArrayDetectorSpec:
+    """One of several static detectors ([[detectors]]): its name, its position as written (parsed by
+    derive.spec.positions), one gap, and its switching (``centre``: the time of the peak in the spec's time
+    coordinate; widths in the detector's proper time)."""
+
+    name: str
+    at: object
+    gap: float
+    switching: Mapping[str, object]
+
+
+@dataclass(frozen=True)
 class CompareSpec:
     """What the response is compared with: "minkowski" or the path of another spec."""
 
@@ -118,6 +130,7 @@ class Spacetime:
     detector: DetectorSpec | None = None
     compare: CompareSpec | None = None
     numerics: Mapping[str, float] = dataclass_field(default_factory=dict)
+    detectors: tuple = ()      # [[detectors]]: ArrayDetectorSpec entries, for correlations
 
     @property
     def dimension(self) -> int:
@@ -184,6 +197,13 @@ class Spacetime:
         from derive.pipeline import two_point
 
         return two_point(self, omega, between, tolerance, progress)
+
+    def correlations(self, tolerance: float | None = None, progress=None):
+        """Several detectors ([[detectors]]): probabilities, every pair's joint state, entanglement and signalling;
+        see :func:`derive.pipeline.correlations`."""
+        from derive.pipeline import correlations
+
+        return correlations(self, tolerance, progress)
 
     def response(self, gaps=None, tolerance: float | None = None, switching: dict | None = None, compare=None,
                  progress=None):

@@ -1,0 +1,324 @@
+"""Several static detectors: their joint state at second order in the coupling, from the field's spectral
+two-point function between their positions (docs/conventions.md section 9).
+
+Detector i sits at a static point where the redshift factor is alpha_i = sqrt(-g_tt) (proper time per unit of the
+spec's time t), with gap Omega_i and a Gaussian switching chi_i(tau) = exp(-tau^2/(2 sigma_i^2)) in its proper time
+tau, peaked at t = T_i.  With W(x_i(t), x_j(t')) = int_0^inf domega [S_+(omega) e^{-i omega (t - t')}
++ S_-(omega) e^{+i omega (t - t')}] (S between x_i and x_j, per unit omega of t; S_- = 0 in a vacuum) and
+chi_hat(k) = int chi(tau) e^{-i k tau} dtau = sqrt(2 pi) sigma e^{-sigma^2 k^2/2}:
+
+    L_ij = lambda^2 int dtau dtau' chi_i(tau) chi_j(tau') e^{-i (Omega_i tau - Omega_j tau')} W(x_i, x_j)
+         = lambda^2 int_0^inf domega [ S_+ e^{-i omega D} chi_hat_i(Omega_i + omega/alpha_i)
+                                           chi_hat_j(Omega_j + omega/alpha_j)
+                                     + S_- e^{+i omega D} chi_hat_i(Omega_i - omega/alpha_i)
+                                           chi_hat_j(Omega_j - omega/alpha_j) ],
+
+D = T_i - T_j.  The non-local term M = -lambda^2 int dtau dtau' chi_A chi_B e^{i (Omega_A tau + Omega_B tau')}
+<T phi(x_A(tau)) phi(x_B(tau'))> (time ordering in t) becomes, after the integral over t_A + t_B (Gaussian,
+exact), with a = (sigma_A/alpha_A)^2, b = (sigma_B/alpha_B)^2, c = a + b, w = alpha Omega, W = w_A + w_B,
+kappa = (w_A a - w_B b)/c:
+
+    M = -lambda^2 alpha_A alpha_B sqrt(2 pi a b/c) e^{-W^2 a b/(2c)}
+        int dv e^{-(v - D)^2/(2c) + i kappa (v - D)} G_F(v),
+
+v = t_A - t_B, and G_F = Re W_AB + sgn(v) i Im W_AB: the anticommutator half plus sgn(v) times the commutator half.
+The commutator vanishes for |v| below the light time T between the two points, so sgn(v) may be replaced by
+erf(v/epsilon) with epsilon = T/6 (they differ by erfc(6) = 2e-17 where it does not vanish); then every v-integral
+is closed form (an erf of complex argument, through the Faddeeva function) and M is one omega-integral too.
+
+The omega-integrals use Gauss-Legendre panels, doubled until two successive rules agree to the tolerance; the
+error of each result adds that difference, the spectral function's own errors carried through the weights, and
+rounding.  Only Gaussian switchings are handled (their transforms are what makes M one integral).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.special import wofz
+
+from derive.solve.centre import Unsupported
+
+NODES = 16               # Gauss-Legendre nodes per panel
+FIRST_PANELS = 8
+MAX_PANELS = 512
+REACH = 9.0              # Gaussian factors are below e^{-REACH^2/2} = 3e-18 beyond the frequency range used
+SMOOTHING = 6.0          # epsilon = light time / SMOOTHING
+
+
+@dataclass(frozen=True)
+class Probe:
+    """One detector as numbers: its name, radius, redshift factor, gap, proper width and peak time (of t)."""
+
+    name: str
+    radius: float
+    alpha: float
+    gap: float
+    sigma: float
+    centre: float
+
+    @property
+    def half_duration(self) -> float:
+        """Half the effective duration in t: all but 1e-12 of chi^2 (the Gaussian's, as for one detector)."""
+        from scipy.special import erfcinv
+
+        return float(self.sigma * erfcinv(1e-12)) / self.alpha
+
+
+def chi_hat(probe: Probe, k):
+    return np.sqrt(2 * np.pi) * probe.sigma * np.exp(-(probe.sigma * k) ** 2 / 2)
+
+
+def _scaled_erf(base_log, z):
+    """e^{base_log} erf(z) without overflow, for complex z (base_log + Re(-z^2) <= 0 where it is used): through
+    erf(z) = 1 - e^{-z^2} w(iz) for Re z >= 0 and erf(z) = -erf(-z) otherwise (w the Faddeeva function)."""
+    sign = np.where(np.real(z) >= 0, 1.0, -1.0)
+    z = sign * z
+    return sign * (np.exp(base_log) - np.exp(base_log - z * z) * wofz(1j * z))
+
+
+def m_kernels(A: Probe, B: Probe, omegas, light_time: float):
+    """(prefactor, J_+, J_-, E_+, E_-) at the frequencies: M = -lambda^2 prefactor int domega (1/2) [(S_+ + conj S_-)
+    J_+ + (S_- + conj S_+) J_- + (S_+ - conj S_-) E_+ + (S_- - conj S_+) E_-] (module docstring)."""
+    if not light_time > 0:
+        raise Unsupported("two detectors at the same point: their commutator is not separated from the "
+                          "anticommutator by a light time (place them apart)")
+    a, b = (A.sigma / A.alpha) ** 2, (B.sigma / B.alpha) ** 2
+    c = a + b
+    wa, wb = A.alpha * A.gap, B.alpha * B.gap
+    W = wa + wb
+    kappa = (wa * a - wb * b) / c
+    D = A.centre - B.centre
+    prefactor = A.alpha * B.alpha * np.sqrt(2 * np.pi * a * b / c) * np.exp(-W * W * a * b / (2 * c))
+    epsilon = light_time / SMOOTHING
+    spread = np.sqrt(epsilon ** 2 + 2 * c)
+    out = []
+    for p in (kappa - omegas, kappa + omegas):
+        log_base = 1j * (p - kappa) * D - c * p * p / 2
+        J = np.sqrt(2 * np.pi * c) * np.exp(log_base)
+        E = np.sqrt(2 * np.pi * c) * _scaled_erf(log_base, (D + 1j * c * p) / spread)
+        out.append((J, E))
+    (J_plus, E_plus), (J_minus, E_minus) = out
+    return prefactor, J_plus, J_minus, E_plus, E_minus
+
+
+def frequency_reach(A: Probe, B: Probe, light_time: float | None) -> float:
+    """Where every factor of the integrands is below e^{-REACH^2/2}: the switchings' transforms, and for M the
+    Gaussian of width 1/sqrt(c) and the smoothed sign's e^{-c p^2 epsilon^2/(2 (epsilon^2 + 2c))}."""
+    top = max(p.alpha * (abs(p.gap) + REACH / p.sigma) for p in (A, B))
+    if light_time is not None:
+        a, b = (A.sigma / A.alpha) ** 2, (B.sigma / B.alpha) ** 2
+        c = a + b
+        kappa = (A.alpha * A.gap * a - B.alpha * B.gap * b) / c
+        epsilon = light_time / SMOOTHING
+        top = max(top, abs(kappa) + REACH * np.sqrt((epsilon ** 2 + 2 * c) / (c * epsilon ** 2)))
+    return top
+
+
+def _rule(top: float, panels: int):
+    x, w = np.polynomial.legendre.leggauss(NODES)
+    edges = np.linspace(0.0, top, panels + 1)
+    half = np.diff(edges) / 2
+    nodes = (edges[:-1, None] + half[:, None] * (1 + x[None, :])).ravel()
+    weights = (half[:, None] * w[None, :]).ravel()
+    return nodes, weights
+
+
+def _integrals(spectrum, integrands, top, tolerance):
+    """Each integrand(omega, S_+, S_-) -> (values, |factor of S_+|, |factor of S_-|) integrated over [0, top] on
+    doubled panel rules until two successive ones agree (to the tolerance, or within the spectral errors carried
+    through); returns (value, error, scale) each.  ``spectrum(omegas)`` -> (S_+, e_+, S_-, e_-)."""
+    previous = None
+    panels = FIRST_PANELS
+    while True:
+        nodes, weights = _rule(top, panels)
+        s_plus, e_plus, s_minus, e_minus = spectrum(nodes)
+        results = []
+        for integrand in integrands:
+            values, plus_factor, minus_factor = integrand(nodes, s_plus, s_minus)
+            value = np.sum(weights * values)
+            carried = np.sum(weights * (np.abs(plus_factor) * e_plus + np.abs(minus_factor) * e_minus))
+            scale = np.sum(weights * (np.abs(plus_factor) * np.abs(s_plus) + np.abs(minus_factor) * np.abs(s_minus)))
+            results.append((value, carried, scale))
+        if previous is not None:
+            done = True
+            out = []
+            for (value, carried, scale), (old, _, _) in zip(results, previous):
+                rounding = 64 * np.finfo(float).eps * scale
+                error = abs(value - old) + carried + rounding
+                out.append((value, error, scale))
+                # converged when the rules agree to the tolerance, or to within what the spectral function's own
+                # errors explain (then refining the rule cannot do better)
+                done &= abs(value - old) <= max(tolerance * max(scale, 1e-300), 2 * carried)
+            if done or panels >= MAX_PANELS:
+                return out
+        previous = results
+        panels *= 2
+
+
+@dataclass
+class PairResult:
+    L: complex
+    L_error: float
+    M: complex
+    M_error: float
+    commutator: complex
+    commutator_error: float
+
+
+def pair_terms(A: Probe, B: Probe, spectrum, light_time: float, tolerance: float) -> PairResult:
+    """L_AB and M (each per lambda^2) between two detectors, with errors; ``spectrum(omegas)`` gives
+    (S_+, e_+, S_-, e_-) between A's point and B's in the state."""
+    D = A.centre - B.centre
+
+    def l_integrand(w, s_plus, s_minus):
+        plus = np.exp(-1j * w * D) * chi_hat(A, A.gap + w / A.alpha) * chi_hat(B, B.gap + w / B.alpha)
+        minus = np.exp(1j * w * D) * chi_hat(A, A.gap - w / A.alpha) * chi_hat(B, B.gap - w / B.alpha)
+        return s_plus * plus + s_minus * minus, plus, minus
+
+    kernels = {}
+
+    def m_parts(w):
+        key = w.tobytes()
+        if key not in kernels:
+            kernels.clear()
+            kernels[key] = m_kernels(A, B, w, light_time)
+        return kernels[key]
+
+    def anticommutator(w, s_plus, s_minus):
+        pre, J_plus, J_minus, _, _ = m_parts(w)
+        value = 0.5 * ((s_plus + np.conj(s_minus)) * J_plus + (s_minus + np.conj(s_plus)) * J_minus)
+        size_plus = 0.5 * (np.abs(J_plus) + np.abs(J_minus))
+        return -pre * value, pre * size_plus, pre * size_plus
+
+    def commutator(w, s_plus, s_minus):
+        pre, _, _, E_plus, E_minus = m_parts(w)
+        value = 0.5 * ((s_plus - np.conj(s_minus)) * E_plus + (s_minus - np.conj(s_plus)) * E_minus)
+        size = 0.5 * (np.abs(E_plus) + np.abs(E_minus))
+        return -pre * value, pre * size, pre * size
+
+    top = frequency_reach(A, B, light_time)
+    (L, L_error, _), (anti, anti_error, _), (comm, comm_error, _) = _integrals(
+        spectrum, [l_integrand, anticommutator, commutator], top, tolerance)
+    return PairResult(complex(L), float(L_error), complex(anti + comm), float(anti_error + comm_error),
+                      complex(comm), float(comm_error))
+
+
+def probability(A: Probe, spectrum, tolerance: float) -> tuple[float, float]:
+    """L_AA (per lambda^2): the single detector's excitation probability, with its error."""
+    def integrand(w, s_plus, s_minus):
+        plus = chi_hat(A, A.gap + w / A.alpha) ** 2
+        minus = chi_hat(A, A.gap - w / A.alpha) ** 2
+        return s_plus * plus + s_minus * minus, plus, minus
+
+    ((value, error, _),) = _integrals(spectrum, [integrand], frequency_reach(A, A, None), tolerance)
+    return float(np.real(value)), float(error)
+
+
+def entanglement(L_AA, L_BB, L_AB, M, errors) -> dict:
+    """Concurrence, negativity and mutual information of the two-qubit state at second order, in the basis
+    |g g>, |g e>, |e g>, |e e> (A first):  rho = [[1 - L_AA - L_BB, 0, 0, M*], [0, L_BB, L_AB*, 0],
+    [0, L_AB, L_AA, 0], [M, 0, 0, 0]] + O(lambda^4).  Errors by first-order propagation of ``errors`` =
+    (e_AA, e_BB, e_AB, e_M)."""
+    e_AA, e_BB, e_AB, e_M = errors
+    root = np.sqrt(L_AA * L_BB)
+    e_root = 0.5 * (e_AA * np.sqrt(L_BB / max(L_AA, 1e-300)) + e_BB * np.sqrt(L_AA / max(L_BB, 1e-300)))
+    concurrence = 2 * max(0.0, abs(M) - root)
+    e_concurrence = 2 * (e_M + e_root) if concurrence > 0 else 0.0
+    # the partial transpose's smallest eigenvalue: ((L_AA + L_BB) - sqrt((L_AA - L_BB)^2 + 4|M|^2))/2
+    spread = np.sqrt((L_AA - L_BB) ** 2 + 4 * abs(M) ** 2)
+    negativity = max(0.0, (spread - L_AA - L_BB) / 2)
+    e_negativity = (e_AA + e_BB + 2 * e_M) if negativity > 0 else 0.0
+    # mutual information (natural log): the eigenvalues L_+- of the one-excitation block against the marginals
+    disc = np.sqrt((L_AA - L_BB) ** 2 + 4 * abs(L_AB) ** 2)
+    plus, minus = (L_AA + L_BB + disc) / 2, (L_AA + L_BB - disc) / 2
+
+    def xlogx(x):
+        return x * np.log(x) if x > 0 else 0.0
+
+    information = xlogx(plus) + xlogx(minus) - xlogx(L_AA) - xlogx(L_BB)
+    largest = max(abs(np.log(max(x, 1e-300))) + 1 for x in (plus, minus, L_AA, L_BB))
+    e_information = largest * (2 * (e_AA + e_BB) + 2 * e_AB)
+    return {"concurrence": float(concurrence), "concurrence_error": float(e_concurrence),
+            "negativity": float(negativity), "negativity_error": float(e_negativity),
+            "mutual_information": float(information), "mutual_information_error": float(e_information)}
+
+
+def _optical(problem):
+    """(radial, angular) elements of the optical metric dt^2 = dr^2/(f h) + (r^2/f) dOmega^2 of null curves."""
+    def pieces(r):
+        r = np.atleast_1d(np.asarray(r, dtype=float))
+        radial, angular = np.full_like(r, np.nan), np.full_like(r, np.nan)
+        for region in problem.regions:
+            inside = (r >= region.lower) & ((r < region.upper) if region.upper is not None else True)
+            if region is problem.regions[-1] and region.upper is not None:
+                inside |= r == region.upper
+            if np.any(inside):
+                x = r[inside]
+                radial[inside] = np.broadcast_to(np.asarray(region.dtortoise_dr(x), dtype=float), x.shape)
+                f = np.broadcast_to(np.asarray(region.metric_f(x), dtype=float), x.shape)
+                angular[inside] = x / np.sqrt(f)
+        return radial, angular
+    return pieces
+
+
+def _radial_time(pieces, r1, r2, count=64):
+    """int dr/sqrt(f h) between two radii (Gauss-Legendre on pieces split at every interface)."""
+    lo, hi = min(r1, r2), max(r1, r2)
+    if hi == lo:
+        return 0.0
+    x, w = np.polynomial.legendre.leggauss(count)
+    r = (lo + hi) / 2 + (hi - lo) / 2 * x
+    return float(np.sum(w * pieces(r)[0]) * (hi - lo) / 2)
+
+
+def light_time(problem, first, second) -> tuple[float, float]:
+    """The shortest coordinate time a light signal needs between two static points (the optical-metric distance),
+    with an error estimate: radial when the points share a direction; otherwise the shortest of the path through
+    a regular centre and a path r(psi) in the plane of the two points and the centre, optimised over its radii at
+    32 and at 64 nodes (scipy.optimize), extrapolated (second order), a third of their difference the error."""
+    from scipy.optimize import minimize
+
+    from derive.spec.positions import cos_angle
+
+    pieces = _optical(problem)
+    r1, r2 = first.radius, second.radius
+    gamma = float(np.arccos(np.clip(cos_angle(first, second), -1.0, 1.0)))
+    if gamma < 1e-12 or r1 == 0 or r2 == 0:
+        value = _radial_time(pieces, r1, r2)
+        return value, 1e-12 * value
+    candidates = []
+    if problem.regions[0].lower_kind == "regular centre":
+        candidates.append(_radial_time(pieces, 0.0, r1) + _radial_time(pieces, 0.0, r2))
+    lowest = problem.regions[0].lower * (1 + 1e-6) if problem.regions[0].lower_kind == "horizon" else 0.0
+    last = problem.regions[-1]
+    highest = last.upper * (1 - 1e-6) if last.upper is not None else 1e3 * max(r1, r2)
+    x, w = np.polynomial.legendre.leggauss(6)
+
+    def length(inner, nodes):
+        radii = np.concatenate([[r1], inner, [r2]])
+        dpsi = gamma / nodes
+        a, b = radii[:-1, None], radii[1:, None]
+        r = (a + b) / 2 + (b - a) / 2 * x[None, :]
+        radial, angular = pieces(r.ravel())
+        slope = ((b - a) / dpsi) * np.ones_like(r)
+        speed = np.sqrt((radial.reshape(r.shape) * slope) ** 2 + angular.reshape(r.shape) ** 2)
+        return float(np.sum(speed * w[None, :]) * dpsi / 2)
+
+    found = []
+    for nodes in (32, 64):
+        psi = np.linspace(0.0, gamma, nodes + 1)[1:-1]
+        if gamma < np.pi - 1e-9:   # the straight chord of flat space as the first guess
+            guess = r1 * r2 * np.sin(gamma) / (r1 * np.sin(psi) + r2 * np.sin(gamma - psi))
+        else:
+            guess = np.interp(psi, [0.0, gamma], [r1, r2])
+        guess = np.clip(guess, lowest + 1e-9 * max(r1, r2), highest)
+        best = minimize(length, guess, args=(nodes,), method="L-BFGS-B",
+                        bounds=[(lowest + 1e-9 * max(r1, r2), highest)] * len(guess), options={"maxiter": 500})
+        found.append(min(best.fun, length(guess, nodes)))
+    # the polygon in (psi, r) converges at second order: Richardson on the two, their difference the error
+    path = found[1] + (found[1] - found[0]) / 3
+    value = min(candidates + [path])
+    error = abs(found[1] - found[0]) / 3 if value == path else 1e-12 * value
+    return value, error

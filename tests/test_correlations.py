@@ -1,0 +1,242 @@
+"""Several detectors: the joint state of two static detectors at second order (sources named beside each check).
+
+Flat 3+1, massless, vacuum: W(v, d) = 1/(4 pi^2 (d^2 - (v - i eps)^2)) between points a distance d apart
+(Birrell & Davies 1982, ch. 3), its spectral form S_+(omega) = sin(omega d)/(4 pi^2 d) per unit omega, and the
+Feynman function <T phi phi> = 1/(4 pi^2 (d^2 - v^2 + i eps)).  For two identical Gaussian-switched detectors
+(width sigma, gap Omega, peaks simultaneous), derived here by the Gaussian integral over t_A + t_B:
+
+    L_AB = sqrt(pi) sigma int dv e^{-v^2/(4 sigma^2) - i Omega v} W(v, d),
+    M    = -sqrt(pi) sigma e^{-sigma^2 Omega^2} / (4 pi^2 d) [2 sqrt(pi) F(d/(2 sigma)) - i pi e^{-d^2/(4 sigma^2)}]
+
+(F the Dawson function: the principal value of the Feynman function's real part; the imaginary part from its
+delta function on the light cone).  This is the pointlike case of the closed forms of Pozas-Kerstjens &
+Martin-Martinez, Phys. Rev. D 92, 064042 (2015) (from memory: M = i sigma e^{-sigma^2 Omega^2 - d^2/(4 sigma^2)}
+(1 + i erfi(d/(2 sigma)))/(4 sqrt(pi) d), the same function).  L_AB is integrated by mpmath on the real line moved
+below W's poles at v = +-d + i eps (W is analytic there; common practice).
+"""
+
+import json
+import os
+
+import mpmath
+import numpy as np
+import pytest
+from scipy.special import dawsn
+
+import derive
+from derive.cli import main
+from derive.detector.correlations import Probe, entanglement, light_time, pair_terms, probability
+from derive.detector.study import minkowski_gaussian_response
+
+
+def flat_pair(d):
+    def spectrum(w):
+        zero = np.zeros_like(w)
+        return (np.sin(w * d) / (4 * np.pi ** 2 * d)).astype(complex), 1e-18 + zero, zero.astype(complex), zero
+    return spectrum
+
+
+def flat_density(w):
+    zero = np.zeros_like(w)
+    return (w / (4 * np.pi ** 2)).astype(complex), zero, zero.astype(complex), zero
+
+
+def l_reference(d, sigma_a, sigma_b, gap_a, gap_b, D):
+    """L_AB = int dv K_L(v) W(v + D, d): the Gaussian integral over t_A + t_B done (derived as for M in the module
+    docstring of derive.detector.correlations), the rest by mpmath below the poles."""
+    with mpmath.workdps(30):
+        a, b = mpmath.mpf(sigma_a) ** 2, mpmath.mpf(sigma_b) ** 2
+        c = a + b
+        kappa = (-gap_a * a - gap_b * b) / c       # the phases e^{-i Omega_A tau + i Omega_B tau'}
+        Wg = -gap_a + gap_b
+        pre = mpmath.sqrt(2 * mpmath.pi * a * b / c) * mpmath.exp(-Wg ** 2 * a * b / (2 * c))
+
+        def integrand(x):
+            v = x - 0.5j
+            return pre * mpmath.exp(-(v - D) ** 2 / (2 * c) + 1j * kappa * (v - D)) / (
+                4 * mpmath.pi ** 2 * (d * d - v * v))
+        return complex(mpmath.quad(integrand, [-mpmath.inf, -2 * d, 0, 2 * d, mpmath.inf]))
+
+
+def m_reference(d, sigma_a, sigma_b, gap_a, gap_b, D):
+    """M from the same reduction with the Feynman function, integrated by mpmath along a path that passes below
+    its pole at v = d + i eps and above the one at v = -d - i eps."""
+    with mpmath.workdps(30):
+        a, b = mpmath.mpf(sigma_a) ** 2, mpmath.mpf(sigma_b) ** 2
+        c = a + b
+        kappa = (gap_a * a - gap_b * b) / c
+        Wg = gap_a + gap_b
+        pre = mpmath.sqrt(2 * mpmath.pi * a * b / c) * mpmath.exp(-Wg ** 2 * a * b / (2 * c))
+        h = d / 2
+
+        def integrand(v):
+            return -pre * mpmath.exp(-(v - D) ** 2 / (2 * c) + 1j * kappa * (v - D)) / (
+                4 * mpmath.pi ** 2 * (d * d - v * v))
+        path = [-mpmath.inf, -d - h, -d + 1j * h, -d + h, d - h, d - 1j * h, d + h, mpmath.inf]
+        return complex(mpmath.quad(integrand, path))
+
+
+def test_identical_detectors_in_flat_space_match_the_closed_forms():
+    d, sigma, gap = 1.0, 0.5, 1.0
+    A, B = Probe("A", 0.0, 1.0, gap, sigma, 0.0), Probe("B", d, 1.0, gap, sigma, 0.0)
+    result = pair_terms(A, B, flat_pair(d), d, 1e-12)
+    x = d / (2 * sigma)
+    M = -np.sqrt(np.pi) * sigma * np.exp(-(sigma * gap) ** 2) / (4 * np.pi ** 2 * d) * (
+        2 * np.sqrt(np.pi) * dawsn(x) - 1j * np.pi * np.exp(-x * x))
+    assert result.M == pytest.approx(M, rel=1e-13)
+    assert result.L == pytest.approx(l_reference(d, sigma, sigma, gap, gap, 0.0), rel=1e-13)
+    assert result.M_error < 1e-12 * abs(M) and result.L_error < 1e-12 * abs(result.L)
+    # the commutator part is the light cone's delta function: i sigma e^{-sigma^2 Omega^2 - d^2/(4 sigma^2)}/(4 sqrt(pi) d)
+    assert result.commutator == pytest.approx(1j * sigma * np.exp(-(sigma * gap) ** 2 - x * x) / (4 * np.sqrt(np.pi) * d),
+                                              rel=1e-12)
+    # the probability is the single detector's response (Sriramkumar & Padmanabhan 1996; derive's own closed form)
+    value, error = probability(A, flat_density, 1e-12)
+    assert value == pytest.approx(minkowski_gaussian_response([gap], sigma)[0], rel=1e-13)
+
+
+@pytest.mark.parametrize("d, sigmas, gaps, D", [(2.0, (0.5, 0.8), (1.0, 2.0), 0.3), (0.7, (1.0, 0.4), (0.0, -0.5), -1.5),
+                                                 (3.0, (0.6, 0.6), (2.0, 2.0), 4.0)])
+def test_unequal_detectors_in_flat_space(d, sigmas, gaps, D):
+    A = Probe("A", 0.0, 1.0, gaps[0], sigmas[0], D)
+    B = Probe("B", d, 1.0, gaps[1], sigmas[1], 0.0)
+    result = pair_terms(A, B, flat_pair(d), d, 1e-12)
+    M = m_reference(d, *sigmas, *gaps, D)
+    L = l_reference(d, *sigmas, *gaps, D)
+    scale = np.sqrt(probability(A, flat_density, 1e-12)[0] * probability(B, flat_density, 1e-12)[0])
+    assert abs(result.M - M) < 1e-12 * scale + 1e-12 * abs(M)
+    assert abs(result.L - L) < 1e-12 * scale + 1e-12 * abs(L)
+
+
+def test_entanglement_measures_against_the_density_matrix():
+    # Negativity: minus the smallest eigenvalue of the partial transpose of rho (Peres 1996; Vidal & Werner 2002,
+    # here without the factor 2 of some authors: N = sum of |negative eigenvalues|); concurrence of an X state
+    # 2 max(0, |M| - sqrt(L_AA L_BB)) (Wootters 1998 for the X form).  Mutual information at leading order against
+    # numpy's entropies of rho (scaled by lambda^2 -> small).
+    L_AA, L_BB, L_AB, M = 2.0e-4, 3.0e-4, 1.2e-4 + 0.4e-4j, 3.1e-4 - 0.5e-4j
+    out = entanglement(L_AA, L_BB, L_AB, M, (0, 0, 0, 0))
+    rho = np.array([[1 - L_AA - L_BB, 0, 0, np.conj(M)], [0, L_BB, np.conj(L_AB), 0], [0, L_AB, L_AA, 0],
+                    [M, 0, 0, 0]])
+    transpose = rho.reshape(2, 2, 2, 2).transpose(0, 3, 2, 1).reshape(4, 4)
+    smallest = np.linalg.eigvalsh(transpose)[0]
+    assert out["negativity"] == pytest.approx(-smallest, rel=1e-6)   # rho's O(lambda^4) entries are left out
+    assert out["concurrence"] == pytest.approx(2 * (abs(M) - np.sqrt(L_AA * L_BB)), rel=1e-14)
+
+    def entropy(matrix):
+        values = np.linalg.eigvalsh(matrix)
+        values = values[values > 1e-300]
+        return float(-np.sum(values * np.log(values)))
+    # without M (which only enters at higher order) rho is a valid state and its mutual information is exact
+    rho0 = rho.copy()
+    rho0[0, 3] = rho0[3, 0] = 0
+    rho_a = np.array([[1 - L_AA, 0], [0, L_AA]])
+    rho_b = np.array([[1 - L_BB, 0], [0, L_BB]])
+    exact = entropy(rho_a) + entropy(rho_b) - entropy(rho0)
+    assert out["mutual_information"] == pytest.approx(exact, rel=1e-3)
+
+
+def spec_file(folder, detectors, shared='state = "vacuum"\ncoupling = 0.1'):
+    text = """format = 1
+title = "Empty space with detectors"
+[parameters]
+d = { value = 1.0, positive = true }
+[coordinates]
+names = ["t", "r", "theta", "phi"]
+positive = ["r"]
+[[region]]
+name = "all"
+where = "r >= 0"
+line_element = "-dt**2 + dr**2 + r**2*(dtheta**2 + sin(theta)**2*dphi**2)"
+[field]
+mass = "0"
+coupling = "0"
+[detector]
+""" + shared + "\n" + detectors
+    path = os.path.join(folder, "detectors.toml")
+    with open(path, "w") as handle:
+        handle.write(text)
+    return path
+
+
+TWO = """
+[[detectors]]
+name = "A"
+at = "r = 0"
+gap = 1.0
+switching = { shape = "gaussian", width = "0.5" }
+[[detectors]]
+name = "B"
+at = "r = d"
+gap = 1.0
+switching = { shape = "gaussian", width = "0.5" }
+"""
+
+
+def test_correlations_command_in_flat_space(tmp_path, capsys):
+    path = spec_file(str(tmp_path), TWO)
+    out = str(tmp_path / "out")
+    assert main(["correlations", path, "--json", "--out", out]) == 0
+    data = json.loads(capsys.readouterr().out)
+    # the JSON contract of the correlations issue
+    assert set(data) >= {"detectors", "pairs", "convention", "status"}
+    assert set(data["detectors"]["A"]) >= {"probability", "error", "at", "gap"}
+    (pair,) = data["pairs"]
+    assert pair["between"] == ["A", "B"]
+    assert set(pair) >= {"L", "M", "error", "concurrence", "negativity", "mutual_information", "signalling"}
+    assert set(pair["error"]) == {"L", "M"}
+    assert set(pair["signalling"]) >= {"light_time", "overlap", "commutator_part"}
+    lam2 = 0.01
+    x = 1.0 / (2 * 0.5)     # d/(2 sigma)
+    M = -lam2 * np.sqrt(np.pi) * 0.5 * np.exp(-0.25) / (4 * np.pi ** 2) * (
+        2 * np.sqrt(np.pi) * dawsn(x) - 1j * np.pi * np.exp(-x * x))
+    assert complex(*pair["M"]) == pytest.approx(M, rel=1e-9)
+    assert pair["error"]["M"] < 1e-9 * abs(M)
+    assert pair["signalling"]["light_time"] == pytest.approx(1.0, rel=1e-10)
+    P = lam2 * minkowski_gaussian_response([1.0], 0.5)[0]
+    assert data["detectors"]["B"]["probability"] == pytest.approx(P, rel=1e-9)
+    assert pair["concurrence"] == pytest.approx(2 * (abs(M) - P), rel=1e-8)
+    for name in ("correlations.csv", "detectors.csv", "correlations.png"):
+        assert (tmp_path / "out" / name).is_file()
+
+
+def test_light_time_is_the_chord_in_flat_space(tmp_path):
+    # In flat space the shortest light path is the straight chord, sqrt(r1^2 + r2^2 - 2 r1 r2 cos gamma) (Euclid);
+    # through the centre for gamma = pi.
+    from derive.spec.positions import parse_position
+
+    st = derive.load(spec_file(str(tmp_path), TWO))
+    problem = st.numeric_problem
+    for r1, r2, gamma in ((1.0, 2.0, 0.0), (1.0, 2.0, np.pi / 3), (1.5, 1.5, np.pi / 2), (1.0, 3.0, np.pi)):
+        first = parse_position(st, "r = %r" % r1)
+        second = parse_position(st, {"r": r2, "theta": gamma})
+        value, error = light_time(problem, first, second)
+        chord = np.sqrt(r1 * r1 + r2 * r2 - 2 * r1 * r2 * np.cos(gamma))
+        assert value == pytest.approx(chord, rel=1e-6) and abs(value - chord) <= 10 * error + 1e-10 * chord
+
+
+@pytest.mark.parametrize("text, key", [
+    (TWO.replace('name = "B"', 'name = "A"'), "detectors[1].name"),
+    (TWO.replace("gap = 1.0\nswitching = { shape = \"gaussian\", width = \"0.5\" }\n[[detectors]]", "[[detectors]]"),
+     "detectors[0].gap"),
+    (TWO.replace('at = "r = d"', 'at = 2'), None),
+    (TWO.replace('width = "0.5" }\n[[detectors]]', 'width = "0.5", wdth = 1 }\n[[detectors]]'),
+     "detectors[0].switching"),
+])
+def test_bad_detector_arrays_are_refused(tmp_path, capsys, text, key):
+    path = spec_file(str(tmp_path), text)
+    code = main(["check", path])
+    err = capsys.readouterr().err
+    if key is None:
+        assert code == 0
+    else:
+        assert code == 2 and key in err and "Traceback" not in err
+
+
+def test_one_detector_or_a_compact_switching_is_refused(tmp_path, capsys):
+    one = TWO[:TWO.index("[[detectors]]", 10)]
+    assert main(["check", spec_file(str(tmp_path), one)]) == 2
+    assert "detectors" in capsys.readouterr().err
+    bump = TWO.replace('{ shape = "gaussian", width = "0.5" }\n[[detectors]]',
+                       '{ shape = "bump", duration = "2" }\n[[detectors]]')
+    assert main(["correlations", spec_file(str(tmp_path), bump)]) == 2
+    err = capsys.readouterr().err
+    assert "detectors[0].switching.shape" in err and "gaussian" in err
