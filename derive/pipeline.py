@@ -440,7 +440,9 @@ def correlations(spacetime, tolerance: float | None = None, progress=None, refer
     Returns a :class:`~derive.results.Correlations`: ``.detectors`` {name: {"probability", "error", "at", "gap",
     ...}}, ``.pairs`` (every pair once, in the order the spec lists them), ``.convention``, ``.coupling``,
     ``.state``; ``.to_dataframe()`` is the table of pairs."""
-    from derive.detector.correlations import (Probe, entanglement, light_time, pair_terms, probability)
+    from derive.detector.correlations import Probe, entanglement, light_time, pair_terms
+    from derive.detector.study import detector_response
+    from derive.solve.problem import NumericDetector
     from derive.results import Correlations
     from derive.solve.centre import Unsupported
     from derive.spec.positions import cos_angle, parse_position
@@ -492,7 +494,11 @@ def correlations(spacetime, tolerance: float | None = None, progress=None, refer
     detectors, shortfalls = {}, []
     try:
         for i, probe in enumerate(probes):
-            value, error = probability(probe, spectrum_between(i, i), tolerance)
+            # L_ii is the single detector's response, through the same code as derive response
+            single = NumericDetector(probe.radius, "gaussian", {"width": probe.sigma, "tail": 1e-12}, (probe.gap,),
+                                     state, coupling, None, 3.0)
+            answer = detector_response(problem, single, tolerance, progress=progress, shortfalls=[])[0]
+            value, error = float(answer.response[0]), float(answer.error[0])
             duration = 2 * probe.half_duration * probe.alpha
             trip = round_trip(problem, probe.alpha, probe.radius)
             detectors[probe.name] = {"probability": coupling ** 2 * value, "error": coupling ** 2 * error,
@@ -523,10 +529,13 @@ def correlations(spacetime, tolerance: float | None = None, progress=None, refer
                                        "commutator_part_error": lam2 * terms.commutator_error}}
                 pair.update(entanglement(L_AA, L_BB, lam2 * terms.L, lam2 * terms.M,
                                          (e_AA, e_BB, lam2 * terms.L_error, lam2 * terms.M_error)))
-                scale = np.sqrt(L_AA * L_BB)
-                if max(pair["error"]["L"], pair["error"]["M"]) > tolerance * scale:
-                    shortfalls.append(f"{A.name}-{B.name}: error {max(pair['error'].values()) / scale:.1e} of "
-                                      "sqrt(L_AA L_BB)")
+                # the tolerance refers to sqrt(L_AA L_BB) or to the integral of |integrand|, the larger (as the
+                # two-point function's refers to the sum of its terms' sizes)
+                pair["scale"] = {"L": lam2 * max(terms.L_scale, np.sqrt(L_AA * L_BB) / lam2),
+                                 "M": lam2 * max(terms.M_scale, np.sqrt(L_AA * L_BB) / lam2)}
+                worst = max(pair["error"][k] / pair["scale"][k] for k in ("L", "M"))
+                if worst > tolerance:
+                    shortfalls.append(f"{A.name}-{B.name}: error {worst:.1e} of the scale")
                 pairs.append(pair)
     except Unsupported as exc:
         raise _unsupported(spacetime, "compute these correlations", exc, key="detectors") from None

@@ -240,3 +240,57 @@ def test_one_detector_or_a_compact_switching_is_refused(tmp_path, capsys):
     assert main(["correlations", spec_file(str(tmp_path), bump)]) == 2
     err = capsys.readouterr().err
     assert "detectors[0].switching.shape" in err and "gaussian" in err
+
+
+def test_the_pair_order_conjugates_L_and_keeps_M():
+    # L_BA = conj(L_AB) (rho is Hermitian) and M is symmetric in A and B (the time-ordered product is);
+    # with different gaps, widths and peak times so that the phases matter.
+    d = 1.3
+    A, B = Probe("A", 0.0, 1.0, 1.5, 0.4, 0.25), Probe("B", d, 1.0, -0.5, 0.6, -0.1)
+    ab = pair_terms(A, B, flat_pair(d), d, 1e-12)
+    ba = pair_terms(B, A, flat_pair(d), d, 1e-12)
+    assert ba.L == pytest.approx(np.conj(ab.L), rel=1e-12)
+    assert ba.M == pytest.approx(ab.M, rel=1e-12)
+
+
+@pytest.mark.slow
+def test_spacelike_switchings_carry_no_commutator(tmp_path, capsys):
+    # Switchings whose effective durations (all but 1e-12 of chi^2) fit inside the light time cannot signal: the
+    # commutator part of M is then of the size of the Gaussians' tails at the light cone,
+    # sigma e^{-sigma^2 Omega^2 - d^2/(4 sigma^2)}/(4 sqrt(pi) d) (the closed form above), here e^{-57}.
+    narrow = TWO.replace('width = "0.5"', 'width = "0.2"')
+    path = spec_file(str(tmp_path), narrow)
+    assert main(["correlations", path, "--json", "--set", "d=3"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    (pair,) = data["pairs"]
+    assert pair["signalling"]["overlap"] is False
+    assert pair["signalling"]["light_time"] == pytest.approx(3.0, rel=1e-10)
+    tail = 0.01 * 0.2 * np.exp(-0.04 - 9 / 0.16) / (4 * np.sqrt(np.pi) * 3)
+    assert abs(complex(*pair["signalling"]["commutator_part"])) <= tail + pair["signalling"]["commutator_part_error"]
+    assert abs(complex(*pair["M"])) > 1e6 * tail       # the anticommutator (harvested) part is not small
+
+
+@pytest.mark.slow
+def test_two_detectors_off_the_centre_through_the_mode_sums(tmp_path, capsys):
+    # Both detectors off the centre, a third of a turn apart (d = sqrt(3)/2), with different gaps, widths and peak
+    # times: derive's l-sums of the two-point function against the flat references above, to 1e-10.
+    path = spec_file(str(tmp_path), """
+[[detectors]]
+name = "A"
+at = "r = 1/2, theta = pi/2, phi = 0"
+gap = 1.0
+switching = { shape = "gaussian", width = "0.5", centre = "0.2" }
+[[detectors]]
+name = "B"
+at = "r = 1/2, theta = pi/2, phi = 2*pi/3"
+gap = 2.0
+switching = { shape = "gaussian", width = "0.7" }
+""")
+    assert main(["correlations", path, "--json", "--tolerance", "1e-9"]) == 0
+    (pair,) = json.loads(capsys.readouterr().out)["pairs"]
+    d = np.sqrt(3) / 2
+    L = 0.01 * l_reference(d, 0.5, 0.7, 1.0, 2.0, 0.2)
+    M = 0.01 * m_reference(d, 0.5, 0.7, 1.0, 2.0, 0.2)
+    assert complex(*pair["L"]) == pytest.approx(L, rel=1e-10)
+    assert complex(*pair["M"]) == pytest.approx(M, rel=1e-10)
+    assert pair["signalling"]["light_time"] == pytest.approx(d, rel=1e-6)

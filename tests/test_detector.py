@@ -286,7 +286,10 @@ def test_sharp_switching_in_2plus1_converges_with_its_tail_bounded(write_spec):
 
 @pytest.mark.parametrize("switching, key", [('{ shape = "cos2", duration = "4", ramp = "3" }', "ramp"),
                                             ('{ shape = "bump" }', "duration"),
-                                            ('{ shape = "gaussian", width = "-1" }', "width")])
+                                            ('{ shape = "gaussian", width = "-1" }', "width"),
+                                            ('{ shape = "bump", width = "0.2" }', "width"),
+                                            ('{ shape = "gaussian", duration = "2" }', "duration"),
+                                            ('{ shape = "gaussian" }', "width")])
 def test_bad_switching_names_file_and_key(capsys, tmp_path, switching, key):
     # Bad input gets exit 2 and a message naming the file and the key (house rule).
     text = open(os.path.join(ROOT, "worked", "static_shell", "spec.toml")).read()

@@ -134,3 +134,16 @@ def test_singular_metric_is_refused_when_curvature_is_asked(write_spec):
     with pytest.raises(InputError) as info:
         st.geometry["outside"].christoffel  # noqa: B018
     assert "degenerate" in str(info.value) and "outside" in str(info.value)
+
+
+def test_a_static_shell_inside_its_own_horizon_is_refused_at_load():
+    # With 2M > R the Schwarzschild side's -g_tt = 1 - 2M/R is negative at the shell: no static shell exists there
+    # (its induced metric cannot match a timelike interior), and check says so instead of junction failing later.
+    import os
+
+    path = os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))), "worked", "static_shell",
+                        "spec.toml")
+    with pytest.raises(InputError) as error:
+        derive.load(path, M=0.6)
+    assert error.value.key == "interface[0].at" and "horizon of region 'outside'" in str(error.value)
+    assert derive.load(path, M=0.4).parameters["M"].value == 0.4

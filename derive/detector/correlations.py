@@ -165,6 +165,8 @@ class PairResult:
     M_error: float
     commutator: complex
     commutator_error: float
+    L_scale: float = 0.0        # the integrals of |integrand| (what the tolerance refers to, with sqrt(L_AA L_BB))
+    M_scale: float = 0.0
 
 
 def pair_terms(A: Probe, B: Probe, spectrum, light_time: float, tolerance: float) -> PairResult:
@@ -199,10 +201,10 @@ def pair_terms(A: Probe, B: Probe, spectrum, light_time: float, tolerance: float
         return -pre * value, pre * size, pre * size
 
     top = frequency_reach(A, B, light_time)
-    (L, L_error, _), (anti, anti_error, _), (comm, comm_error, _) = _integrals(
+    (L, L_error, L_scale), (anti, anti_error, anti_scale), (comm, comm_error, comm_scale) = _integrals(
         spectrum, [l_integrand, anticommutator, commutator], top, tolerance)
     return PairResult(complex(L), float(L_error), complex(anti + comm), float(anti_error + comm_error),
-                      complex(comm), float(comm_error))
+                      complex(comm), float(comm_error), float(L_scale), float(anti_scale + comm_scale))
 
 
 def probability(A: Probe, spectrum, tolerance: float) -> tuple[float, float]:

@@ -40,6 +40,8 @@ COMPARE_KEYS = ("with", "sigmas")
 NUMERICS_KEYS = ("tolerance",)
 CHOSEN_BY_DERIVE = ("l_max", "omega_max", "outer_radius")   # read by no solver: refused with the reason
 SWITCHING_SHAPES = ("gaussian", "sharp", "bump", "cos2", "sin4", "expression")
+SHAPE_KEYS = {"gaussian": ("width",), "sharp": ("duration",), "bump": ("duration",), "cos2": ("duration", "ramp"),
+              "sin4": ("duration", "ramp"), "expression": ("expression", "duration")}   # what each shape takes
 SWITCHING_KEYS = ("shape", "width", "duration", "ramp", "expression", "tail")
 STATES = ("vacuum", "boulware", "hartle-hawking", "unruh", "bunch-davies")
 RESERVED = ("l", "omega", "tau")   # symbols derive introduces itself
@@ -420,6 +422,7 @@ def from_mapping(data: Mapping[str, Any], path: str = "<spec>", overrides: Mappi
     _check_joined(reader, regions, interfaces)
     values = {p.symbol: p.value for p in parameters.values() if p.value is not None}
     _check_numbers(reader, values, coordinates, coord_table.get("positive", []), interfaces, field, detector)
+    _check_static_shells(reader, values, regions, interfaces)
 
     digest = hashlib.sha256()
     digest.update(raw if raw is not None else repr(sorted(data.items(), key=str)).encode())
@@ -512,6 +515,25 @@ def _check_numbers(reader, values, coordinates, positive, interfaces, field, det
     if detector.coupling is not None and not (math.isfinite(detector.coupling) and 0 < detector.coupling
                                               <= MAX_MAGNITUDE):
         reader.fail(f"expected a finite positive coupling, got {detector.coupling}", "detector.coupling")
+
+
+def _check_static_shells(reader, values, regions, interfaces) -> None:
+    """A static shell needs a timelike t on both sides: -g_tt > 0 at the interface at the parameters' values
+    (otherwise it sits at or inside a horizon of one side, and the first junction condition cannot hold)."""
+    for i, interface in enumerate(interfaces):
+        for name in interface.between:
+            region = regions[name]
+            g_tt = region.metric[0, 0]
+            if g_tt.free_symbols - set(values) - {interface.coordinate}:
+                continue      # unknowns (fixed by the junction) or functions: nothing to evaluate
+            try:
+                value = complex(sp.N(g_tt.subs(interface.coordinate, interface.value).subs(values), 20))
+            except (TypeError, ValueError):
+                continue
+            if value.imag == 0 and -value.real <= 0:
+                reader.fail(f"the shell at {interface.text} lies at or inside a horizon of region '{name}': "
+                            f"-g_tt = {-value.real:.6g} there at the parameters' values, and a static shell needs "
+                            "-g_tt > 0 on both sides (move it outward or lower the mass)", f"interface[{i}].at")
 
 
 def _check_value(reader: _Reader, p: Parameter):
@@ -660,6 +682,12 @@ def _switching(reader, parser, switching, definitions, key, extra=()):
         hint = f"; did you mean '{close}'?" if close else f" (one of {', '.join(SWITCHING_SHAPES)})"
         reader.fail(f"unknown switching shape {shape!r}{hint}", f"{key}.shape")
     switching["shape"] = shape
+    takes = SHAPE_KEYS[shape]
+    for k in switching:
+        if k not in takes + ("shape", "tail") + tuple(extra):
+            article = "an" if shape[0] in "aeiou" else "a"
+            reader.fail(f"{article} {shape} switching takes {', '.join(takes)} (and tail), not {k}"
+                        + ("; a gaussian's width plays the part of a duration" if k == "width" else ""), f"{key}.{k}")
     for k in ("width", "duration", "ramp", "tail") + tuple(extra):
         if k in switching:
             value = reader.substitute(reader.expression(parser, switching[k], f"{key}.{k}"),
@@ -673,6 +701,10 @@ def _switching(reader, parser, switching, definitions, key, extra=()):
         symbols["tau"] = tau
         switching["expression"] = reader.expression(ExpressionParser(symbols, parser.functions),
                                                     switching["expression"], f"{key}.expression")
+    for k in takes:
+        if k not in switching:
+            article = "an" if shape[0] in "aeiou" else "a"
+            reader.fail(f"{article} {shape} switching needs {k}", f"{key}.{k}")
     return switching
 
 
