@@ -194,6 +194,7 @@ SPEC_CASES = [
     ("unknowns-bad-name", _mutate('unknowns = ["alpha"]', 'unknowns = ["al pha"]'), "region[0].unknowns[0]"),
     ("unknowns-clash", _mutate('unknowns = ["alpha"]', 'unknowns = ["M"]'), "region[0].unknowns[0]"),
     ("unknowns-not-string", _mutate('unknowns = ["alpha"]', "unknowns = [1]"), "region[0].unknowns[0]"),
+    ("unknowns-not-list", _mutate('unknowns = ["alpha"]', "unknowns = 3"), "region[0].unknowns"),
     # interfaces
     ("interface-between-string", _mutate('between = ["inside", "outside"]', 'between = "inside"'),
      "interface[0].between"),
@@ -474,7 +475,8 @@ _PIECES = ["", "r", "-1", "I", "nan", "1e300", "10**100", "__import__('os')", "r
            "[1, 2]", "true", "inf", "\u0000", "a" * 70]
 
 
-@settings(max_examples=60, deadline=None, suppress_health_check=list(HealthCheck))
+@settings(max_examples=int(os.environ.get("DERIVE_FUZZ_EXAMPLES", "60")), deadline=None,
+          suppress_health_check=list(HealthCheck), derandomize=not os.environ.get("DERIVE_FUZZ_EXAMPLES"))
 @given(st.lists(st.tuples(st.integers(0, len(_LINES) - 1), st.sampled_from(["replace", "insert", "drop"]),
                           st.lists(st.sampled_from(_PIECES), min_size=1, max_size=4)), min_size=1, max_size=4))
 def test_fuzzed_specs_never_end_in_a_traceback(tmp_path_factory, edits):

@@ -310,7 +310,10 @@ def from_mapping(data: Mapping[str, Any], path: str = "<spec>", overrides: Mappi
             reader.fail(f"two regions are named '{name}'", f"{key}.name")
         unknowns = []
         local = dict(display_symbols)
-        for j, u in enumerate(table.get("unknowns", [])):
+        listed = table.get("unknowns", [])
+        if not isinstance(listed, list):
+            reader.fail('expected a list of names, e.g. unknowns = ["alpha"]', f"{key}.unknowns")
+        for j, u in enumerate(listed):
             reader.name(u, f"{key}.unknowns[{j}]")
             if u in local:
                 reader.fail(f"unknown '{u}' clashes with a name declared elsewhere", f"{key}.unknowns[{j}]")
