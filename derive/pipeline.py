@@ -539,27 +539,72 @@ def correlations(spacetime, tolerance: float | None = None, progress=None, refer
                 pairs.append(pair)
     except Unsupported as exc:
         raise _unsupported(spacetime, "compute these correlations", exc, key="detectors") from None
+    names = [p.name for p in probes]
+    matrix = np.zeros((len(probes), len(probes)), dtype=complex)
+    for i, name in enumerate(names):
+        matrix[i, i] = detectors[name]["probability"]
+    for pair in pairs:
+        i, j = names.index(pair["between"][0]), names.index(pair["between"][1])
+        matrix[i, j] = complex(*pair["L"])
+        matrix[j, i] = np.conj(matrix[i, j])
+    L_matrix = {"names": names, "re": matrix.real.tolist(), "im": matrix.imag.tolist()}
+    multipoles = None
+    if _on_one_sphere(probes) and problem.regions[0].lower_kind == "regular centre" and state == "vacuum":
+        from derive.detector.correlations import multipole_weights
+        from derive.solve.offcentre import angular_factor
+
+        try:
+            weights, errors = multipole_weights(problem, probes[0], tolerance)
+        except Unsupported as exc:
+            raise _unsupported(spacetime, "compute the array's multipoles", exc, key="detectors") from None
+        n = problem.dimension - 2
+        rebuilt = [sum(w * angular_factor(l, n, cos_angle(points[names.index(p["between"][0])],
+                                                          points[names.index(p["between"][1])]))
+                       for l, w in enumerate(weights)) * coupling ** 2 for p in pairs]
+        multipoles = {"radius": probes[0].radius, "l": list(range(len(weights))),
+                      "weight": (coupling ** 2 * weights).tolist(), "error": (coupling ** 2 * errors).tolist(),
+                      "largest_mismatch": max([abs(complex(*p["L"]) - b) / p["scale"]["L"]
+                                               for p, b in zip(pairs, rebuilt)] or [0.0])}
     compare = spacetime.compare
     if compare is not None and reference is not False:
-        other = _correlations_reference(spacetime, compare.with_, probes, points, coupling, tolerance)
+        other = _correlations_reference(spacetime, compare.with_, probes, points, coupling, tolerance,
+                                        multipoles is not None)
         _compared_pairs(detectors, pairs, other)
         ok_reference = other.pop("ok")
         if not ok_reference:
             shortfalls.append("the reference: " + other.pop("message"))
         other.pop("message", None)
-    data = {"detectors": detectors, "pairs": pairs, "convention": CORRELATIONS_CONVENTION, "state": state,
-            "coupling": coupling, "tolerance": tolerance,
+    data = {"detectors": detectors, "pairs": pairs, "L_matrix": L_matrix, "convention": CORRELATIONS_CONVENTION,
+            "state": state, "coupling": coupling, "tolerance": tolerance,
             "units": "probabilities and matrix elements of the joint state (dimensionless); light times in the "
                      "spec's time coordinate; widths in each detector's proper time"}
     ok = not shortfalls
     message = "" if ok else (f"tolerance {tolerance:.0e} not met: " + "; ".join(shortfalls)
                              + f" (a tolerance of {10 * tolerance:.0e} may pass)")
+    if multipoles is not None:
+        if compare is not None and reference is not False and other.get("multipoles"):
+            theirs = other["multipoles"]
+            count = min(len(theirs["weight"]), len(multipoles["weight"]))
+            ours_w, theirs_w = np.array(multipoles["weight"][:count]), np.array(theirs["weight"][:count])
+            error = np.array(multipoles["error"][:count]) + np.array(theirs["error"][:count])
+            multipoles["difference_from_reference"] = (ours_w - theirs_w).tolist()
+            multipoles["difference_error"] = error.tolist()
+            # which l tells them apart: the difference in units of its error
+            multipoles["significance"] = (np.abs(ours_w - theirs_w) / np.maximum(error, 1e-300)).tolist()
+        data["multipoles"] = multipoles
     if compare is not None and reference is not False:
         data["reference"] = other
     return Correlations(data, spacetime, ok, message, tolerance)
 
 
-def _correlations_reference(spacetime, with_, probes, points, coupling, tolerance) -> dict:
+def _on_one_sphere(probes) -> bool:
+    """An array on a sphere: every detector at the same radius r0 > 0 with the same gap, width and peak time."""
+    first = probes[0]
+    return first.radius > 0 and all((p.radius, p.gap, p.sigma, p.centre) == (first.radius, first.gap, first.sigma,
+                                                                              first.centre) for p in probes)
+
+
+def _correlations_reference(spacetime, with_, probes, points, coupling, tolerance, multipoles=False) -> dict:
     """The same detectors in the [compare] spacetime: in Minkowski (3+1, massless) at the same positions read as
     flat polar coordinates, with the same gaps and proper widths and the peaks at each detector's proper time
     alpha_i T_i; or in another spec, loaded with these [[detectors]] and [detector]."""
@@ -575,7 +620,7 @@ def _correlations_reference(spacetime, with_, probes, points, coupling, toleranc
         result = correlations(other, tolerance, reference=False)
         data = result.to_json()
         return {"with": with_, "detectors": data["detectors"], "pairs": data["pairs"], "ok": result.ok,
-                "message": result.message}
+                "message": result.message, "multipoles": data.get("multipoles")}
     field = spacetime.numeric_problem
     if field.dimension != 4 or field.mass != 0:
         raise InputError("the Minkowski comparison of several detectors is built for a massless field in 3+1; "
@@ -609,7 +654,21 @@ def _correlations_reference(spacetime, with_, probes, points, coupling, toleranc
                                      (detectors[flat[i].name]["error"], detectors[flat[j].name]["error"],
                                       lam2 * terms.L_error, lam2 * terms.M_error)))
             pairs.append(pair)
-    return {"with": "minkowski", "detectors": detectors, "pairs": pairs, "ok": True, "message": ""}
+    out = {"with": "minkowski", "detectors": detectors, "pairs": pairs, "ok": True, "message": ""}
+    if multipoles:
+        from scipy.special import spherical_jn
+
+        from derive.detector.correlations import multipole_weights
+
+        r0 = flat[0].radius
+
+        def density(omegas, l):   # flat 3+1: S_l = (2l + 1) omega j_l(omega r0)^2/(4 pi^2) (Rayleigh's expansion)
+            value = (2 * l + 1) * omegas * spherical_jn(l, omegas * r0) ** 2 / (4 * np.pi ** 2)
+            return value, 1e-16 * np.abs(value)
+        weights, errors = multipole_weights(None, flat[0], tolerance, density=density)
+        out["multipoles"] = {"radius": r0, "l": list(range(len(weights))), "weight": (lam2 * weights).tolist(),
+                             "error": (lam2 * errors).tolist()}
+    return out
 
 
 def _compared_pairs(detectors, pairs, reference) -> None:

@@ -294,3 +294,33 @@ switching = { shape = "gaussian", width = "0.7" }
     assert complex(*pair["L"]) == pytest.approx(L, rel=1e-10)
     assert complex(*pair["M"]) == pytest.approx(M, rel=1e-10)
     assert pair["signalling"]["light_time"] == pytest.approx(d, rel=1e-6)
+
+
+def test_multipoles_of_the_density_in_flat_space(tmp_path):
+    # Rayleigh's expansion sin(k d)/(k d) = sum_l (2l + 1) j_l(k r)^2 P_l(cos gamma) (two points at radius r, an
+    # angle gamma apart; Abramowitz & Stegun 10.1.45) gives the l-th term of the flat density at r:
+    # S_l = (2l + 1) omega j_l(omega r)^2/(4 pi^2), with scipy's spherical Bessel functions as the reference; and the
+    # weights w_l of a Gaussian detector sum to its response (derive's closed form).
+    from scipy.integrate import quad
+    from scipy.special import spherical_jn
+
+    from derive.detector.correlations import multipole_weights
+    from derive.solve.offcentre import multipole_density
+
+    st = derive.load(spec_file(str(tmp_path), TWO))
+    problem = st.numeric_problem
+    omegas = np.array([0.3, 1.0, 4.0, 9.0])
+    for l in (0, 1, 3, 6):
+        result = multipole_density(problem, omegas, 1.0, l, 1e-11)
+        expected = (2 * l + 1) * omegas * spherical_jn(l, omegas) ** 2 / (4 * np.pi ** 2)
+        np.testing.assert_allclose(result.density, expected, rtol=1e-9, atol=1e-14)
+    probe = Probe("A", 1.0, 1.0, 1.0, 0.5, 0.0)
+
+    def flat(w, l):
+        return (2 * l + 1) * w * spherical_jn(l, w) ** 2 / (4 * np.pi ** 2), 1e-17 * np.ones_like(w)
+    weights, errors = multipole_weights(None, probe, 1e-10, density=flat)
+    for l in range(3):
+        reference = quad(lambda x, l=l: flat(np.array([x]), l)[0][0] * 2 * np.pi * 0.25 * np.exp(-0.25 * (1 + x) ** 2),
+                         0, 60, epsabs=0, epsrel=1e-13, limit=200)[0]
+        assert weights[l] == pytest.approx(reference, rel=1e-11)
+    assert weights.sum() == pytest.approx(minkowski_gaussian_response([1.0], 0.5)[0], rel=1e-10)

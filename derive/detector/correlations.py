@@ -324,3 +324,40 @@ def light_time(problem, first, second) -> tuple[float, float]:
     value = min(candidates + [path])
     error = abs(found[1] - found[0]) / 3 if value == path else 1e-12 * value
     return value, error
+
+
+MAX_MULTIPOLE = 400
+
+
+def multipole_weights(problem, probe: Probe, tolerance: float, density=None):
+    """w_l = int dnu S_l(nu) |chi_hat(Omega + nu)|^2 (per lambda^2; nu proper frequency) for a detector like
+    ``probe`` on the sphere of radius probe.radius, S_l the l-th term of the density there: two such detectors an
+    angle gamma apart have L_AB = lambda^2 sum_l w_l G_l(cos gamma) (G_l the normalised Gegenbauer polynomial,
+    Legendre's P_l in 3+1).  Summed until three weights in a row fall below the tolerance of the running sum.
+    ``density(omegas, l)`` -> (S_l, error) per unit omega of t, by default the engine's (a regular centre).
+    Returns (weights, errors)."""
+    from derive.detector.response import response
+    from derive.detector.switching import switching_from_spec
+    from derive.solve.centre import continuum_threshold
+
+    if density is None:
+        from derive.solve.offcentre import multipole_density
+
+        def density(omegas, l):
+            result = multipole_density(problem, omegas, probe.radius, l, tolerance)
+            return result.density, result.error
+    switching = switching_from_spec({"shape": "gaussian"}, {"width": probe.sigma, "tail": 1e-12})
+    threshold = continuum_threshold(problem) / probe.alpha if problem is not None else 0.0
+    dimension = problem.dimension if problem is not None else 4
+    weights, errors, quiet = [], [], 0
+    for l in range(MAX_MULTIPOLE):
+        def density_at(nu, l=l):
+            value, error = density(probe.alpha * np.asarray(nu, dtype=float), l)
+            return probe.alpha * np.asarray(value), probe.alpha * np.asarray(error)
+        result = response(np.array([probe.gap]), switching, density_at, False, threshold, dimension, tolerance)
+        weights.append(float(result.response[0]))
+        errors.append(float(result.error[0]))
+        quiet = quiet + 1 if abs(weights[-1]) <= tolerance * abs(sum(weights)) else 0
+        if quiet >= 3:
+            break
+    return np.array(weights), np.array(errors)

@@ -232,7 +232,12 @@ def correlations_figure(data: dict, title: str):
     import numpy as np
 
     plt = _pyplot()
-    figure, axis = plt.subplots(figsize=(6.4, 4.2))
+    multipoles = data.get("multipoles")
+    if multipoles:
+        figure, (axis, right) = plt.subplots(1, 2, figsize=(10.0, 4.2))
+        _multipole_panel(right, data)
+    else:
+        figure, axis = plt.subplots(figsize=(6.4, 4.2))
     pairs = data["pairs"]
     labels = [f"{p['between'][0]}-{p['between'][1]}" for p in pairs]
     x = np.arange(len(pairs))
@@ -251,13 +256,46 @@ def correlations_figure(data: dict, title: str):
     return figure
 
 
+def _multipole_panel(axis, data: dict) -> None:
+    """The weight each l contributes to L_ij on the array's sphere, against the reference's when there is one."""
+    import numpy as np
+
+    ours = data["multipoles"]
+    l = np.asarray(ours["l"])
+    axis.errorbar(l, np.abs(ours["weight"]), yerr=ours["error"], fmt="o", ms=4, capsize=2, label="this spacetime")
+    theirs = (data.get("reference") or {}).get("multipoles")
+    if theirs:
+        axis.plot(theirs["l"], np.abs(theirs["weight"]), "x", label=f"reference ({data['reference']['with']})")
+    axis.set_yscale("log")
+    axis.set_xlabel(r"multipole $l$")
+    axis.set_ylabel(r"$|w_l|$: $L_{ij} = \sum_l w_l P_l(\cos\gamma_{ij})$")
+    axis.set_title(f"array on the sphere r = {ours['radius']:g}", fontsize=10)
+    axis.legend(fontsize=8)
+
+
+def multipole_table(data: dict) -> tuple[list[str], list[list]]:
+    ours = data["multipoles"]
+    header, columns = ["l", "weight", "error"], [ours["l"], ours["weight"], ours["error"]]
+    if "difference_from_reference" in ours:
+        count = len(ours["difference_from_reference"])
+        pad = [""] * (len(ours["l"]) - count)
+        header += ["difference_from_reference", "difference_error", "significance"]
+        columns += [ours["difference_from_reference"] + pad, ours["difference_error"] + pad,
+                    ours["significance"] + pad]
+    return header, columns
+
+
 def write_correlations_files(out: str, data: dict, title: str, pdf: bool = False) -> list[str]:
     paths = _write_table_and_figure(out, "correlations", correlations_table(data), correlations_figure(data, title),
                                     pdf)
-    header, columns = detectors_table(data)
-    path = os.path.join(out, "detectors.csv")
-    write_atomic(path, _csv(header, zip(*columns)))
-    return paths + [path]
+    for stem, table in (("detectors", detectors_table), ("multipoles", multipole_table)):
+        if stem == "multipoles" and not data.get("multipoles"):
+            continue
+        header, columns = table(data)
+        path = os.path.join(out, f"{stem}.csv")
+        write_atomic(path, _csv(header, zip(*columns)))
+        paths.append(path)
+    return paths
 
 
 # -- files ---------------------------------------------------------------------------------------------------

@@ -323,3 +323,21 @@ def _l_sum(problem, omegas, pair, cos_gamma, tolerance, series, fixed, distance,
     (total,), (size,), (error,), l = l_sum(term, len(omegas), tolerance, omegas * distance, MAX_L, progress,
                                            single=pair[0] == 0)
     return total, size, error, l
+
+
+def multipole_density(problem, omegas, r0: float, l: int, tolerance: float = 1e-10, series=None) -> DensityResult:
+    """The l-th term of the density at radius r0 > 0 (per unit omega): h_l |U_l(r0)|^2, so that the two-point
+    function between two points at r0 an angle gamma apart is sum_l of it times G_l(cos gamma)
+    (:func:`angular_factor`).  Refined to the tolerance relative to the term itself."""
+    if not r0 > 0:
+        raise Unsupported("a multipole of the density needs a point off the centre (r0 > 0)")
+    series, threshold = _prepare(problem, omegas, series)
+    omegas = np.asarray(omegas, dtype=float)
+    value, error = np.zeros(len(omegas)), np.zeros(len(omegas))
+    above = np.nonzero(omegas > threshold)[0]
+    if len(above):
+        w = omegas[above]
+        fixed = (float(np.min(np.sqrt(w ** 2 - threshold ** 2))), float(np.max(w)))
+        value[above], _, error[above], _ = _term(problem, l, w, (r0, r0), 1.0, series, tolerance, 0.0, fixed)
+    return DensityResult(omegas, value, error, np.zeros_like(value), error / np.maximum(np.abs(value), 1e-300),
+                         np.zeros_like(value), tolerance)
