@@ -440,7 +440,7 @@ def correlations(spacetime, tolerance: float | None = None, progress=None, refer
     Returns a :class:`~derive.results.Correlations`: ``.detectors`` {name: {"probability", "error", "at", "gap",
     ...}}, ``.pairs`` (every pair once, in the order the spec lists them), ``.convention``, ``.coupling``,
     ``.state``; ``.to_dataframe()`` is the table of pairs."""
-    from derive.detector.correlations import Probe, entanglement, light_time, pair_terms
+    from derive.detector.correlations import Probe, light_time, pair_record, pair_terms
     from derive.detector.study import detector_response
     from derive.solve.problem import NumericDetector
     from derive.results import Correlations
@@ -518,17 +518,12 @@ def correlations(spacetime, tolerance: float | None = None, progress=None, refer
                 e_AA, e_BB = (detectors[p.name]["error"] for p in (A, B))
                 lam2 = coupling ** 2
                 reach = A.half_duration + B.half_duration + abs(A.centre - B.centre)
-                pair = {"between": [A.name, B.name],
-                        "L": [lam2 * terms.L.real, lam2 * terms.L.imag],
-                        "M": [lam2 * terms.M.real, lam2 * terms.M.imag],
-                        "error": {"L": lam2 * terms.L_error, "M": lam2 * terms.M_error},
-                        "signalling": {"light_time": light, "light_time_error": light_error,
-                                       "overlap": bool(reach >= light),
-                                       "commutator_part": [lam2 * terms.commutator.real,
-                                                           lam2 * terms.commutator.imag],
-                                       "commutator_part_error": lam2 * terms.commutator_error}}
-                pair.update(entanglement(L_AA, L_BB, lam2 * terms.L, lam2 * terms.M,
-                                         (e_AA, e_BB, lam2 * terms.L_error, lam2 * terms.M_error)))
+                pair = pair_record(A, B, terms, L_AA, L_BB, e_AA, e_BB, lam2)
+                pair["signalling"] = {"light_time": light, "light_time_error": light_error,
+                                      "overlap": bool(reach >= light),
+                                      "commutator_part": [lam2 * terms.commutator.real,
+                                                          lam2 * terms.commutator.imag],
+                                      "commutator_part_error": lam2 * terms.commutator_error}
                 # the tolerance refers to sqrt(L_AA L_BB) or to the integral of |integrand|, the larger (as the
                 # two-point function's refers to the sum of its terms' sizes)
                 pair["scale"] = {"L": lam2 * max(terms.L_scale, np.sqrt(L_AA * L_BB) / lam2),
@@ -610,7 +605,8 @@ def _correlations_reference(spacetime, with_, probes, points, coupling, toleranc
     alpha_i T_i; or in another spec, loaded with these [[detectors]] and [detector]."""
     import dataclasses
 
-    from derive.detector.correlations import Probe, entanglement, pair_terms, probability
+    from derive.detector.correlations import Probe, pair_record, pair_terms
+    from derive.detector.study import minkowski_gaussian_response
 
     if with_ != "minkowski":
         from derive import load
@@ -633,27 +629,22 @@ def _correlations_reference(spacetime, with_, probes, points, coupling, toleranc
 
         def values(w):
             zero = np.zeros_like(w)
-            s_plus = w / (4 * np.pi ** 2) if d == 0 else np.sin(w * d) / (4 * np.pi ** 2 * d)
+            s_plus = np.sin(w * d) / (4 * np.pi ** 2 * d)
             return s_plus.astype(complex), 1e-16 * np.abs(s_plus), zero.astype(complex), zero
         return values, d
     lam2 = coupling ** 2
     detectors = {}
-    for i, probe in enumerate(flat):
-        value, error = probability(probe, spectrum(i, i)[0], tolerance)
-        detectors[probe.name] = {"probability": lam2 * value, "error": lam2 * error}
+    for probe in flat:   # the flat single-detector response in closed form (30 digits; rounding to double)
+        value = lam2 * float(minkowski_gaussian_response([probe.gap], probe.sigma)[0])
+        detectors[probe.name] = {"probability": value, "error": 1e-15 * value}
     pairs = []
     for i in range(len(flat)):
         for j in range(i + 1, len(flat)):
             values, d = spectrum(i, j)
             terms = pair_terms(flat[i], flat[j], values, d, tolerance)
-            L_AA, L_BB = detectors[flat[i].name]["probability"], detectors[flat[j].name]["probability"]
-            pair = {"between": [flat[i].name, flat[j].name], "L": [lam2 * terms.L.real, lam2 * terms.L.imag],
-                    "M": [lam2 * terms.M.real, lam2 * terms.M.imag],
-                    "error": {"L": lam2 * terms.L_error, "M": lam2 * terms.M_error}}
-            pair.update(entanglement(L_AA, L_BB, lam2 * terms.L, lam2 * terms.M,
-                                     (detectors[flat[i].name]["error"], detectors[flat[j].name]["error"],
-                                      lam2 * terms.L_error, lam2 * terms.M_error)))
-            pairs.append(pair)
+            A, B = detectors[flat[i].name], detectors[flat[j].name]
+            pairs.append(pair_record(flat[i], flat[j], terms, A["probability"], B["probability"], A["error"],
+                                     B["error"], lam2))
     out = {"with": "minkowski", "detectors": detectors, "pairs": pairs, "ok": True, "message": ""}
     if multipoles:
         from scipy.special import spherical_jn

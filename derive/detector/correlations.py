@@ -61,9 +61,10 @@ class Probe:
     @property
     def half_duration(self) -> float:
         """Half the effective duration in t: all but 1e-12 of chi^2 (the Gaussian's, as for one detector)."""
-        from scipy.special import erfcinv
+        from derive.detector.switching import switching_from_spec
 
-        return float(self.sigma * erfcinv(1e-12)) / self.alpha
+        return switching_from_spec({"shape": "gaussian"}, {"width": self.sigma, "tail": 1e-12}).duration / (
+            2 * self.alpha)
 
 
 def chi_hat(probe: Probe, k):
@@ -218,6 +219,17 @@ def probability(A: Probe, spectrum, tolerance: float) -> tuple[float, float]:
     return float(np.real(value)), float(error)
 
 
+def pair_record(A: Probe, B: Probe, terms: PairResult, L_AA: float, L_BB: float, e_AA: float, e_BB: float,
+                lam2: float) -> dict:
+    """A pair's JSON record: L, M (times lambda^2) with their errors and the entanglement read-outs."""
+    record = {"between": [A.name, B.name], "L": [lam2 * terms.L.real, lam2 * terms.L.imag],
+              "M": [lam2 * terms.M.real, lam2 * terms.M.imag],
+              "error": {"L": lam2 * terms.L_error, "M": lam2 * terms.M_error}}
+    record.update(entanglement(L_AA, L_BB, lam2 * terms.L, lam2 * terms.M,
+                               (e_AA, e_BB, lam2 * terms.L_error, lam2 * terms.M_error)))
+    return record
+
+
 def entanglement(L_AA, L_BB, L_AB, M, errors) -> dict:
     """Concurrence, negativity and mutual information of the two-qubit state at second order, in the basis
     |g g>, |g e>, |e g>, |e e> (A first):  rho = [[1 - L_AA - L_BB, 0, 0, M*], [0, L_BB, L_AB*, 0],
@@ -265,16 +277,6 @@ def _optical(problem):
     return pieces
 
 
-def _radial_time(pieces, r1, r2, count=64):
-    """int dr/sqrt(f h) between two radii (Gauss-Legendre on pieces split at every interface)."""
-    lo, hi = min(r1, r2), max(r1, r2)
-    if hi == lo:
-        return 0.0
-    x, w = np.polynomial.legendre.leggauss(count)
-    r = (lo + hi) / 2 + (hi - lo) / 2 * x
-    return float(np.sum(w * pieces(r)[0]) * (hi - lo) / 2)
-
-
 def light_time(problem, first, second) -> tuple[float, float]:
     """The shortest coordinate time a light signal needs between two static points (the optical-metric distance),
     with an error estimate: radial when the points share a direction; otherwise the shortest of the path through
@@ -282,17 +284,18 @@ def light_time(problem, first, second) -> tuple[float, float]:
     32 and at 64 nodes (scipy.optimize), extrapolated (second order), a third of their difference the error."""
     from scipy.optimize import minimize
 
+    from derive.solve.centre import tortoise_distance
     from derive.spec.positions import cos_angle
 
     pieces = _optical(problem)
     r1, r2 = first.radius, second.radius
     gamma = float(np.arccos(np.clip(cos_angle(first, second), -1.0, 1.0)))
     if gamma < 1e-12 or r1 == 0 or r2 == 0:
-        value = _radial_time(pieces, r1, r2)
+        value = tortoise_distance(problem, min(r1, r2), max(r1, r2))
         return value, 1e-12 * value
     candidates = []
     if problem.regions[0].lower_kind == "regular centre":
-        candidates.append(_radial_time(pieces, 0.0, r1) + _radial_time(pieces, 0.0, r2))
+        candidates.append(tortoise_distance(problem, 0.0, r1) + tortoise_distance(problem, 0.0, r2))
     lowest = problem.regions[0].lower * (1 + 1e-6) if problem.regions[0].lower_kind == "horizon" else 0.0
     last = problem.regions[-1]
     highest = last.upper * (1 - 1e-6) if last.upper is not None else 1e3 * max(r1, r2)

@@ -71,7 +71,7 @@ def check_supported(problem) -> None:
 
 
 def _ads(problem) -> bool:
-    """A black hole in AdS: a reflecting conformal boundary at the outer end (Dirichlet, the normalisable falloff)."""
+    """A black hole in AdS: a reflecting conformal boundary at the outer end (the condition: [field] boundary)."""
     from derive.solve.bound import is_ads
 
     return is_ads(problem)
