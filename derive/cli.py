@@ -286,6 +286,41 @@ def cmd_two_point(args) -> int:
     return _deliver(args, result, write_two_point_files, title, rows)
 
 
+def cmd_design(args) -> int:
+    from derive.report.tables import write_design_files
+
+    spacetime = _load(args)
+    tolerance = _tolerance(args, spacetime)
+    result = spacetime.design(tolerance=tolerance, progress=_progress(args))
+    data = result.to_json()
+
+    def line(label, p):
+        s = p["switching"]
+        size = f"width {s['width']:.5g}" if "width" in s else f"duration {s['duration']:.5g}"
+        return (f"  {label:<9} gap {p['gap']:9.5g}  {s['shape']:<8} {size:<18} lasting {p['duration']:.4g} "
+                f"(round trip {p['round_trip']:.4g}, {'local' if p['local'] else 'NOT local'}) at r = {p['at']:.4g}: "
+                f"{p['runs']:.4e} +- {p['runs_error']:.1e} runs")
+    rows = [line("best", data["best"]), line("default", data["default"]),
+            f"trade-off (best runs at each duration; budget {data['search']['budget']:.4g}):"]
+    rows += [f"  {r['duration']:10.4g} {r['runs']:12.4e} +- {r['runs_error']:.1e}  gap {r['gap']:8.4g} "
+             f"{r['shape']:<8} {'local' if r['local'] else 'not local'}" for r in data["tradeoff"]]
+    q = data["quantum_limit"]
+    if "runs" in q:
+        rows.append(f"quantum limit (the best probe, {q['switching']['shape']} lasting "
+                    f"{q['switching']['effective_duration']:.4g}, gap {q['gap']:.5g}): best initial state "
+                    f"theta = {q['initial_state']['theta']:.4g}, phi = {q['initial_state']['phi']:.4g}")
+        rows.append(f"  counting {q['counting']['runs']:.4e}  best measurement {q['best_measurement']['runs']:.4e}"
+                    f"  (ground state: counting {q['ground_state']['counting']['runs']:.4e}, best "
+                    f"{q['ground_state']['best_measurement']['runs']:.4e})  Chernoff exponent "
+                    f"{q['chernoff']['exponent']:.4e} (sufficient runs {q['chernoff']['runs']:.4e})")
+    else:
+        rows.append("quantum limit: " + q.get("note", ""))
+    rows += [f"note: {note}" for note in data["notes"]]
+    title = (f"{spacetime.title}: the probe that tells it from {data['compare']} fastest, coupling "
+             f"{data['coupling']:g}, {data['sigmas']:g} sigma")
+    return _deliver(args, result, write_design_files, title, rows)
+
+
 def cmd_correlations(args) -> int:
     from derive.report.tables import write_correlations_files
 
@@ -401,6 +436,13 @@ def build_parser() -> argparse.ArgumentParser:
         p.set_defaults(func=func)
         return p
 
+    def numeric_options(p, tolerance_help, out_help):
+        """--tolerance, --json, --out and --quiet of the numeric commands."""
+        p.add_argument("--tolerance", type=float, help=tolerance_help)
+        p.add_argument("--json", action="store_true", help="print JSON")
+        p.add_argument("--out", metavar="DIR", help=out_help)
+        p.add_argument("--quiet", action="store_true", help="no progress report")
+
     p = spec_command("check", "validate a spec file and summarise it", cmd_check)
     p.add_argument("--json", action="store_true", help="print JSON")
     p = spec_command("geometry", "curvature, stress-energy and energy conditions of each region", cmd_geometry)
@@ -425,35 +467,31 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--l", type=int, default=0, help="angular label (at the centre only l = 0 contributes)")
     p.add_argument("--omega", required=True, metavar="LIST|FROM:TO:COUNT", help="frequencies (spec time)")
     p.add_argument("--at", type=float, help="radius of the static point (0: the centre; else summed over l)")
-    p.add_argument("--tolerance", type=float, help="relative tolerance (default: [numerics] or 1e-10)")
-    p.add_argument("--json", action="store_true", help="print JSON")
-    p.add_argument("--out", metavar="DIR", help="write spectrum.csv and spectrum.png here")
-    p.add_argument("--quiet", action="store_true", help="no progress report")
+    numeric_options(p, "relative tolerance (default: [numerics] or 1e-10)", "write spectrum.csv and spectrum.png here")
 
     p = spec_command("two-point", "spectral two-point (Wightman) function between two static points, with errors",
                      cmd_two_point)
     p.add_argument("--omega", required=True, metavar="LIST|FROM:TO:COUNT", help="frequencies (spec time)")
     p.add_argument("--between", required=True, nargs=2, metavar="POINT",
                    help='the two points, e.g. "r = 1" "r = 2, theta = pi/3" (angles left out are zero)')
-    p.add_argument("--tolerance", type=float, help="tolerance relative to the scale (default: [numerics] or 1e-10)")
-    p.add_argument("--json", action="store_true", help="print JSON")
-    p.add_argument("--out", metavar="DIR", help="write two_point.csv and two_point.png here")
-    p.add_argument("--quiet", action="store_true", help="no progress report")
+    numeric_options(p, "tolerance relative to the scale (default: [numerics] or 1e-10)",
+                    "write two_point.csv and two_point.png here")
 
     p = spec_command("correlations", "several detectors ([[detectors]]): probabilities, every pair's joint state, "
                      "entanglement and signalling", cmd_correlations)
-    p.add_argument("--tolerance", type=float, help="relative tolerance (default: [numerics] or 1e-10)")
-    p.add_argument("--json", action="store_true", help="print JSON")
-    p.add_argument("--out", metavar="DIR", help="write correlations.csv, detectors.csv and correlations.png here")
-    p.add_argument("--quiet", action="store_true", help="no progress report")
+    numeric_options(p, "relative tolerance (default: [numerics] or 1e-10)",
+                    "write correlations.csv, detectors.csv and correlations.png here")
+
+    p = spec_command("design", "the local probe that tells the spacetime from its [compare] reference in the fewest "
+                     "runs, the trade-off against duration, and the quantum limit", cmd_design)
+    numeric_options(p, "relative tolerance (default: [numerics] or 1e-10)",
+                    "write design.csv (the trade-off) and design.png here")
 
     p = spec_command("response", "response of the static detector, comparison, locality and runs needed",
                      cmd_response)
     p.add_argument("--gaps", metavar="LIST", help="gaps Omega (detector's proper time), overriding the spec's")
-    p.add_argument("--tolerance", type=float, help="relative tolerance of the spectral density (default 1e-10)")
-    p.add_argument("--json", action="store_true", help="print JSON")
-    p.add_argument("--out", metavar="DIR", help="write response.csv and response.png here")
-    p.add_argument("--quiet", action="store_true", help="no progress report")
+    numeric_options(p, "relative tolerance of the spectral density (default 1e-10)",
+                    "write response.csv and response.png here")
 
     p = spec_command("run", "the whole job: derivation, kernels, spectrum, response, summary, provenance", cmd_run)
     p.add_argument("--out", required=True, metavar="DIR", help="folder to write (replaced atomically)")

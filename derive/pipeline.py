@@ -676,3 +676,156 @@ def _compared_pairs(detectors, pairs, reference) -> None:
         difference["abs_M"] = float(abs(complex(*pair["M"])) - abs(complex(*other["M"])))
         difference["abs_M_error"] = pair["error"]["M"] + other["error"]["M"]
         pair["difference_from_reference"] = difference
+
+
+DESIGN_CONVENTION = (
+    "runs: the number of independent runs (each one detector, switched once, then read) needed to tell the "
+    "spec's spacetime from the [compare] reference at `sigmas` standard deviations with the detector's coupling "
+    "lambda, counting excitations: N = z^2 (sqrt(P_A (1 - P_A)) + sqrt(P_B (1 - P_B)))^2 / (P_A - P_B)^2, "
+    "P = lambda^2 F; duration: the switching's effective duration (all but its tail of int chi^2), in the "
+    "detector's proper time; local: duration < locality x round_trip (the radial light round trip to the nearest "
+    "interface or reflecting boundary). quantum_limit: for the best probe, to second order in lambda, the "
+    "detector's reduced state after the switching for any initial qubit state; runs in the Fisher form "
+    "N = 4 z^2 / I per run along the straight path between the two states (counting: the classical I of "
+    "measuring |e><e|; best_measurement: the quantum (SLD) Fisher information, attained by measuring in its "
+    "eigenbasis, which no measurement on the runs can beat); chernoff: Q = min_s Tr rho_A^s rho_B^(1-s), its "
+    "exponent -ln Q (counting's classical exponent beside it), and the runs at which P_e <= Q^N/2 guarantees "
+    "an error probability Phi(-z) (sufficient, not a lower bound); the second-order shift is renormalised "
+    "against the same detector in the Minkowski vacuum")
+
+
+def _design_family(spacetime, detector):
+    """The searched family from [design] and the detector (exit 2 naming the key where it cannot be formed)."""
+    from derive.detector.design import Family
+    from derive.detector.switching import DEFAULT_TAIL
+    from derive.spec.model import DesignSpec
+
+    design = spacetime.design_settings or DesignSpec()
+    gaps = design.gaps
+    if gaps is None:
+        if len(set(detector.gaps)) < 2:
+            raise InputError("the gap range to search: give [design] gaps = [low, high] (or two or more "
+                             "[detector] gaps)", file=spacetime.path, key="design.gaps")
+        gaps = (min(detector.gaps), max(detector.gaps))
+    return Family(tuple(design.shapes), (float(gaps[0]), float(gaps[1])), design.locality, detector.coupling,
+                  detector.sigmas, float(detector.switching.get("tail", DEFAULT_TAIL)), design.shortest,
+                  design.longest, design.radii, design.positions)
+
+
+def _verified(problem, detector, reference, tolerance, radius, switching, gap, family, trip):
+    """A probe recomputed through the response's ordinary path (its own panels): the record reported."""
+    from derive.detector.design import describe, runs_of
+    from derive.detector.study import study
+
+    values = {"width": switching.width} if switching.shape == "gaussian" else {"duration": switching.support_length}
+    probe = replace(detector, radius=float(radius), shape=switching.shape,
+                    switching={**values, "tail": switching.tail})
+    answer = study(problem, probe, reference, tolerance, np.array([gap]))
+    F, e = float(answer["response"][0]), float(answer["error"][0])
+    R, eR = float(answer["reference"]["response"][0]), float(answer["reference"]["error"][0])
+    runs, runs_error, resolved = runs_of(F, e, R, eR, family.coupling, family.sigmas)
+    return {"gap": float(gap), "switching": describe(switching), "at": float(radius), "runs": runs,
+            "runs_error": runs_error, "duration": float(switching.duration), "round_trip": float(trip),
+            "local": bool(answer["locality"]["local"] and switching.duration < family.locality * trip),
+            "response": F, "error": e, "reference_response": R, "reference_error": eR, "resolved": resolved,
+            "ok": bool(answer["ok"]), "message": answer["message"]}
+
+
+def design(spacetime, tolerance: float | None = None, progress=None):
+    """The probe that tells the spec's spacetime from its [compare] reference in the fewest runs while staying
+    local, the trade-off of runs against the switching's duration, and the quantum limit (see
+    ``DESIGN_CONVENTION`` and derive.detector.design).
+
+    Returns a :class:`~derive.results.Design`: ``.best`` and ``.default`` (gap, switching, at, runs with their
+    error, duration, round_trip, local), ``.tradeoff`` (one row per duration), ``.quantum_limit``; the best and
+    default probes are recomputed through the ordinary response (their numbers are those of ``derive
+    response``)."""
+    from derive.codegen.problem import numeric_detector
+    from derive.detector.design import DESIGN_SHAPES, quantum_limit, search, tradeoff
+    from derive.detector.switching import UnsupportedSwitching, switching_from_spec
+    from derive.results import Design
+    from derive.solve.centre import Unsupported
+
+    if spacetime.detector is None or spacetime.detector.coordinate is None:
+        raise InputError("derive design searches for one detector: give [detector] with at, gaps and coupling",
+                         file=spacetime.path, key="detector")
+    if spacetime.compare is None:
+        raise InputError("derive design needs what to tell the spacetime from: give [compare] with = "
+                         "\"minkowski\" or another spec", file=spacetime.path, key="compare")
+    if spacetime.detector.coupling is None:
+        raise InputError("the runs need the coupling: give [detector] coupling = lambda", file=spacetime.path,
+                         key="detector.coupling")
+    detector = numeric_detector(spacetime)
+    problem = spacetime.numeric_problem
+    _check_radius(spacetime, problem, detector.radius, "detector.at")
+    family = _design_family(spacetime, detector)
+    if family.radii is not None:
+        for radius in family.radii:
+            _check_radius(spacetime, problem, radius, "design.radii")
+            if problem.regions[0].lower_kind == "horizon" and not radius > problem.regions[0].lower:
+                raise InputError(f"r = {radius:g} is not outside the horizon at r = {problem.regions[0].lower:g}",
+                                 file=spacetime.path, key="design.radii")
+    if detector.shape not in DESIGN_SHAPES:
+        raise InputError(f"the spec's switching {detector.shape!r} is the default probe, but design compares "
+                         f"shapes it can scale ({', '.join(DESIGN_SHAPES)})", file=spacetime.path,
+                         key="detector.switching.shape")
+    tolerance = tolerance_of(spacetime, tolerance)
+    detector, reference = _reference(spacetime, detector, None)
+    try:
+        found = search(problem, detector, reference, tolerance, family, progress)
+        site = found["site"]
+        best = _verified(problem, detector, reference, tolerance, site.radius, found["best"].switching,
+                         found["best"].gap, family, site.round_trip)
+        own = switching_from_spec({"shape": detector.shape}, detector.switching, detector.profile)
+        from derive.detector.response import round_trip
+        from derive.detector.study import _sqrt_f
+
+        own_trip = round_trip(problem, _sqrt_f(problem, detector.radius), detector.radius)
+        candidates = [_verified(problem, detector, reference, tolerance, detector.radius, own, gap, family,
+                                own_trip) for gap in sorted(set(detector.gaps))]
+        default = min(candidates, key=lambda c: c["runs"])
+        limit = quantum_limit(site, found["best"])
+        rows = tradeoff(site)
+    except (Unsupported, UnsupportedSwitching) as exc:
+        raise _unsupported(spacetime, "design a probe here", exc) from None
+    except InputError as exc:
+        raise exc.located(file=spacetime.path) from None
+    shortfalls = list(site.shortfalls)
+    for record in (best, default):
+        if not record.pop("ok"):
+            shortfalls.append((record["message"], 0.0))
+        record.pop("message")
+    if not best["resolved"]:
+        shortfalls.append(("the best probe's difference from the reference is not resolved (|F - F_ref| is not "
+                           "above twice its error): its runs are not a number derive stands behind", 0.0))
+    notes = []
+    lo, hi = family.gaps
+    if min(abs(best["gap"] - lo), abs(best["gap"] - hi)) <= 1e-6 * max(hi - lo, 1e-12):
+        notes.append(f"the best gap {best['gap']:.6g} lies at the edge of the range searched [{lo:g}, {hi:g}]: a "
+                     "wider [design] gaps may do better")
+    if best["duration"] >= site.longest * (1 - 1e-6):
+        notes.append("the best probe lasts as long as the search allows (the locality budget, or [design] "
+                     "longest): the difference grows with the time the detector has to feel the spacetime")
+    data = {"best": best, "default": default, "tradeoff": rows, "quantum_limit": limit, "notes": notes,
+            "search": {"shapes": list(family.shapes), "gaps": list(family.gaps),
+                       "durations": [site.shortest, site.longest], "locality": family.locality,
+                       "budget": site.budget, "radii": None if family.radii is None else list(family.radii),
+                       "sites": found["sites"], "evaluations": site.evaluations,
+                       "per_shape": {shape: e.record(site.round_trip) for shape, e in found["per_shape"].items()}},
+            "coupling": family.coupling, "sigmas": family.sigmas, "state": detector.state,
+            "compare": detector.compare_with, "tolerance": tolerance, "convention": DESIGN_CONVENTION}
+    message = "; ".join(m for m, _ in shortfalls)
+    return Design(_plain(data), spacetime, not shortfalls, message, tolerance)
+
+
+def _plain(value):
+    """numpy scalars and arrays as plain JSON numbers and lists."""
+    if isinstance(value, dict):
+        return {k: _plain(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_plain(v) for v in value]
+    if isinstance(value, np.ndarray):
+        return [_plain(v) for v in value.tolist()]
+    if isinstance(value, np.generic):
+        return value.item()
+    return value

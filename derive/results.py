@@ -197,3 +197,16 @@ class TwoPoint(Result):
         worst = float(np.nanmax(error / np.where(scale > 0, scale, np.inf))) if len(scale) else 0.0
         return (f"{len(data['omega'])} frequencies between {points} (cos angle {data['cos_angle']:.6g}), "
                 f"{data['state']} state, largest error / scale {worst:.1e}")
+
+
+class Design(Result):
+    """The probe that tells the spacetime from its reference fastest while local, the trade-off of runs against
+    the switching's duration, and the quantum limit."""
+
+    kind = "design"
+    _tables = ("design_table", "design_figure")
+
+    def _summary(self) -> str:
+        best, default = self._data["best"], self._data["default"]
+        return (f"best probe: gap {best['gap']:.4g}, {best['switching']['shape']} lasting "
+                f"{best['duration']:.4g}, {best['runs']:.3g} runs (default probe {default['runs']:.3g})")

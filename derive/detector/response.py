@@ -55,13 +55,17 @@ def _panels(upper: float, width: float, start: float = 0.0):
     nodes = ((a + b)[:, None] + (b - a)[:, None] * NODES[None, :]) / 2
     weights = ((b - a)[:, None] / 2) * WEIGHTS[None, :]
     coarse = np.empty_like(weights)
+    solved: dict = {}      # the pair's rule on [-1, 1] depends only on how the pair is split (equal halves mostly)
     for i in range(0, len(a), 2):
         lo, hi = a[i], b[i + 1]
-        t = (2 * nodes[i:i + 2].ravel() - (lo + hi)) / (hi - lo)
-        vander = np.polynomial.legendre.legvander(t, 2 * PANEL_NODES - 1).T
-        moments = np.zeros(2 * PANEL_NODES)
-        moments[0] = 2.0
-        coarse[i:i + 2] = (np.linalg.solve(vander, moments) * (hi - lo) / 2).reshape(2, PANEL_NODES)
+        split = round(float((b[i] - a[i]) / (hi - lo)), 12)
+        if split not in solved:
+            t = (2 * nodes[i:i + 2].ravel() - (lo + hi)) / (hi - lo)
+            vander = np.polynomial.legendre.legvander(t, 2 * PANEL_NODES - 1).T
+            moments = np.zeros(2 * PANEL_NODES)
+            moments[0] = 2.0
+            solved[split] = np.linalg.solve(vander, moments)
+        coarse[i:i + 2] = (solved[split] * (hi - lo) / 2).reshape(2, PANEL_NODES)
     # at the start the integrand may be non-analytic (sqrt(nu - mu) at a threshold): there a rule through the
     # same nodes would share the fine rule's error, so the first pair's coarse rule is Gauss-Legendre on the
     # pair itself (12 more nodes, weight 0 in the fine rule), whose error there is 2^(3/2) times the fine one's
@@ -123,19 +127,22 @@ def cutoff(gaps, switching: Switching, thermal: bool = False, threshold: float =
     return float(nu[index]), MARGIN * own[:, max(index - 1, 0)]
 
 
-def frequency_nodes(gaps, switching: Switching, thermal: bool = False, threshold: float = 0.0, upper=None):
+def frequency_nodes(gaps, switching: Switching, thermal: bool = False, threshold: float = 0.0, upper=None,
+                    panel: float | None = None):
     """The proper frequencies nu > threshold at which the density is needed, with the fine and coarse weights of
     the frequency integral (:func:`_panels`), up to ``upper`` (default: the switching's reach beyond the largest
     -Omega).  A thermal state also needs its negative-frequency part, weighted by |chi_hat(Omega - nu)|^2, up to
-    the largest gap."""
+    the largest gap.  ``panel``: a panel width below the switching's own (several switchings then share their
+    nodes: derive.detector.design); never above it."""
     if upper is None:
         upper = cutoff(gaps, switching, thermal, threshold)[0]
-    return _panels(upper, switching.panel_width, threshold)
+    width = switching.panel_width if panel is None else min(panel, switching.panel_width)
+    return _panels(upper, width, threshold)
 
 
 def response(gaps, switching: Switching, density_at, thermal: bool = False, threshold: float = 0.0,
              dimension: int = 4, tolerance: float | None = None, temperature: float | None = None,
-             vacuum_part_only: bool = False) -> Response:
+             vacuum_part_only: bool = False, panel: float | None = None) -> Response:
     """F(Omega) for every gap.
 
     Parameters
@@ -144,11 +151,14 @@ def response(gaps, switching: Switching, density_at, thermal: bool = False, thre
     switching : Switching (its |chi_hat(k)|^2)
     density_at : callable(nu array, nu > 0) -> (S(nu), error) per unit proper frequency, or, for a thermal
         state (``thermal=True``), (S(nu), error, S(-nu), error of S(-nu))
+    panel : float, optional
+        A panel width below the switching's own, so that several switchings share their frequency nodes
+        (:func:`frequency_nodes`).
     """
     gaps = np.asarray(gaps, dtype=float)
     upper, cut_tail = cutoff(gaps, switching, thermal, threshold, tolerance, dimension, temperature,
                              vacuum_part_only)
-    nu, w_f, w_c = frequency_nodes(gaps, switching, thermal, threshold, upper)
+    nu, w_f, w_c = frequency_nodes(gaps, switching, thermal, threshold, upper, panel)
     parts = density_at(nu)
     F_c = F_f = density_error = size = mass = 0.0
     for sign, S, S_err in ((1.0, parts[0], parts[1]),) + (((-1.0, parts[2], parts[3]),) if thermal else ()):

@@ -176,10 +176,13 @@ def cosmological_temperature(problem, sqrt_f0: float) -> float | None:
 
 
 def detector_response(problem, detector, tolerance: float = 1e-10, gaps=None, state=None, progress=None,
-                      shortfalls=None):
-    """F(Omega) with errors for a static detector (see module docstring)."""
+                      shortfalls=None, switching=None, panel=None, memo=None):
+    """F(Omega) with errors for a static detector (see module docstring).  ``switching`` (a Switching) replaces
+    the detector's; ``panel`` and ``memo`` let several switchings share the frequency nodes and the density
+    computed there (derive.detector.design: ``memo.wrap(density_at)`` returns the density on those nodes)."""
     state = detector.state if state is None else state
-    switching = switching_from_spec({"shape": detector.shape}, detector.switching, detector.profile)
+    if switching is None:
+        switching = switching_from_spec({"shape": detector.shape}, detector.switching, detector.profile)
     D = problem.dimension
     if switching.decay is not None and switching.decay <= D - 2:
         raise Divergent(f"|chi_hat|^2 of this switching falls only like k^-{switching.decay} (a jump in chi or "
@@ -212,15 +215,43 @@ def detector_response(problem, detector, tolerance: float = 1e-10, gaps=None, st
                           "field a mass or a curvature coupling (conformal, for example); derive spectrum gives the "
                           "density at any omega > 0")
     density_at, sqrt_f0, thermal = proper_density(problem, tolerance, detector.radius, state, progress, shortfalls)
-    from derive.solve.centre import continuum_threshold
-
-    threshold = 0.0 if has_horizon(problem) else continuum_threshold(problem) / sqrt_f0
+    if memo is not None:
+        density_at = memo.wrap(density_at)
+    threshold = frequency_threshold(problem, sqrt_f0)
     # the frequency cut-off follows the hottest bath the detector sees (both horizons' in Schwarzschild-de Sitter)
     temperatures = [t for t in (local_temperature(problem, sqrt_f0), cosmological_temperature(problem, sqrt_f0))
                     if t is not None]
     temperature = max(temperatures) if temperatures else None
     return (response(gaps, switching, density_at, thermal, threshold, D, tolerance, temperature,
-                     vacuum_part_only=state == "boulware"), switching, sqrt_f0)
+                     vacuum_part_only=state == "boulware", panel=panel), switching, sqrt_f0)
+
+
+def frequency_threshold(problem, sqrt_f0: float) -> float:
+    """The lowest proper frequency of the continuum the response integrates over: the mass (over the clock rate)
+    without a horizon, zero with one."""
+    from derive.solve.centre import continuum_threshold
+
+    return 0.0 if has_horizon(problem) else continuum_threshold(problem) / sqrt_f0
+
+
+def reference_response(problem, detector, reference_problem, tolerance, gaps, switching, shortfalls=None,
+                       panel=None, memo=None):
+    """(F, error) of the reference ``detector.compare_with`` at the same gaps and switching: Minkowski (the closed
+    form for a Gaussian switching, massless, 3+1; else the same quadrature with the exact flat density) or
+    another problem's detector at the same position."""
+    gaps = np.asarray(gaps, dtype=float)
+    if detector.compare_with == "minkowski":
+        mu = problem.mass
+        if switching.shape == "gaussian" and mu == 0.0 and problem.dimension == 4:
+            ref = minkowski_gaussian_response(gaps, switching.width)
+            return ref, 1e-15 * np.abs(ref)
+        # the same quadrature with the exact flat density (docs/conventions.md section 7)
+        flat = response(gaps, switching, flat_density(problem.dimension, mu), threshold=mu,
+                        dimension=problem.dimension, panel=panel)
+        return flat.response, flat.error
+    reference, _, _ = detector_response(reference_problem, detector, tolerance, gaps, shortfalls=shortfalls,
+                                        switching=switching, panel=panel, memo=memo)
+    return reference.response, reference.error
 
 
 def study(problem, detector, reference_problem=None, tolerance: float = 1e-10, gaps=None, progress=None) -> dict:
@@ -254,19 +285,8 @@ def study(problem, detector, reference_problem=None, tolerance: float = 1e-10, g
         out["local_cosmological_temperature"] = cosmological_temperature(problem, sqrt_f0)
     with_ = detector.compare_with
     if with_ is not None:
-        if with_ == "minkowski":
-            mu = problem.mass
-            if switching.shape == "gaussian" and mu == 0.0 and problem.dimension == 4:
-                ref = minkowski_gaussian_response(gaps, switching.width)
-                ref_err = 1e-15 * np.abs(ref)
-            else:   # the same quadrature with the exact flat density (docs/conventions.md section 7)
-                flat = response(gaps, switching, flat_density(problem.dimension, mu), threshold=mu,
-                                dimension=problem.dimension)
-                ref, ref_err = flat.response, flat.error
-        else:
-            reference, _, _ = detector_response(reference_problem, detector, tolerance, gaps,
-                                                shortfalls=shortfalls)
-            ref, ref_err = reference.response, reference.error
+        ref, ref_err = reference_response(problem, detector, reference_problem, tolerance, gaps, switching,
+                                          shortfalls)
         difference = (ours.response - ref) / ref
         difference_error = ours.error / np.abs(ref) + np.abs(ours.response) * ref_err / ref ** 2
         out["reference"] = {"with": with_, "response": ref, "error": ref_err}

@@ -298,6 +298,62 @@ def write_correlations_files(out: str, data: dict, title: str, pdf: bool = False
     return paths
 
 
+def design_table(data: dict) -> tuple[list[str], list[list]]:
+    """The trade-off curve: for each duration the best probe over the gap and the shapes."""
+    rows = data["tradeoff"]
+    header = ["duration", "runs", "runs_error", "gap", "shape", "width_or_duration", "local", "resolved"]
+    columns = [[r["duration"] for r in rows], [r["runs"] for r in rows], [r["runs_error"] for r in rows],
+               [r["gap"] for r in rows], [r["shape"] for r in rows],
+               [r["switching"].get("width", r["switching"].get("duration")) for r in rows],
+               [r["local"] for r in rows], [r["resolved"] for r in rows]]
+    return header, columns
+
+
+def design_figure(data: dict, title: str):
+    """Runs against the switching's duration: the best probe at each duration (filled where local), the locality
+    budget, the best and default probes and the quantum limit."""
+    plt = _pyplot()
+    figure, axis = plt.subplots(figsize=(6.6, 4.4))
+    rows = data["tradeoff"]
+    for local, style, label in ((True, "o-", "best probe at each duration (local)"),
+                                (False, "o--", "past the locality budget")):
+        chosen = [r for r in rows if r["local"] == local]
+        if chosen:
+            axis.errorbar([r["duration"] for r in chosen], [r["runs"] for r in chosen],
+                          yerr=[r["runs_error"] for r in chosen], fmt=style, capsize=2, label=label,
+                          mfc=None if local else "none", color="C0")
+    budget = data["search"]["budget"]
+    axis.axvline(budget, color="0.4", lw=1, ls=":", label=f"locality budget {budget:.3g}")
+    best, default = data["best"], data["default"]
+    axis.plot([best["duration"]], [best["runs"]], "*", ms=13, color="C3",
+              label=f"best: gap {best['gap']:.3g}, {best['switching']['shape']}, {best['runs']:.2g} runs")
+    axis.plot([default["duration"]], [default["runs"]], "s", ms=7, color="C2",
+              label=f"spec's probe: gap {default['gap']:.3g}, {default['runs']:.2g} runs")
+    limit = data.get("quantum_limit") or {}
+    if "runs" in limit:
+        axis.plot([limit["switching"]["effective_duration"]], [limit["runs"]], "v", ms=8, color="C1",
+                  mfc="none", label=f"quantum limit: {limit['runs']:.2g} runs")
+    axis.set_xscale("log")
+    axis.set_yscale("log")
+    axis.set_xlabel("switching duration (detector's proper time)")
+    axis.set_ylabel(f"runs to tell apart at {data['sigmas']:g} sigma")
+    axis.set_title(f"{title}: against {data['compare']}, coupling {data['coupling']:g}", fontsize=9)
+    axis.legend(fontsize=7, loc="best")
+    figure.tight_layout()
+    return figure
+
+
+def write_design_files(out: str, data: dict, title: str, pdf: bool = False) -> list[str]:
+    paths = _write_table_and_figure(out, "design", design_table(data), design_figure(data, title), pdf)
+    sites = data["search"]["sites"]
+    if len(sites) > 1:
+        path = os.path.join(out, "sites.csv")
+        write_atomic(path, _csv(["at", "runs", "round_trip"], [(s["at"], s["runs"], s["round_trip"])
+                                                                for s in sites]))
+        paths.append(path)
+    return paths
+
+
 # -- files ---------------------------------------------------------------------------------------------------
 def _write_table_and_figure(out, stem, table, figure, pdf) -> list[str]:
     header, columns = table

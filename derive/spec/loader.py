@@ -20,15 +20,15 @@ import sympy as sp
 from derive.errors import ExpressionError, InputError, SpecError
 from derive.spec.expressions import ExpressionParser, is_identifier, substitute_bounded
 from derive.spec.line_element import differential_name, metric_from_line_element
-from derive.spec.model import (ArrayDetectorSpec, CompareSpec, DetectorSpec, Domain, FieldSpec, Interface,
-                               Parameter, Region, Spacetime)
+from derive.spec.model import (ArrayDetectorSpec, CompareSpec, DesignSpec, DetectorSpec, Domain, FieldSpec,
+                               Interface, Parameter, Region, Spacetime)
 
 MAX_SPEC_BYTES = 1_000_000
 MAX_NESTING = 8              # tables and arrays inside each other (format 1 needs 4)
 MAX_MAGNITUDE = 1e12         # largest |value| of a parameter, a gap or any other number a spec gives
 ASSUMPTIONS = ("positive", "nonnegative", "negative", "nonpositive", "real", "integer", "nonzero")
 TOP_KEYS = ("format", "title", "parameters", "coordinates", "definitions", "functions", "region",
-            "interface", "field", "detector", "detectors", "compare", "numerics")
+            "interface", "field", "detector", "detectors", "compare", "numerics", "design")
 REGION_KEYS = ("name", "where", "line_element", "metric", "unknowns")
 INTERFACE_KEYS = ("between", "at")
 FIELD_KEYS = ("mass", "coupling", "boundary")
@@ -38,6 +38,8 @@ ARRAY_KEYS = ("name", "at", "gap", "switching")      # each [[detectors]] entry
 MAX_DETECTORS = 64
 COMPARE_KEYS = ("with", "sigmas")
 NUMERICS_KEYS = ("tolerance",)
+DESIGN_KEYS = ("gaps", "shapes", "locality", "shortest", "longest", "radii", "positions")
+DESIGN_SHAPES = ("gaussian", "bump", "cos2", "sin4")   # the shapes derive design can scale to a duration
 CHOSEN_BY_DERIVE = ("l_max", "omega_max", "outer_radius")   # read by no solver: refused with the reason
 SWITCHING_SHAPES = ("gaussian", "sharp", "bump", "cos2", "sin4", "expression")
 SHAPE_KEYS = {"gaussian": ("width",), "sharp": ("duration",), "bump": ("duration",), "cos2": ("duration", "ramp"),
@@ -411,6 +413,7 @@ def from_mapping(data: Mapping[str, Any], path: str = "<spec>", overrides: Mappi
             reader.fail(f"expected a positive number of standard deviations (at most 100), got {sigmas}",
                         "compare.sigmas")
         compare = CompareSpec(with_, sigmas)
+    design = _design(reader, data.get("design"))
     numerics = {}
     if "numerics" in data:
         for k in data["numerics"] if isinstance(data["numerics"], Mapping) else ():
@@ -433,7 +436,7 @@ def from_mapping(data: Mapping[str, Any], path: str = "<spec>", overrides: Mappi
     spacetime = Spacetime(path=path, title=title, source_hash=digest.hexdigest(), parameters=parameters,
                           coordinates=coordinates, definitions=definitions, functions=functions, regions=regions,
                           interfaces=tuple(interfaces), field=field, detector=detector, compare=compare,
-                          numerics=numerics, detectors=detectors)
+                          numerics=numerics, detectors=detectors, design_settings=design)
     if detectors:
         from derive.spec.positions import parse_position
 
@@ -743,6 +746,60 @@ def _detectors(reader, parser, entries, definitions):
                                definitions, f"{key}.switching", extra=("centre",))
         out.append(ArrayDetectorSpec(name, at, gap, switching))
     return tuple(out)
+
+
+def _design(reader, table):
+    """[design]: the probe search (derive design); every key optional."""
+    if table is None:
+        return None
+    reader.check_keys(table, DESIGN_KEYS, "design")
+
+    def pair(key, positive=False):
+        value = table.get(key)
+        if value is None:
+            return None
+        if not (isinstance(value, list) and len(value) == 2):
+            reader.fail("expected two numbers [low, high]", f"design.{key}")
+        low, high = (reader.number(v, f"design.{key}") for v in value)
+        if not (math.isfinite(low) and math.isfinite(high) and low < high):
+            reader.fail(f"expected finite numbers with low < high, got [{low:g}, {high:g}]", f"design.{key}")
+        if max(abs(low), abs(high)) > MAX_MAGNITUDE:
+            reader.fail(f"expected numbers of magnitude at most {MAX_MAGNITUDE:g}", f"design.{key}")
+        if positive and low < 0:
+            reader.fail(f"expected radii >= 0, got [{low:g}, {high:g}]", f"design.{key}")
+        return (low, high)
+
+    def positive(key):
+        if key not in table:
+            return None
+        value = reader.number(table[key], f"design.{key}")
+        if not (math.isfinite(value) and 0 < value <= MAX_MAGNITUDE):
+            reader.fail(f"expected a positive number, got {value:g}", f"design.{key}")
+        return value
+
+    shapes = table.get("shapes", ["gaussian"])
+    if not (isinstance(shapes, list) and shapes and all(isinstance(s, str) for s in shapes)):
+        reader.fail(f"expected a list of switching shapes (from {', '.join(DESIGN_SHAPES)})", "design.shapes")
+    for shape in shapes:
+        if shape not in DESIGN_SHAPES:
+            close = suggest(shape, DESIGN_SHAPES)
+            hint = f"; did you mean '{close}'?" if close else ""
+            reader.fail(f"{shape!r} cannot be searched{hint}: the shapes scaled to a duration are "
+                        f"{', '.join(DESIGN_SHAPES)} (a sharp switching diverges in 3+1; an expression has no "
+                        "duration to vary)", "design.shapes")
+    locality = table.get("locality", 1.0)
+    locality = reader.number(locality, "design.locality")
+    if not (0 < locality <= 1):
+        reader.fail(f"expected the share of the light round trip the switching may last, in (0, 1], got "
+                    f"{locality:g}", "design.locality")
+    shortest, longest = positive("shortest"), positive("longest")
+    if shortest is not None and longest is not None and shortest > longest:
+        reader.fail(f"shortest ({shortest:g}) is longer than longest ({longest:g})", "design.shortest")
+    positions = table.get("positions", 5)
+    if isinstance(positions, bool) or not isinstance(positions, int) or not 2 <= positions <= 50:
+        reader.fail(f"expected a whole number of positions from 2 to 50, got {positions!r}", "design.positions")
+    return DesignSpec(pair("gaps"), tuple(dict.fromkeys(shapes)), locality, shortest, longest,
+                      pair("radii", positive=True), positions)
 
 
 def _detector(reader, parser, table, coordinates, definitions):

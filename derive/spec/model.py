@@ -114,6 +114,20 @@ class CompareSpec:
 
 
 @dataclass(frozen=True)
+class DesignSpec:
+    """[design]: what derive design searches (every key optional; None means "from the detector and the
+    locality budget")."""
+
+    gaps: tuple[float, float] | None = None
+    shapes: tuple[str, ...] = ("gaussian",)
+    locality: float = 1.0
+    shortest: float | None = None
+    longest: float | None = None
+    radii: tuple[float, float] | None = None
+    positions: int = 5
+
+
+@dataclass(frozen=True)
 class Spacetime:
     """Everything a spec file says, parsed and validated."""
 
@@ -131,6 +145,7 @@ class Spacetime:
     compare: CompareSpec | None = None
     numerics: Mapping[str, float] = dataclass_field(default_factory=dict)
     detectors: tuple = ()      # [[detectors]]: ArrayDetectorSpec entries, for correlations
+    design_settings: DesignSpec | None = None   # [design]: the probe search of derive design
 
     @property
     def dimension(self) -> int:
@@ -204,6 +219,13 @@ class Spacetime:
         from derive.pipeline import correlations
 
         return correlations(self, tolerance, progress)
+
+    def design(self, tolerance: float | None = None, progress=None):
+        """The local probe that tells this spacetime from its [compare] reference in the fewest runs, the
+        trade-off against the switching's duration, and the quantum limit: see :func:`derive.pipeline.design`."""
+        from derive.pipeline import design
+
+        return design(self, tolerance, progress)
 
     def response(self, gaps=None, tolerance: float | None = None, switching: dict | None = None, compare=None,
                  progress=None):
