@@ -223,3 +223,24 @@ def test_harvesting_shell_example(capsys):
     reference = light["reference"]["pairs"][0]
     assert pair["concurrence"] == pytest.approx(reference["concurrence"], rel=1e-7)
     assert complex(*pair["M"]) == pytest.approx(complex(*reference["M"]), rel=1e-7)
+
+
+@pytest.mark.slow
+def test_probe_design_example(capsys):
+    # The best probe must be local, no worse than every local probe of the trade-off and than the spec's own
+    # (whose runs are derive response's: checked against the closed-form Minkowski reference elsewhere); the
+    # quantum runs never above counting's and equal for the ground state (Braunstein & Caves 1994).  The runs
+    # themselves are derive's own (regression).
+    assert main(["design", spec("probe_design"), "--json", "--quiet"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    best, default = data["best"], data["default"]
+    assert best["local"] and best["duration"] < best["round_trip"]
+    assert best["runs"] <= default["runs"]
+    assert best["runs"] <= min(r["runs"] for r in data["tradeoff"] if r["local"]) * (1 + 1e-6)
+    limit = data["quantum_limit"]
+    assert limit["runs"] <= limit["counting"]["runs"] * (1 + 1e-9)
+    ground = limit["ground_state"]
+    assert ground["best_measurement"]["runs"] == pytest.approx(ground["counting"]["runs"], rel=1e-9)
+    assert best["switching"]["shape"] == "sin4"                                       # regression
+    assert best["runs"] == pytest.approx(6.7090e9, rel=1e-3)                          # regression
+    assert default["runs"] == pytest.approx(1.0217e12, rel=1e-3)                      # regression

@@ -313,7 +313,10 @@ class Site:
         longest = family.longest if family.longest is not None else budget * (1 - 1e-9)
         self.budget = budget if np.isfinite(budget) else longest
         self.longest = min(longest, budget * (1 - 1e-9)) if np.isfinite(budget) else longest
-        self.shortest = family.shortest if family.shortest is not None else self.longest / 8
+        # searching positions, each site computes its density off the centre (an l-sum per frequency): the
+        # shortest duration, which sets the highest frequency, is kept at half the longest unless given
+        default = self.longest / (2 if family.radii is not None else 8)
+        self.shortest = family.shortest if family.shortest is not None else default
         self.shortest = min(self.shortest, self.longest)
         # the trade-off runs to twice the budget: the panel width must serve the longest switching there
         self.top = 2 * self.longest
@@ -433,7 +436,7 @@ def tradeoff(site: Site) -> list[dict]:
     lo, hi = site.family.gaps
     rows = []
     for duration in np.geomspace(site.shortest, site.top, TRADEOFF_POINTS):
-        best = None
+        best, shapes = None, {}
         for shape in site.family.shapes:
             record = [site.evaluate(shape, g, duration) for g in np.linspace(lo, hi, GAP_GRID)]
             start = _fewest(record).gap
@@ -443,11 +446,12 @@ def tradeoff(site: Site) -> list[dict]:
                 minimize_scalar(lambda g, s=shape, d=duration, r=record: _log_runs(site.evaluate(s, g, d), r),
                                 bounds=(a, b), method="bounded", options={"xatol": 1e-4 * (hi - lo)})
             candidate = _fewest(record)
+            shapes[shape] = {"runs": candidate.runs, "runs_error": candidate.runs_error, "gap": candidate.gap}
             if best is None or candidate.runs < best.runs:
                 best = candidate
         rows.append({"duration": float(best.duration), "runs": best.runs, "runs_error": best.runs_error,
                      "gap": best.gap, "shape": best.shape, "switching": describe(best.switching),
-                     "local": best.local, "resolved": best.resolved})
+                     "local": best.local, "resolved": best.resolved, "per_shape": shapes})
     return rows
 
 

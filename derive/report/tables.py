@@ -322,6 +322,11 @@ def design_figure(data: dict, title: str):
             axis.errorbar([r["duration"] for r in chosen], [r["runs"] for r in chosen],
                           yerr=[r["runs_error"] for r in chosen], fmt=style, capsize=2, label=label,
                           mfc=None if local else "none", color="C0")
+    shapes = data["search"]["shapes"]
+    if len(shapes) > 1:          # each shape's own best at every duration, faintly
+        for k, shape in enumerate(shapes):
+            axis.plot([r["duration"] for r in rows], [r["per_shape"][shape]["runs"] for r in rows], ":",
+                      lw=1.2, color=("C4", "C8", "C9", "C5")[k % 4], label=f"{shape} only")
     budget = data["search"]["budget"]
     axis.axvline(budget, color="0.4", lw=1, ls=":", label=f"locality budget {budget:.3g}")
     best, default = data["best"], data["default"]
@@ -335,6 +340,11 @@ def design_figure(data: dict, title: str):
                   mfc="none", label=f"quantum limit: {limit['runs']:.2g} runs")
     axis.set_xscale("log")
     axis.set_yscale("log")
+    from matplotlib.ticker import LogLocator, NullFormatter, ScalarFormatter
+
+    axis.xaxis.set_major_locator(LogLocator(subs=(1.0, 2.0, 5.0)))
+    axis.xaxis.set_major_formatter(ScalarFormatter())
+    axis.xaxis.set_minor_formatter(NullFormatter())
     axis.set_xlabel("switching duration (detector's proper time)")
     axis.set_ylabel(f"runs to tell apart at {data['sigmas']:g} sigma")
     axis.set_title(f"{title}: against {data['compare']}, coupling {data['coupling']:g}", fontsize=9)
