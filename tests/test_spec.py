@@ -76,6 +76,7 @@ def test_set_overrides_a_parameter(write_spec):
     (("dr**2/(1 - 2*M/r)", "dr**3"), "region[0].line_element", "not quadratic"),
     (("dr**2/(1 - 2*M/r)", "sqrt(dr)"), "region[0].line_element", "not a polynomial"),
     (("2*M/r", "2*Mass/r"), "region[0].line_element", "undeclared name 'Mass'"),
+    (("2*M/r", "2*Mass/r"), "region[0].line_element", 'unknowns = ["Mass"]'),
     (("2*M/r)*dt", "__import__('os'))*dt"), "region[0].line_element", "underscore"),
     (('M = { value = 1.0, positive = true }', 'M = { value = -1.0, positive = true }'),
      "parameters.M.value", "contradicts"),

@@ -32,6 +32,11 @@ def spec_json(spacetime) -> dict:
                        "switching": {k: str(v) for k, v in d.switching.items()}} for d in spacetime.detectors],
         "compare": None if spacetime.compare is None else {"with": spacetime.compare.with_,
                                                            "sigmas": spacetime.compare.sigmas},
+        "design": None if spacetime.design_settings is None else {
+            "shapes": list(spacetime.design_settings.shapes),
+            "gaps": None if spacetime.design_settings.gaps is None else list(spacetime.design_settings.gaps),
+            "locality": spacetime.design_settings.locality,
+            "radii": None if spacetime.design_settings.radii is None else list(spacetime.design_settings.radii)},
         "source_hash": spacetime.source_hash,
     }
 
@@ -64,6 +69,11 @@ def spec_summary(spacetime) -> str:
                      "switching")
     if info["compare"]:
         lines.append(f"  compare:     with {info['compare']['with']}")
+    if info["design"]:
+        d = info["design"]
+        lines.append(f"  design:      {', '.join(d['shapes'])} switchings, locality {d['locality']:g} of the round trip"
+                     + (f", gaps in [{d['gaps'][0]:g}, {d['gaps'][1]:g}]" if d["gaps"] else "")
+                     + (f", radii in [{d['radii'][0]:g}, {d['radii'][1]:g}]" if d["radii"] else ""))
     return "\n".join(lines)
 
 

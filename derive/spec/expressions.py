@@ -83,10 +83,14 @@ class ExpressionParser:
     functions : mapping of str to callable
         Extra functions the text may call (for example undefined functions ``f(r)`` a spec declares).
         Each is called with sympy arguments.
+    where : str
+        Where else an undeclared name may be declared in this context (added to the message, ``{name}``
+        replaced by the name), e.g. a region's ``unknowns``.
     """
 
     symbols: Mapping[str, sp.Expr] = field(default_factory=dict)
     functions: Mapping[str, Callable] = field(default_factory=dict)
+    where: str = ""
 
     # -- public entry points -------------------------------------------------------------------------
     def parse(self, text: str) -> sp.Expr:
@@ -217,7 +221,7 @@ class ExpressionParser:
             if ident in FUNCTIONS or ident in self.parser.functions:
                 self.fail(f"'{ident}' is a function; call it with an argument", node)
             self.fail(f"undeclared name '{ident}' (declare it under [parameters], [coordinates], "
-                      "[definitions] or [functions])", node)
+                      f"[definitions] or [functions]{self.parser.where.replace('{name}', ident)})", node)
 
         def binary(self, node: ast.BinOp, depth: int):
             op = _BINARY.get(type(node.op))

@@ -36,6 +36,8 @@ BOUNDARIES = ("dirichlet", "neumann", "transparent")
 DETECTOR_KEYS = ("at", "switching", "gaps", "state", "coupling")
 ARRAY_KEYS = ("name", "at", "gap", "switching")      # each [[detectors]] entry
 MAX_DETECTORS = 64
+UNKNOWNS_HINT = ("; or, if a junction condition fixes it, list it in this region's unknowns, "
+                 "unknowns = [\"{name}\"]")
 COMPARE_KEYS = ("with", "sigmas")
 NUMERICS_KEYS = ("tolerance",)
 DESIGN_KEYS = ("gaps", "shapes", "locality", "shortest", "longest", "radii", "positions")
@@ -337,7 +339,8 @@ def from_mapping(data: Mapping[str, Any], path: str = "<spec>", overrides: Mappi
                 differentials.append(sp.Symbol(dname))
             le_symbols = dict(local)
             le_symbols.update({d.name: d for d in differentials})
-            expr = reader.expression(ExpressionParser(le_symbols, functions), le_text, f"{key}.line_element")
+            expr = reader.expression(ExpressionParser(le_symbols, functions, UNKNOWNS_HINT), le_text,
+                                     f"{key}.line_element")
             try:
                 display = metric_from_line_element(expr, coordinates, differentials, le_text)
             except ExpressionError as exc:
@@ -348,7 +351,7 @@ def from_mapping(data: Mapping[str, Any], path: str = "<spec>", overrides: Mappi
             if not isinstance(rows, list) or len(rows) != n or any(not isinstance(r, list) or len(r) != n
                                                                      for r in rows):
                 reader.fail(f"expected a {n}x{n} list of lists of expressions", f"{key}.metric")
-            region_parser = ExpressionParser(local, functions)
+            region_parser = ExpressionParser(local, functions, UNKNOWNS_HINT)
             display = sp.Matrix(n, n, lambda a, b: reader.expression(region_parser, rows[a][b],  # noqa: B023
                                                                        f"{key}.metric[{a}][{b}]"))  # noqa: B023
             if display != display.T:
