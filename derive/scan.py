@@ -225,6 +225,23 @@ def _cell(value):
     return value
 
 
+def _legend(key: str) -> str:
+    """A readable legend entry for a scan.csv column: reldiff[-8] -> "gap -8", F[2] -> "F at gap 2"."""
+    if key.startswith("reldiff[") and key.endswith("]"):
+        return f"gap {key[8:-1]}"
+    if key.startswith("F[") and key.endswith("]"):
+        return f"F at gap {key[2:-1]}"
+    return key.replace("_", " ")
+
+
+def _axis_label(keys) -> str:
+    if keys and keys[0].startswith("reldiff["):
+        return "relative difference from the reference\n(F - F_ref)/F_ref"
+    if keys and keys[0].startswith("F["):
+        return "response F (P = lambda^2 F)"
+    return "shell surface energy density and pressure"
+
+
 def _write_plot(out, vary, points, points_dir):
     import matplotlib
 
@@ -239,15 +256,18 @@ def _write_plot(out, vary, points, points_dir):
     keys = [k for k in keys if k.startswith("reldiff[")] or keys
     if not keys:
         keys = [k for k in rows[0]["result"] if k.endswith(("_sigma", "_pressure"))]
-    figure, axis = plt.subplots(figsize=(6.4, 4.0))
+    figure, axis = plt.subplots(figsize=(7.2, 4.4))
     x = [row["parameters"][name] for row in rows]
-    for key in keys[:6]:
+    for index, key in enumerate(keys):       # every gap (the colours cycle; the legend sits outside)
         y = [row["result"].get(key) for row in rows]
         e = [row["result"].get(key + "_error") or 0.0 for row in rows]
         if all(v is not None for v in y):
-            axis.errorbar(x, y, yerr=e, fmt="o-", ms=3, label=key)
-    axis.set_xlabel(name)
-    axis.legend(fontsize=7)
-    axis.set_title("derive scan", fontsize=10)
+            axis.errorbar(x, y, yerr=e, fmt="o", ms=3, label=_legend(key), color=f"C{index % 10}",
+                          ls="-" if index < 10 else "--")
+    axis.set_xlabel(f"parameter {name}")
+    axis.set_ylabel(_axis_label(keys))
+    axis.legend(fontsize=7, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)
+    axis.set_title(f"derive scan over {name}: {len(rows)} points (error bars: derive's estimates)", fontsize=9)
+    figure.tight_layout()
     write_atomic(os.path.join(out, "scan.png"), _png(figure))
     plt.close(figure)

@@ -163,7 +163,26 @@ def response_figure(data: dict, title: str):
     axes[-1].set_xlabel(r"gap $\Omega$ (detector's proper time; $G=c=\hbar=1$)")
     axes[0].set_title(f"{title}: static detector, {data['switching']['shape']} switching, "
                       f"{data['state']} state", fontsize=9)
+    axes[0].text(0.98, 0.97, _response_box(data), transform=axes[0].transAxes, ha="right", va="top", fontsize=7,
+                 bbox={"boxstyle": "round", "facecolor": "white", "alpha": 0.85, "edgecolor": "0.7"})
+    figure.tight_layout()
     return figure
+
+
+def _response_box(data: dict) -> str:
+    """Where the detector is, how it is switched, whether that is local, and how large the error bars are (at
+    this accuracy they are far below the markers)."""
+    import numpy as np
+
+    s, loc = data["switching"], data["locality"]
+    size = f"width {s['width']:g}" if s["shape"] == "gaussian" else f"support {s['support'][1] - s['support'][0]:g}"
+    F = np.asarray([v for v in data["response"] if v is not None], dtype=float)
+    e = np.asarray([v for v in data["error"] if v is not None], dtype=float)
+    worst = float(np.max(e / np.abs(F))) if len(F) and np.all(F != 0) else float("nan")
+    verdict = "local" if loc["local"] else "NOT local"
+    return (f"detector at r = {data['at']:g}\n{s['shape']} switching, {size}\n"
+            f"lasts {loc['duration']:.4g}; light round trip {loc['round_trip']:.4g}: {verdict}\n"
+            f"errors up to {worst:.0e} of F (bars below the markers)")
 
 
 def scattering_figure(data: dict, title: str):
