@@ -83,3 +83,5 @@ def test_demo_end_to_end(tmp_path, capsys):
     text = capsys.readouterr().out
     assert "In plain words" in text and "runs" in text
     assert (tmp_path / "demo" / "response.csv").is_file()
+    rows = (tmp_path / "demo" / "comparisons.csv").read_text().splitlines()
+    assert rows[0].startswith("switching_width,local,gap,F,F_error") and len(rows) == 1 + 2 * 7
