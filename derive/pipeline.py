@@ -292,7 +292,8 @@ def _two_point_parts(problem, omegas, r1, r2, c, tolerance, progress=None):
     if temperature is not None:   # the static vacuum, and the Bunch-Davies state built on it
         default = "static vacuum"
         extra["cosmological_temperature"] = temperature
-        n = 1.0 / np.expm1(np.asarray(omegas, dtype=float) / temperature)
+        with np.errstate(over="ignore"):      # far above the temperature the occupation is 0
+            n = 1.0 / np.expm1(np.asarray(omegas, dtype=float) / temperature)
         value, error = np.asarray(result.value), np.asarray(result.error)
         states["bunch-davies"] = ((1 + n) * value, (1 + n) * error, n * np.conj(value), n * error)
     return result, states, default, extra
@@ -707,9 +708,26 @@ def _design_family(spacetime, detector):
             raise InputError("the gap range to search: give [design] gaps = [low, high] (or two or more "
                              "[detector] gaps)", file=spacetime.path, key="design.gaps")
         gaps = (min(detector.gaps), max(detector.gaps))
+    radii = design.radii
+    if design.region is not None:
+        radii = _region_radii(spacetime, design.region)
     return Family(tuple(design.shapes), (float(gaps[0]), float(gaps[1])), design.locality, detector.coupling,
                   detector.sigmas, float(detector.switching.get("tail", DEFAULT_TAIL)), design.shortest,
-                  design.longest, design.radii, design.positions)
+                  design.longest, radii, design.positions)
+
+
+def _region_radii(spacetime, name: str) -> tuple[float, float]:
+    """The radii a detector may take in the named region: from a regular centre (included) or a thousandth of
+    the region's width above a lower end, to a thousandth below its upper end (a shell, a horizon, a boundary
+    are not places for a static detector); an unbounded region needs [design] radii."""
+    problem = spacetime.numeric_problem
+    region = next(r for r in problem.regions if r.name == name)
+    if region.upper is None:
+        raise InputError(f"region {name!r} reaches infinity: give [design] radii = [low, high] instead",
+                         file=spacetime.path, key="design.region")
+    margin = 1e-3 * (region.upper - region.lower)
+    low = region.lower if region.lower_kind == "regular centre" else region.lower + margin
+    return (float(low), float(region.upper - margin))
 
 
 def _verified(problem, detector, reference, tolerance, radius, switching, gap, family, trip):
@@ -806,6 +824,12 @@ def design(spacetime, tolerance: float | None = None, progress=None):
     if best["duration"] >= site.longest * (1 - 1e-6):
         notes.append("the best probe lasts as long as the search allows (the locality budget, or [design] "
                      "longest): the difference grows with the time the detector has to feel the spacetime")
+    if default["runs"] < best["runs"]:
+        notes.append(f"the spec's own probe needs fewer runs ({default['runs']:.3g}) than the best found "
+                     f"({best['runs']:.3g}): it lasts {default['duration']:.4g}, outside the durations searched "
+                     f"(up to {site.longest:.4g}" + (", the locality budget" if family.longest is None else
+                                                     ", [design] longest") + ")"
+                     + ("" if default["local"] else ", and it is not local"))
     data = {"best": best, "default": default, "tradeoff": rows, "quantum_limit": limit, "notes": notes,
             "search": {"shapes": list(family.shapes), "gaps": list(family.gaps),
                        "durations": [site.shortest, site.longest], "locality": family.locality,

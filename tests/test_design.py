@@ -257,6 +257,9 @@ def test_design_command_json(tmp_path, capsys):
     ('radii = [-1, 0.5]\n', "design.radii"),
     ('shortest = 2.0\nlongest = 1.0\n', "design.shortest"),
     ('colour = "red"\n', "design.colour"),
+    ('region = "insde"\n', "design.region"),
+    ('region = "inside"\nradii = [0, 0.5]\n', "design.region"),
+    ('region = "outside"\n', "design.region"),
 ])
 def test_bad_design_tables_are_refused(tmp_path, capsys, table, key):
     assert main(["design", _spec(tmp_path, table)]) == 2

@@ -136,7 +136,8 @@ def proper_density(problem, tolerance, r0: float = 0.0, state: str = "vacuum", p
             result = solve(omega)
             if not result.ok:
                 _missed(shortfalls, result, tolerance)
-            n = 1.0 / np.expm1(omega / temperature)
+            with np.errstate(over="ignore"):      # far above the temperature the occupation is 0
+                n = 1.0 / np.expm1(omega / temperature)
             return (sqrt_f0 * (1 + n) * result.density, sqrt_f0 * (1 + n) * result.error,
                     sqrt_f0 * n * result.density, sqrt_f0 * n * result.error)
         return thermal_density_at, sqrt_f0, True

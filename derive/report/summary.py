@@ -36,7 +36,8 @@ def spec_json(spacetime) -> dict:
             "shapes": list(spacetime.design_settings.shapes),
             "gaps": None if spacetime.design_settings.gaps is None else list(spacetime.design_settings.gaps),
             "locality": spacetime.design_settings.locality,
-            "radii": None if spacetime.design_settings.radii is None else list(spacetime.design_settings.radii)},
+            "radii": None if spacetime.design_settings.radii is None else list(spacetime.design_settings.radii),
+            "region": spacetime.design_settings.region},
         "source_hash": spacetime.source_hash,
     }
 
@@ -73,7 +74,8 @@ def spec_summary(spacetime) -> str:
         d = info["design"]
         lines.append(f"  design:      {', '.join(d['shapes'])} switchings, locality {d['locality']:g} of the round trip"
                      + (f", gaps in [{d['gaps'][0]:g}, {d['gaps'][1]:g}]" if d["gaps"] else "")
-                     + (f", radii in [{d['radii'][0]:g}, {d['radii'][1]:g}]" if d["radii"] else ""))
+                     + (f", radii in [{d['radii'][0]:g}, {d['radii'][1]:g}]" if d["radii"] else "")
+                     + (f", radii over region {d['region']}" if d["region"] else ""))
     return "\n".join(lines)
 
 

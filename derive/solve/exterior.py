@@ -187,7 +187,8 @@ class ExteriorTwoPoint:
 
     def thermal_factor(self) -> np.ndarray:
         """n(omega) = 1/(e^{omega/T_H} - 1)."""
-        return 1.0 / np.expm1(self.omega / self.temperature)
+        with np.errstate(over="ignore"):      # far above the temperature the occupation is 0
+            return 1.0 / np.expm1(self.omega / self.temperature)
 
     def state(self, name: str):
         """(S_+ at +omega, its error, S_- at -omega, its error) for the named state; S_- = n conj(mode sum).
@@ -200,8 +201,9 @@ class ExteriorTwoPoint:
         if name not in self.states:
             raise Unsupported(f"state {name!r} outside a horizon: one of {', '.join(self.states)}")
         n = self.thermal_factor()
-        n_c = (np.zeros_like(n) if self.outer_temperature is None
-               else 1.0 / np.expm1(self.omega / self.outer_temperature))
+        with np.errstate(over="ignore"):
+            n_c = (np.zeros_like(n) if self.outer_temperature is None
+                   else 1.0 / np.expm1(self.omega / self.outer_temperature))
         if name == "boulware":
             n_in, n_up = np.zeros_like(n), np.zeros_like(n)
         elif name == "hartle-hawking":

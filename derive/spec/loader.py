@@ -40,7 +40,7 @@ UNKNOWNS_HINT = ("; or, if a junction condition fixes it, list it in this region
                  "unknowns = [\"{name}\"]")
 COMPARE_KEYS = ("with", "sigmas")
 NUMERICS_KEYS = ("tolerance",)
-DESIGN_KEYS = ("gaps", "shapes", "locality", "shortest", "longest", "radii", "positions")
+DESIGN_KEYS = ("gaps", "shapes", "locality", "shortest", "longest", "radii", "region", "positions")
 DESIGN_SHAPES = ("gaussian", "bump", "cos2", "sin4")   # the shapes derive design can scale to a duration
 CHOSEN_BY_DERIVE = ("l_max", "omega_max", "outer_radius")   # read by no solver: refused with the reason
 SWITCHING_SHAPES = ("gaussian", "sharp", "bump", "cos2", "sin4", "expression")
@@ -416,7 +416,7 @@ def from_mapping(data: Mapping[str, Any], path: str = "<spec>", overrides: Mappi
             reader.fail(f"expected a positive number of standard deviations (at most 100), got {sigmas}",
                         "compare.sigmas")
         compare = CompareSpec(with_, sigmas)
-    design = _design(reader, data.get("design"))
+    design = _design(reader, data.get("design"), list(regions))
     numerics = {}
     if "numerics" in data:
         for k in data["numerics"] if isinstance(data["numerics"], Mapping) else ():
@@ -751,11 +751,19 @@ def _detectors(reader, parser, entries, definitions):
     return tuple(out)
 
 
-def _design(reader, table):
+def _design(reader, table, region_names):
     """[design]: the probe search (derive design); every key optional."""
     if table is None:
         return None
     reader.check_keys(table, DESIGN_KEYS, "design")
+    region = table.get("region")
+    if region is not None:
+        if not isinstance(region, str) or region not in region_names:
+            close = suggest(str(region), region_names)
+            hint = f"; did you mean '{close}'?" if close else f" (the regions: {', '.join(region_names)})"
+            reader.fail(f"no region named {region!r}{hint}", "design.region")
+        if "radii" in table:
+            reader.fail("give radii or a region to search, not both", "design.region")
 
     def pair(key, positive=False):
         value = table.get(key)
@@ -802,7 +810,7 @@ def _design(reader, table):
     if isinstance(positions, bool) or not isinstance(positions, int) or not 2 <= positions <= 50:
         reader.fail(f"expected a whole number of positions from 2 to 50, got {positions!r}", "design.positions")
     return DesignSpec(pair("gaps"), tuple(dict.fromkeys(shapes)), locality, shortest, longest,
-                      pair("radii", positive=True), positions)
+                      pair("radii", positive=True), positions, region)
 
 
 def _detector(reader, parser, table, coordinates, definitions):

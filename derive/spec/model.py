@@ -125,6 +125,7 @@ class DesignSpec:
     longest: float | None = None
     radii: tuple[float, float] | None = None
     positions: int = 5
+    region: str | None = None          # search the radius over this region (instead of radii)
 
 
 @dataclass(frozen=True)
