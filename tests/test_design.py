@@ -224,6 +224,7 @@ def _spec(tmp_path, design_table, compare=True, coupling=True):
     return path
 
 
+@pytest.mark.slow
 def test_design_command_json(tmp_path, capsys):
     """The JSON the issue spells: best, default, tradeoff, quantum_limit; runs at the spec's coupling and sigmas;
     the best probe local and no worse than the spec's local probes."""
