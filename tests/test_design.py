@@ -95,7 +95,7 @@ def test_gaussian_ordered_kernel_against_mpmath():
         assert abs(complex(value) - complex(ordered_kernel(k, sigma))) < 1e-13
 
 
-@pytest.mark.parametrize("shape", ["bump", "sin4"])
+@pytest.mark.parametrize("shape", ["bump", pytest.param("sin4", marks=pytest.mark.slow)])   # sin4: 30 s of mpmath
 def test_tabulated_kernels_against_mpmath(shape):
     """chi_hat_1 and h_1 of the unit-support switching from the tables against mpmath's (nested) quadrature."""
     table = D.unit_transform(shape, 1e-12, 60.0)
