@@ -204,6 +204,14 @@ def _deliver(args, result, write_files, header, rows) -> int:
     return 0
 
 
+def _computed(args, request):
+    """The common start of the numeric commands: the spec loaded (with --set), its tolerance (--tolerance, else
+    [numerics]), ``request(spacetime, tolerance, progress)`` called; returns (spacetime, result, its JSON)."""
+    spacetime = _load(args)
+    result = request(spacetime, _tolerance(args, spacetime), _progress(args))
+    return spacetime, result, result.to_json()
+
+
 def _tolerance(args, spacetime):
     from derive.pipeline import tolerance_of
 
@@ -271,11 +279,9 @@ def cmd_spectrum(args) -> int:
 def cmd_two_point(args) -> int:
     from derive.report.tables import write_two_point_files
 
-    spacetime = _load(args)
     omegas = _omega_grid(args.omega)
-    tolerance = _tolerance(args, spacetime)
-    result = spacetime.two_point(omegas, args.between, tolerance=tolerance, progress=_progress(args))
-    data = result.to_json()
+    spacetime, result, data = _computed(args, lambda st, tolerance, progress: st.two_point(
+        omegas, args.between, tolerance=tolerance, progress=progress))
     points = " and ".join(p["text"] for p in data["between"])
     rows = [f"{w:12.6g} {re:22.15e} {im:22.15e} {e:10.1e} {c:22.15e}" for w, re, im, e, c in
             zip(data["omega"], data["wightman"]["re"], data["wightman"]["im"], data["error"]["wightman"],
@@ -289,10 +295,7 @@ def cmd_two_point(args) -> int:
 def cmd_design(args) -> int:
     from derive.report.tables import write_design_files
 
-    spacetime = _load(args)
-    tolerance = _tolerance(args, spacetime)
-    result = spacetime.design(tolerance=tolerance, progress=_progress(args))
-    data = result.to_json()
+    spacetime, result, data = _computed(args, lambda st, tolerance, progress: st.design(tolerance, progress))
 
     def line(label, p):
         s = p["switching"]
@@ -305,16 +308,13 @@ def cmd_design(args) -> int:
     rows += [f"  {r['duration']:10.4g} {r['runs']:12.4e} +- {r['runs_error']:.1e}  gap {r['gap']:8.4g} "
              f"{r['shape']:<8} {'local' if r['local'] else 'not local'}" for r in data["tradeoff"]]
     q = data["quantum_limit"]
-    if "runs" in q:
-        rows.append(f"quantum limit (the best probe, {q['switching']['shape']} lasting "
-                    f"{q['switching']['effective_duration']:.4g}, gap {q['gap']:.5g}): best initial state "
-                    f"theta = {q['initial_state']['theta']:.4g}, phi = {q['initial_state']['phi']:.4g}")
-        rows.append(f"  counting {q['counting']['runs']:.4e}  best measurement {q['best_measurement']['runs']:.4e}"
-                    f"  (ground state: counting {q['ground_state']['counting']['runs']:.4e}, best "
-                    f"{q['ground_state']['best_measurement']['runs']:.4e})  Chernoff exponent "
-                    f"{q['chernoff']['exponent']:.4e} (sufficient runs {q['chernoff']['runs']:.4e})")
-    else:
-        rows.append("quantum limit: " + q.get("note", ""))
+    rows.append(f"quantum limit (the best probe, {q['switching']['shape']} lasting "
+                f"{q['switching']['effective_duration']:.4g}, gap {q['gap']:.5g}): best initial state "
+                f"theta = {q['initial_state']['theta']:.4g}, phi = {q['initial_state']['phi']:.4g}")
+    rows.append(f"  counting {q['counting']['runs']:.4e}  best measurement {q['best_measurement']['runs']:.4e}"
+                f"  (ground state: counting {q['ground_state']['counting']['runs']:.4e}, best "
+                f"{q['ground_state']['best_measurement']['runs']:.4e})  Chernoff exponent "
+                f"{q['chernoff']['exponent']:.4e} (sufficient runs {q['chernoff']['runs']:.4e})")
     rows += [f"note: {note}" for note in data["notes"]]
     title = (f"{spacetime.title}: the probe that tells it from {data['compare']} fastest, coupling "
              f"{data['coupling']:g}, {data['sigmas']:g} sigma")
@@ -324,10 +324,7 @@ def cmd_design(args) -> int:
 def cmd_correlations(args) -> int:
     from derive.report.tables import write_correlations_files
 
-    spacetime = _load(args)
-    tolerance = _tolerance(args, spacetime)
-    result = spacetime.correlations(tolerance=tolerance, progress=_progress(args))
-    data = result.to_json()
+    spacetime, result, data = _computed(args, lambda st, tolerance, progress: st.correlations(tolerance, progress))
     rows = [f"  {name:<12} at {d['at']['text']:<28} gap {d['gap']:<8g} P = {d['probability']:.10e} "
             f"+- {d['error']:.1e}" for name, d in data["detectors"].items()]
     rows.append(f"{'pair':<16} {'|L_AB|':>12} {'|M|':>12} {'error':>8} {'concurrence':>12} {'negativity':>12} "

@@ -18,7 +18,7 @@ from dataclasses import replace
 import numpy as np
 
 from derive.errors import InputError, NotSupported
-from derive.results import Response, Spectrum
+from derive.results import Response, Spectrum, plain
 from derive.solve.cosmological import temperature as cosmological_temperature
 
 DEFAULT_TOLERANCE = 1e-10
@@ -839,17 +839,4 @@ def design(spacetime, tolerance: float | None = None, progress=None):
             "coupling": family.coupling, "sigmas": family.sigmas, "state": detector.state,
             "compare": detector.compare_with, "tolerance": tolerance, "convention": DESIGN_CONVENTION}
     message = "; ".join(m for m, _ in shortfalls)
-    return Design(_plain(data), spacetime, not shortfalls, message, tolerance)
-
-
-def _plain(value):
-    """numpy scalars and arrays as plain JSON numbers and lists."""
-    if isinstance(value, dict):
-        return {k: _plain(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_plain(v) for v in value]
-    if isinstance(value, np.ndarray):
-        return [_plain(v) for v in value.tolist()]
-    if isinstance(value, np.generic):
-        return value.item()
-    return value
+    return Design(plain(data), spacetime, not shortfalls, message, tolerance)

@@ -23,6 +23,24 @@ STATUS_OK = "ok"
 STATUS_SHORT = "tolerance not met"
 
 
+def plain(value, nonfinite_as_none: bool = False):
+    """numpy scalars and arrays inside nested dicts and lists as plain Python numbers and lists (what json
+    writes); with ``nonfinite_as_none``, inf and nan become None (JSON null)."""
+    if isinstance(value, dict):
+        return {str(k): plain(v, nonfinite_as_none) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [plain(v, nonfinite_as_none) for v in value]
+    if isinstance(value, np.ndarray):
+        return plain(value.tolist(), nonfinite_as_none)
+    if isinstance(value, np.bool_):
+        return bool(value)
+    if isinstance(value, np.integer):
+        return int(value)
+    if isinstance(value, (np.floating, float)):
+        return None if nonfinite_as_none and not np.isfinite(value) else float(value)
+    return value
+
+
 def _arrays(value):
     """Lists of numbers (or None) become float arrays (None as nan); dicts are read recursively."""
     if isinstance(value, dict):

@@ -20,6 +20,8 @@ from importlib import metadata
 import numpy as np
 import sympy as sp
 
+from derive.results import plain
+
 from derive import __version__
 
 SPECTRUM_GRID = (0.02, 20.0, 200)   # omega in units of 1/length scale
@@ -107,8 +109,8 @@ def run(spacetime, out: str, tolerance: float = 1e-10, progress=print, l_progres
                       "tolerance": tolerance, "timings_seconds": timings, "command": sys.argv,
                       "parameters": {p.name: p.value for p in spacetime.parameters.values()},
                       "written": time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())}
-        write_atomic(os.path.join(staging, "summary.json"), json.dumps(_plain(summary), indent=2))
-        write_atomic(os.path.join(staging, "provenance.json"), json.dumps(_plain(provenance), indent=2))
+        for name, record in (("summary.json", summary), ("provenance.json", provenance)):
+            write_atomic(os.path.join(staging, name), json.dumps(plain(record, nonfinite_as_none=True), indent=2))
         replace_folder(staging, out, "run")
     except BaseException:
         shutil.rmtree(staging, ignore_errors=True)
@@ -227,19 +229,3 @@ def _response(spacetime, staging, tolerance, summary, timings, progress, l_progr
     _stage(summary, timings, progress, "response", "detector response ...",
            lambda: spacetime.response(tolerance=tolerance, progress=l_progress),
            lambda data: write_response_files(staging, data, spacetime.title, pdf=True))
-
-
-def _plain(value):
-    if isinstance(value, dict):
-        return {str(k): _plain(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_plain(v) for v in value]
-    if isinstance(value, (np.floating, float)):
-        return float(value) if np.isfinite(value) else None
-    if isinstance(value, (np.integer,)):
-        return int(value)
-    if isinstance(value, np.bool_):
-        return bool(value)
-    if isinstance(value, np.ndarray):
-        return _plain(value.tolist())
-    return value

@@ -27,14 +27,15 @@ one's neighbours.
 from __future__ import annotations
 
 from dataclasses import dataclass, field, fields, replace
+from functools import lru_cache
 
 import numpy as np
 from scipy.optimize import minimize, minimize_scalar
-from scipy.special import dawsn, erfcinv
+from scipy.special import erfcinv
 
-from derive.detector.quantum import SecondOrder
+from derive.detector.quantum import SecondOrder, ordered_kernel
 from derive.detector.response import round_trip, trials_to_distinguish
-from derive.detector.switching import CompactSwitching, Switching, switching_from_spec
+from derive.detector.switching import CompactSwitching, Switching, gauss_panels, switching_from_spec
 from derive.detector.study import detector_response, reference_response
 
 DESIGN_SHAPES = ("gaussian", "bump", "cos2", "sin4")
@@ -95,14 +96,6 @@ class ChebyshevTable:
         return np.where(signed < 0, -out, out) if self.odd else out
 
 
-def _gauss_panels(a: float, b: float, panels: int):
-    from derive.detector.switching import NODES, WEIGHTS
-
-    edges = np.linspace(a, b, panels + 1)
-    mid, half = (edges[:-1] + edges[1:]) / 2, np.diff(edges) / 2
-    return (mid[:, None] + half[:, None] * NODES[None, :]).ravel(), (half[:, None] * WEIGHTS[None, :]).ravel()
-
-
 def _chunked(x, nodes, weights, trig):
     flat = np.asarray(x, dtype=float).ravel()
     out = np.empty(flat.shape)
@@ -119,7 +112,7 @@ class UnitTransform(ChebyshevTable):
         self.unit = unit
         # 2 int_0^{1/2} chi cos(x tau): as many panels on the half support as the switching's own transform has
         # on the whole (twice its resolution)
-        tau, weight = _gauss_panels(0.0, 0.5, unit.panels)
+        tau, weight = gauss_panels(0.0, 0.5, unit.panels)
         self.nodes, self.node_weights = tau, 2 * weight * unit.chi(tau)
         super().__init__(top)
         self.peak = float(abs(self._direct(np.array([0.0]))[0]))
@@ -154,8 +147,8 @@ class UnitOrdered(ChebyshevTable):
                                                     - _chunked(check, coarse[0], coarse[1], np.sin))))
 
     def _rule(self, panels):
-        s, w = _gauss_panels(0.0, 1.0, panels)
-        u_unit, u_weight = _gauss_panels(-1.0, 1.0, 2 * panels)
+        s, w = gauss_panels(0.0, 1.0, panels)
+        u_unit, u_weight = gauss_panels(-1.0, 1.0, 2 * panels)
         # the overlap of chi(u) and chi(u - s) is u in [s - 1/2, 1/2]: mapped from [-1, 1] for each s
         lo, hi = s - 0.5, np.full_like(s, 0.5)
         u = (lo + hi)[:, None] / 2 + (hi - lo)[:, None] / 2 * u_unit[None, :]
@@ -194,9 +187,20 @@ def unit_transform(shape: str, tail: float, top: float, kind=UnitTransform):
     key = (shape, float(tail), kind.__name__)
     table = _TABLES.get(key)
     if table is None or table.top < top:
-        unit = switching_from_spec({"shape": shape}, {"duration": 1.0, "tail": tail})
-        table = _TABLES[key] = kind(unit, top)
+        table = _TABLES[key] = kind(_unit(shape, float(tail)), top)
     return table
+
+
+@lru_cache(maxsize=32)
+def _unit(shape: str, tail: float) -> CompactSwitching:
+    """The shape's switching with unit support."""
+    return switching_from_spec({"shape": shape}, {"duration": 1.0, "tail": tail})
+
+
+@lru_cache(maxsize=32)
+def _unit_duration(shape: str, tail: float) -> float:
+    """The effective duration of the unit-support switching (a scan of chi^2: computed once per shape)."""
+    return _unit(shape, tail).duration
 
 
 def make_switching(shape: str, duration: float, tail: float, table: UnitTransform | None = None) -> Switching:
@@ -205,8 +209,8 @@ def make_switching(shape: str, duration: float, tail: float, table: UnitTransfor
     its transform from it."""
     if shape == "gaussian":
         return Switching("gaussian", float(duration / (2 * erfcinv(tail))), tail)
-    unit = switching_from_spec({"shape": shape}, {"duration": 1.0, "tail": tail})
-    plain = switching_from_spec({"shape": shape}, {"duration": float(duration / unit.duration), "tail": tail})
+    plain = switching_from_spec({"shape": shape}, {"duration": float(duration / _unit_duration(shape, float(tail))),
+                                                   "tail": tail})
     if table is None:
         return plain
     return TabulatedSwitching(**{f.name: getattr(plain, f.name) for f in fields(plain)}, table=table)
@@ -522,8 +526,7 @@ def ordered_kernels(site: Site, switching: Switching):
     T chi_hat_1(k T), h(k) = T^2 h_1(k T))."""
     if switching.shape == "gaussian":
         sigma = switching.width
-        return (lambda k: np.sqrt(2 * np.pi) * sigma * np.exp(-(sigma * np.asarray(k)) ** 2 / 2),
-                lambda k: 2 * np.sqrt(np.pi) * sigma ** 2 * dawsn(np.asarray(k) * sigma), 0.0)
+        return (lambda k: np.sqrt(switching.power(k)), lambda k: -ordered_kernel(k, sigma).imag, 0.0)
     T = switching.support_length
     transform = site.tables[switching.shape]
     ordered = unit_transform(switching.shape, site.family.tail, transform.top, UnitOrdered)
@@ -621,15 +624,11 @@ def quantum_limit(site: Site, probe: Evaluation) -> dict:
     best = best_initial_state(ours, theirs, coupling, sigmas)
     vector = np.array([complex(*best["vector"]["g"]), complex(*best["vector"]["e"])])
 
-    def spread(initial, key):
-        values = [compare_states(_moved(ours, theirs, s, ), _moved(theirs, ours, s), coupling, sigmas,
-                                 initial)[key] for s in (-1.0, 1.0)]
-        return values
-
     for entry, initial in ((ground, np.array([1.0, 0.0])), (best, vector)):
+        moved = [compare_states(_moved(ours, theirs, s), _moved(theirs, ours, s), coupling, sigmas, initial)
+                 for s in (-1.0, 1.0)]
         for key in ("counting", "best_measurement"):
-            low, high = spread(initial, key)
-            entry[f"{key}_error"] = float(max(abs(low - entry[key]), abs(high - entry[key])))
+            entry[f"{key}_error"] = float(max(abs(m[key] - entry[key]) for m in moved))
 
     def numbers(v: SecondOrder) -> dict:
         return {"excite": v.excite, "relax": v.relax, "coherence": v.coherence, "shift": v.shift,

@@ -58,13 +58,6 @@ def ordered_kernel(k, sigma: float):
             - 2j * np.sqrt(np.pi) * sigma ** 2 * dawsn(k * sigma))
 
 
-def shift_kernel(nu, gap: float, sigma: float):
-    """h(nu + Omega) - h(nu - Omega) for a Gaussian, h(k) = -Im g(k) = 2 sqrt(pi) sigma^2 D(k sigma)."""
-    nu = np.asarray(nu, dtype=float)
-    factor = 2 * np.sqrt(np.pi) * sigma ** 2
-    return factor * (dawsn((nu + gap) * sigma) - dawsn((nu - gap) * sigma))
-
-
 def shift_tail(upper: float, gap: float, h) -> float:
     """|int_upper^inf [h(nu + Omega) - h(nu - Omega)] dnu| = |int_{upper - Omega}^{upper + Omega} h(k) dk|
     (the two tails telescope), by Gauss-Legendre on that interval; ``h`` the switching's ordered kernel."""
@@ -184,8 +177,8 @@ def chernoff(rho_a, rho_b) -> tuple[float, float]:
     minimisation (the function is convex in s)."""
     def trace(s):
         with mpmath.workdps(DIGITS):
-            return float(mpmath.re((_power(rho_a, s) * _power(rho_b, 1 - s))[0, 0]
-                                   + (_power(rho_a, s) * _power(rho_b, 1 - s))[1, 1]))
+            product = _power(rho_a, s) * _power(rho_b, 1 - s)
+            return float(mpmath.re(product[0, 0] + product[1, 1]))
     found = minimize_scalar(trace, bounds=(0.0, 1.0), method="bounded", options={"xatol": 1e-6})
     best = min((found.fun, found.x), (trace(0.0), 0.0), (trace(1.0), 1.0))
     return float(best[0]), float(best[1])

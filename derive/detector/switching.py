@@ -81,6 +81,13 @@ class Switching:
         return np.zeros(len(np.atleast_1d(gaps)))
 
 
+def gauss_panels(a: float, b: float, panels: int):
+    """Nodes and weights of composite 16-point Gauss-Legendre on ``panels`` equal panels of [a, b]."""
+    edges = np.linspace(a, b, panels + 1)
+    mid, half = (edges[:-1] + edges[1:]) / 2, np.diff(edges) / 2
+    return (mid[:, None] + half[:, None] * NODES[None, :]).ravel(), (half[:, None] * WEIGHTS[None, :]).ravel()
+
+
 def _bump(x):
     out = np.zeros_like(x)
     inside = np.abs(x) < 1
@@ -132,11 +139,8 @@ class CompactSwitching(Switching):
     def _transform(self, k, panels):
         """chi_hat(k) by composite Gauss-Legendre on ``panels`` equal panels of the support."""
         k = np.asarray(k, dtype=float)
-        a, b = self.support
-        edges = np.linspace(a, b, panels + 1)
-        mid, half = (edges[:-1] + edges[1:]) / 2, np.diff(edges) / 2
-        tau = (mid[:, None] + half[:, None] * NODES[None, :]).ravel()
-        weight = (half[:, None] * WEIGHTS[None, :]).ravel() * self.chi(tau)
+        tau, weight = gauss_panels(*self.support, panels)
+        weight = weight * self.chi(tau)
         flat = k.ravel()
         out = np.empty(flat.shape, dtype=complex)
         for start in range(0, len(flat), 256):
