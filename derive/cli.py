@@ -54,6 +54,18 @@ def _check_outputs(args) -> None:
         check_output_folder(args.out, "--out")
     if getattr(args, "latex", None) is not None:
         check_output_file(args.latex, "--latex")
+        check_output_file(body_path(args.latex), "--latex (its body file)")
+
+
+def body_path(path: str) -> str:
+    """Where the body of a derivation goes beside its standalone document: name.tex -> name-body.tex."""
+    stem, ext = os.path.splitext(path)
+    return f"{stem}-body{ext or '.tex'}"
+
+
+def _write_derivation(path: str, derivation) -> None:
+    _write(path, derivation.to_latex())
+    _write(body_path(path), derivation.body_latex())
 
 
 def _selected_regions(spacetime, name):
@@ -91,9 +103,9 @@ def cmd_geometry(args) -> int:
     spacetime = _load(args)
     names = _selected_regions(spacetime, args.region)
     if args.latex:
-        derivation = Derivation(spacetime.title)
+        derivation = Derivation(spacetime.title, spacetime.coordinates)
         geometry_sections(derivation, spacetime, names)
-        _write(args.latex, derivation.to_latex())
+        _write_derivation(args.latex, derivation)
     if args.json:
         _emit_json({"regions": {n: geometry_json(spacetime.geometry[n]) for n in names}})
     else:
@@ -105,7 +117,7 @@ def _derivation_with(spacetime, *stages):
     from derive.report.derivation import Derivation
     from derive.report.latex import field_sections, geometry_sections, junction_sections
 
-    derivation = Derivation(spacetime.title)
+    derivation = Derivation(spacetime.title, spacetime.coordinates)
     builders = {"geometry": geometry_sections, "junction": junction_sections, "field": field_sections}
     for stage in stages:
         builders[stage](derivation, spacetime)
@@ -121,7 +133,7 @@ def cmd_junction(args) -> int:
         raise InputError("the spec has no [[interface]]: nothing to glue", file=spacetime.path, key="interface")
     data = {"interfaces": [junction_json(shell) for shell in spacetime.shells]}
     if args.latex:
-        _write(args.latex, _derivation_with(spacetime, "geometry", "junction").to_latex())
+        _write_derivation(args.latex, _derivation_with(spacetime, "geometry", "junction"))
     if args.json:
         _emit_json(data)
     else:
@@ -139,7 +151,7 @@ def cmd_field(args) -> int:
     data = field_json(spacetime.field_problem, args.l)
     if args.latex:
         stages = ("geometry", "junction", "field") if spacetime.interfaces else ("geometry", "field")
-        _write(args.latex, _derivation_with(spacetime, *stages).to_latex())
+        _write_derivation(args.latex, _derivation_with(spacetime, *stages))
     if args.json:
         _emit_json(data)
     else:

@@ -60,7 +60,7 @@ def run(spacetime, out: str, tolerance: float = 1e-10, progress=print, l_progres
     try:
         start = time.perf_counter()
         progress("geometry ...")
-        derivation = Derivation(spacetime.title)
+        derivation = Derivation(spacetime.title, spacetime.coordinates)
         geometry_sections(derivation, spacetime)
         summary["regions"] = {name: {"ricci_scalar": str(geo.ricci_scalar), "kretschmann": str(geo.kretschmann),
                                      "energy_conditions": geo.energy_conditions}
@@ -94,6 +94,7 @@ def run(spacetime, out: str, tolerance: float = 1e-10, progress=print, l_progres
             timings["kernels"] = time.perf_counter() - start
         tex = derivation.to_latex()
         write_atomic(os.path.join(staging, "derivation.tex"), tex)
+        write_atomic(os.path.join(staging, "derivation-body.tex"), derivation.body_latex())
         start = time.perf_counter()
         ok, log, pdf = compile_pdf(tex)
         if ok:

@@ -13,7 +13,7 @@ from derive.report.derivation import Derivation, Section, escape, latex_of
 
 
 def _name(c) -> str:
-    return sp.latex(c)
+    return latex_of(c)
 
 
 def line_element_latex(metric: sp.Matrix, coordinates) -> str:
@@ -36,7 +36,7 @@ def line_element_latex(metric: sp.Matrix, coordinates) -> str:
         elif coefficient == -1:
             text = "-" + differential
         else:
-            body = sp.latex(coefficient)
+            body = latex_of(coefficient, coordinates)
             if isinstance(coefficient, sp.Add):
                 body = rf"\left({body}\right)"
             text = rf"{body}\,{differential}"
@@ -54,8 +54,8 @@ def geometry_sections(derivation: Derivation, spacetime, regions=None) -> None:
         for symbol, value in spacetime.definitions.items():
             sec.equations.append(derivation.equation(symbol, value, "def", symbol))
     if spacetime.parameters:
-        items = ", ".join(f"${sp.latex(p.symbol)} = {p.value:g}$" if p.value is not None
-                          else f"${sp.latex(p.symbol)}$" for p in spacetime.parameters.values())
+        items = ", ".join(f"${latex_of(p.symbol)} = {p.value:g}$" if p.value is not None
+                          else f"${latex_of(p.symbol)}$" for p in spacetime.parameters.values())
         derivation.add(Section("Parameters", "Values used for numerics: " + items + "."))
     for name in regions or spacetime.regions:
         region_section(derivation, spacetime, spacetime.geometry[name])
@@ -63,7 +63,7 @@ def geometry_sections(derivation: Derivation, spacetime, regions=None) -> None:
 
 def region_section(derivation: Derivation, spacetime, geo) -> Section:
     coords = geo.coordinates
-    where = f" where ${sp.latex(geo.region.where)}$" if geo.region.where is not None else ""
+    where = f" where ${latex_of(geo.region.where)}$" if geo.region.where is not None else ""
     sec = derivation.add(Section(f"Region {geo.name}", f"Coordinates $({', '.join(_name(c) for c in coords)})$"
                                  f"{where}."))
     metric = Section("Metric")
@@ -74,7 +74,7 @@ def region_section(derivation: Derivation, spacetime, geo) -> Section:
                                                     geo.name, "metric", "substituted"))
     sec.subsections.append(metric)
 
-    chris = Section("Christoffel symbols", "Nonzero components with $b \\le c$ "
+    chris = Section("Christoffel symbols", block=True, text="Nonzero components with $b \\le c$ "
                     "($\\Gamma^a{}_{cb} = \\Gamma^a{}_{bc}$).")
     for (a, b, c), value in geo.christoffel.items():
         lhs = rf"\Gamma^{{{_name(coords[a])}}}{{}}_{{{_name(coords[b])}{_name(coords[c])}}}"
@@ -83,7 +83,7 @@ def region_section(derivation: Derivation, spacetime, geo) -> Section:
         chris.text += " All vanish."
     sec.subsections.append(chris)
 
-    riem = Section("Riemann tensor", "Independent nonzero components $R_{abcd}$ with $a<b$, $c<d$, "
+    riem = Section("Riemann tensor", block=True, text="Independent nonzero components $R_{abcd}$ with $a<b$, $c<d$, "
                    "$(a,b)\\le(c,d)$; the rest follow from the symmetries.")
     for (a, b, c, d), value in geo.riemann.items():
         lhs = "R_{" + "".join(_name(coords[i]) + " " for i in (a, b, c, d)).strip() + "}"
@@ -92,7 +92,7 @@ def region_section(derivation: Derivation, spacetime, geo) -> Section:
         riem.text += " All vanish: the region is flat."
     sec.subsections.append(riem)
 
-    ricci = Section("Ricci tensor and scalar")
+    ricci = Section("Ricci tensor and scalar", block=True)
     n = geo.dimension
     zero = True
     for a in range(n):
@@ -106,7 +106,7 @@ def region_section(derivation: Derivation, spacetime, geo) -> Section:
     ricci.equations.append(derivation.equation("R", geo.ricci_scalar, geo.name, "Ricci", "scalar"))
     sec.subsections.append(ricci)
 
-    einstein = Section("Einstein tensor and stress-energy", "Mixed components $G^a{}_b$ and "
+    einstein = Section("Einstein tensor and stress-energy", block=True, text="Mixed components $G^a{}_b$ and "
                        "$T^a{}_b = G^a{}_b/(8\\pi)$.")
     for a in range(n):
         for b in range(n):
@@ -119,14 +119,14 @@ def region_section(derivation: Derivation, spacetime, geo) -> Section:
         einstein.equations.append(derivation.equation(r"\rho = -T^{t}{}_{t}", stress["energy_density"],
                                                       geo.name, "rho"))
         for cname, p in stress["pressures"].items():
-            einstein.equations.append(derivation.equation(rf"p_{{{sp.latex(sp.Symbol(cname))}}}", p,
+            einstein.equations.append(derivation.equation(rf"p_{{{latex_of(sp.Symbol(cname))}}}", p,
                                                           geo.name, "pressure", cname))
         conditions = geo.energy_conditions
         einstein.text += " Energy conditions: " + "; ".join(
             f"{escape(k)}: {escape(v['verdict'])} ({escape(v['how'])})" for k, v in conditions.items()) + "."
     sec.subsections.append(einstein)
 
-    inv = Section("Invariants")
+    inv = Section("Invariants", block=True)
     inv.equations.append(derivation.equation(r"R_{abcd}R^{abcd}", geo.kretschmann, geo.name, "Kretschmann"))
     inv.equations.append(derivation.equation(r"R_{ab}R^{ab}", geo.ricci_squared, geo.name, "Riccisquared"))
     if n >= 4:
@@ -145,7 +145,8 @@ def region_summary_latex(geo) -> str:
 def compile_pdf(tex: str, timeout: float = 120.0) -> tuple[bool, str, bytes | None]:
     """Compile LaTeX text with pdflatex in a temporary folder.
 
-    Returns (ok, log tail, pdf bytes or None).  (False, reason, None) when pdflatex is not installed.
+    Returns (ok, log, pdf bytes or None): the whole log of the last pass when it compiled (overfull boxes are
+    reported there), its tail when it failed; (False, reason, None) when pdflatex is not installed.
     """
     engine = shutil.which("pdflatex")
     if engine is None:
@@ -163,7 +164,7 @@ def compile_pdf(tex: str, timeout: float = 120.0) -> tuple[bool, str, bytes | No
             if proc.returncode != 0:
                 return False, log[-3000:], None
         with open(os.path.join(tmp, "derivation.pdf"), "rb") as handle:
-            return True, log[-500:], handle.read()
+            return True, log, handle.read()
 
 
 def junction_sections(derivation: Derivation, spacetime) -> None:
@@ -173,7 +174,7 @@ def junction_sections(derivation: Derivation, spacetime) -> None:
         ys = shell.tangential
         sec = derivation.add(Section(
             f"Interface {first} | {second}",
-            f"The hypersurface ${sp.latex(shell.coordinate)} = {sp.latex(shell.position)}$ with intrinsic "
+            f"The hypersurface ${latex_of(shell.coordinate)} = {latex_of(shell.position)}$ with intrinsic "
             f"coordinates $({', '.join(_name(y) for y in ys)})$. The unit normal points from region "
             f"{escape(first)} to region {escape(second)}; $[X] = X_{{\\rm {escape(second)}}} - "
             f"X_{{\\rm {escape(first)}}}$."))
@@ -222,7 +223,7 @@ def field_sections(derivation: Derivation, spacetime) -> None:
     field = spacetime.field
     sec = derivation.add(Section(
         "The scalar field",
-        rf"$(\Box - \mu^2 - \xi R)\phi = 0$ with $\mu = {sp.latex(field.mass)}$, $\xi = {sp.latex(field.coupling)}$. "
+        rf"$(\Box - \mu^2 - \xi R)\phi = 0$ with $\mu = {latex_of(field.mass)}$, $\xi = {latex_of(field.coupling)}$. "
         r"Separation $\phi = e^{-i\omega t}\, Y(\text{angles})\, r^{-n/2} u(r)$ with $\Delta_\Sigma Y = -\lambda Y$; "
         r"tortoise coordinate $dr_*/dr = 1/F$, $F = \sqrt{f h}$; Schr\"odinger form "
         r"$d^2u/dr_*^2 + (\omega^2 - V)u = 0$; Klein-Gordon inner product "
@@ -244,8 +245,8 @@ def field_sections(derivation: Derivation, spacetime) -> None:
             if end["kind"] == "interface":
                 text += f" with region {escape(end['region'])}"
             if end["kind"] == "horizon":
-                text += (f" ({escape(end['horizon'])}) at the root ${sp.latex(end['at'])}"
-                         + (f" = {sp.latex(end['radius'])}" if end["radius"] != end["at"]
+                text += (f" ({escape(end['horizon'])}) at the root ${latex_of(end['at'])}"
+                         + (f" = {latex_of(end['radius'])}" if end["radius"] != end["at"]
                             and not sp.S(end["radius"]).is_Float else "")
                          + f" \\approx {end['value']:.10g}$ of $f$")
             if end.get("tail"):
@@ -253,7 +254,7 @@ def field_sections(derivation: Derivation, spacetime) -> None:
             sub.text += text + ". "
             if "exponents" in end:
                 sub.equations.append(derivation.equation(
-                    r"s", sp.latex(end["exponents"][0]) + r",\ " + sp.latex(end["exponents"][1]),
+                    r"s", latex_of(end["exponents"][0]) + r",\ " + latex_of(end["exponents"][1]),
                     "field", name, side, "exponents"))
             if "surface_gravity" in end:
                 sub.equations.append(derivation.equation(r"\kappa", end["surface_gravity"], "field", name, "kappa"))
@@ -262,9 +263,11 @@ def field_sections(derivation: Derivation, spacetime) -> None:
                 for k, coefficient in enumerate(series[1:], start=1):
                     sub.equations.append(derivation.equation(f"a_{k}", coefficient, "field", name, side, "a", k))
             if end.get("tail") and end["tail"] not in ("AdS-like", "growing", "unknown"):
+                radius = region.r
+                leading = sp.S(end["V_infinity"]) + sp.S(end["coulomb"]) / radius + sp.S(end["centrifugal"]) / radius**2
+                shown = latex_of(leading, (radius,)) if leading != 0 else ""
                 sub.equations.append(derivation.equation(
-                    r"V", sp.latex(end["V_infinity"]) + " + " + rf"\frac{{{sp.latex(end['coulomb'])}}}{{r}} + "
-                    rf"\frac{{{sp.latex(end['centrifugal'])}}}{{r^2}} + O(r^{{-3}})", "field", name, "tail",
+                    r"V", (shown + " + " if shown else "") + rf"O({latex_of(radius)}^{{-3}})", "field", name, "tail",
                     relation=r"\sim"))
         sec.subsections.append(sub)
     for matching in problem.interfaces:

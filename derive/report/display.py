@@ -1,0 +1,361 @@
+"""Displayed forms for the derivation document: term order, line breaking and named radicals.
+
+Everything here is exact rewriting of what the symbolic stages computed, for reading only:
+
+* :func:`tex` prints a sympy object with the terms of every sum in the order a physicist writes them: terms
+  free of the coordinates first, then by the power of the coordinates, the lowest magnitude first
+  (``1 - 2M/r + Q^2/r^2``, ``1 - r^2/L^2``); domains print as chains (``0 \\le r < R``).
+* :func:`width` estimates the printed width of a LaTeX formula in points (10 pt Computer Modern, display
+  style), from the formula's text alone; it is calibrated against pdflatex's own measurements and errs wide.
+* :func:`display_lines` breaks a long right-hand side at the terms of its sums into lines that fit the page,
+  opening a product or a fraction when one term alone is too wide.
+* :func:`with_named_radicals` names the square roots of a long expression (each ``b^{k/2}`` becomes
+  ``S^k``, exact on the principal branch), reduces powers of each name against its square and cancels; the
+  document shows the shorter of the two forms, with the names defined beside it.
+"""
+
+from __future__ import annotations
+
+import re
+
+import sympy as sp
+from sympy.printing.latex import LatexPrinter
+
+# the text block of the document (6.5 in) less room for the equation number and the alignment's indent
+LINE_WIDTH_PT = 400.0
+# a line estimated wider than this would run into the margin (the estimate errs by about 13% at worst)
+OVERFULL_PT = 415.0
+# more lines than this and the named-radical form is tried; more than MAX_LINES and the form is not shown
+TRY_NAMES_LINES = 3
+MAX_LINES = 24
+# the time one display rewriting may take, and all of them in one document (the forms as computed are exact;
+# a rewriting only shortens them, so it is dropped rather than waited for)
+REWRITE_SECONDS = 2.0
+SIMPLIFY_SECONDS = 20.0
+_RADICAL_NAME = r"\mathcal{{S}}_{{{}}}"
+
+
+# -- printing ---------------------------------------------------------------------------------------------------
+class _Printer(LatexPrinter):
+    """sympy's LaTeX printer with the order of terms and the domains a reader expects."""
+
+    def __init__(self, variables=(), **settings):
+        super().__init__(settings)
+        self._variables = tuple(variables)
+
+    def _term_key(self, term):
+        """Terms free of the variables first (a number before the rest), then by the power of the variables
+        (lowest magnitude first, inverse powers before positive ones), then functions of the variables;
+        within each class positive terms before negative ones."""
+        negative = bool(term.could_extract_minus_sign())
+        if not (term.free_symbols & set(self._variables)):
+            return (0, 0 if term.is_Number else 1, 0, negative)
+        degree = 0
+        for factor, power in term.as_powers_dict().items():
+            if factor in self._variables:
+                if not power.is_Integer:
+                    return (2, 0, 0, negative)
+                degree += int(power)
+            elif factor.free_symbols & set(self._variables):
+                return (2, 0, 0, negative)        # a function of the variables: after the powers
+        return (1, abs(degree), 0 if degree < 0 else 1, negative)
+
+    def _as_ordered_terms(self, expr, order=None):
+        terms = list(super()._as_ordered_terms(expr, order=order))
+        ranked = sorted(enumerate(terms), key=lambda item: (self._term_key(item[1]), item[0]))
+        return [term for _, term in ranked]
+
+    def _print_And(self, expr, *args):
+        chain = _chain(expr)
+        if chain is not None:
+            return chain
+        return super()._print_And(expr, *args)
+
+
+_RELATION = {"<": "<", "<=": r"\le", ">": ">", ">=": r"\ge"}
+_FLIP = {"<": ">", "<=": ">=", ">": "<", ">=": "<="}
+
+
+def _chain(expr):
+    """``a < x \\wedge x <= b`` as ``a < x \\le b`` when the two relations share one side."""
+    relations = [a for a in expr.args if isinstance(a, sp.core.relational.Relational) and a.rel_op in _RELATION]
+    if len(relations) != 2 or len(expr.args) != 2:
+        return None
+
+    def upward(rel):      # written as lhs < rhs or lhs <= rhs
+        return (rel.lhs, rel.rel_op, rel.rhs) if rel.rel_op in ("<", "<=") else (rel.rhs, _FLIP[rel.rel_op], rel.lhs)
+
+    (a1, op1, b1), (a2, op2, b2) = upward(relations[0]), upward(relations[1])
+    if b1 == a2:
+        low, op_low, middle, op_high, high = a1, op1, b1, op2, b2
+    elif b2 == a1:
+        low, op_low, middle, op_high, high = a2, op2, b2, op1, b1
+    else:
+        return None
+    printer = _Printer()
+    return (f"{printer.doprint(low)} {_RELATION[op_low]} {printer.doprint(middle)} "
+            f"{_RELATION[op_high]} {printer.doprint(high)}")
+
+
+def tex(obj, variables=()) -> str:
+    """LaTeX of a sympy object (a string is returned as it is), terms ordered by the powers of ``variables``."""
+    if isinstance(obj, str):
+        return obj
+    return _Printer(variables, long_frac_ratio=3).doprint(obj)
+
+
+# -- width ---------------------------------------------------------------------------------------------------
+_LETTER, _UPPER, _DIGIT, _OPERATOR, _PAREN, _SMALL = 5.4, 8.4, 5.0, 12.0, 3.9, 2.8
+_NAMED = {"log": 15.0, "sin": 14.0, "cos": 16.0, "tan": 16.0, "exp": 16.0, "cot": 16.0, "sinh": 20.0,
+          "cosh": 22.0, "tanh": 22.0, "operatorname": 0.0, "mathcal": 0.0, "mathrm": 0.0, "text": 0.0}
+_SPACES = {",": 1.7, ";": 2.8, ":": 2.2, "quad": 10.0, "qquad": 20.0, "!": -1.7, " ": 3.3}
+_OPERATORS = {"cdot", "times", "le", "leq", "ge", "geq", "sim", "approx", "equiv", "neq", "pm", "mp", "to"}
+
+
+class _Reader:
+    def __init__(self, text: str):
+        self.text, self.i = text, 0
+
+    def group(self, scale: float) -> float:
+        """Width of a braced group or a single token, the reader standing at it."""
+        self._skip()
+        if self.i < len(self.text) and self.text[self.i] == "{":
+            self.i += 1
+            w = self.run(scale, closing="}")
+            return w
+        return self.token(scale)
+
+    def _skip(self):
+        while self.i < len(self.text) and self.text[self.i] == " ":
+            self.i += 1
+
+    def run(self, scale: float, closing: str | None = None) -> float:
+        total = 0.0
+        while self.i < len(self.text):
+            if closing and self.text[self.i] == closing:
+                self.i += 1
+                return total
+            total += self.token(scale)
+        return total
+
+    def token(self, scale: float) -> float:
+        text = self.text
+        if self.i >= len(text):
+            return 0.0
+        ch = text[self.i]
+        self.i += 1
+        if ch == " ":
+            return 0.0
+        if ch == "{":
+            return self.run(scale, closing="}")
+        if ch in "^_":
+            return self.group(scale * 0.72)
+        if ch in "+-=<>":
+            return _OPERATOR * scale
+        if ch in "()[]|":
+            return _PAREN * scale
+        if ch in ",;.!'":
+            return _SMALL * scale
+        if ch == "&":
+            return 0.0
+        if ch.isdigit():
+            return _DIGIT * scale
+        if ch != "\\":
+            return (_UPPER if ch.isupper() else _LETTER) * scale
+        match = re.match(r"[A-Za-z]+|.", text[self.i:])
+        if match is None:
+            return 0.0
+        name = match.group(0)
+        self.i += len(name)
+        if name in ("frac", "dfrac", "tfrac"):
+            inner = scale if scale == 1.0 else scale * 0.72
+            numerator = self.group(inner)
+            denominator = self.group(inner)
+            return max(numerator, denominator) + 2.0 * scale
+        if name == "sqrt":
+            self._skip()
+            if self.i < len(text) and text[self.i] == "[":
+                end = text.index("]", self.i)
+                self.i = end + 1
+            return self.group(scale) + 9.0 * scale
+        if name in ("left", "right", "bigl", "bigr", "Bigl", "Bigr", "biggl", "biggr", "big", "Big"):
+            self._skip()
+            if self.i < len(text):
+                if text[self.i] == "\\":
+                    match = re.match(r"\\([A-Za-z]+|.)", text[self.i:])
+                    self.i += len(match.group(0))
+                else:
+                    self.i += 1
+            return (_PAREN + 1.5) * scale
+        if name in _SPACES:
+            return _SPACES[name] * scale
+        if name in _OPERATORS:
+            return _OPERATOR * scale
+        if name in ("label", "notag", "nonumber"):
+            if name == "label":
+                self.group(0.0)
+            return 0.0
+        if name in _NAMED:
+            width = _NAMED[name] * scale
+            if name in ("operatorname", "mathrm", "text"):
+                return width + self.group(scale) * 0.95
+            if name == "mathcal":
+                return self.group(scale) * 1.3
+            return width + 2.0 * scale
+        if name in ("displaystyle", "limits", "nolimits"):
+            return 0.0
+        if len(name) == 1:         # \{ \} \, handled above; other symbols
+            return _LETTER * scale
+        return 6.5 * scale          # a Greek letter or another symbol
+
+
+def width(latex: str) -> float:
+    """Estimated printed width of a display formula, in points."""
+    return _Reader(latex).run(1.0)
+
+
+# -- breaking -------------------------------------------------------------------------------------------------
+def _signed_terms(expr, printer):
+    """The terms of a sum in display order, each as (sign, LaTeX of its magnitude, the term)."""
+    out = []
+    for k, term in enumerate(printer._as_ordered_terms(expr)):
+        sign = "+"
+        if term.could_extract_minus_sign():
+            sign, term = "-", -term
+        body = printer.doprint(term)
+        if printer._needs_add_brackets(term):
+            body = rf"\left({body}\right)"
+        out.append((sign if k or sign == "-" else "", body, term))
+    return out
+
+
+def _wrapped(expr, printer, budget, opening=r"\Bigl(", closing=r"\Bigr)"):
+    """A sum broken over lines inside big brackets (one line when it fits)."""
+    inner = _break_sum(expr, printer, budget - 2 * _PAREN) if width(printer.doprint(expr)) > budget else None
+    if inner is None:
+        inner = [printer.doprint(expr)]
+    inner[0] = opening + inner[0]
+    inner[-1] = inner[-1] + closing
+    return inner
+
+
+def _open_product(term, printer, budget):
+    r"""A product too wide for a line over several lines: its small factors as one fraction in front, each wide
+    sum in the numerator broken inside big brackets, each wide sum in the denominator on lines of its own as
+    ``\times\Bigl[d_1 + ...\Bigr]^{-p}``.  None when no factor is a wide sum."""
+    small = {True: [], False: []}     # numerator factors (True) and denominator factors (False)
+    wide = {True: [], False: []}
+    for base, power in sp.Mul(term).as_powers_dict().items():
+        upper = not (power.is_number and power < 0)
+        power = power if upper else -power
+        if isinstance(base, sp.Add) and power.is_Integer and width(printer.doprint(base)) > budget / 3:
+            wide[upper].append((base, power))
+        else:
+            small[upper].append(base ** power)
+    if not wide[True] and not wide[False]:
+        return None
+    top, bottom = sp.Mul(*small[True]), sp.Mul(*small[False])
+    prefix = printer.doprint(top / bottom) if (top, bottom) != (1, 1) else ""
+    if isinstance(top / bottom, sp.Add):
+        prefix = rf"\left({prefix}\right)"
+    lines: list[str] = []
+    for base, power in wide[True]:
+        closing = r"\Bigr)" + (f"^{{{printer.doprint(power)}}}" if power != 1 else "")
+        lines += _wrapped(base, printer, budget - (width(prefix) if not lines else 0.0), r"\Bigl(", closing)
+    if lines:
+        lines[0] = prefix + lines[0]
+    elif prefix:
+        lines = [prefix]
+    for base, power in wide[False]:
+        lines += _wrapped(base, printer, budget - 30.0, r"\times\Bigl[", rf"\Bigr]^{{-{printer.doprint(power)}}}")
+    return lines
+
+
+def _break_sum(expr, printer, budget):
+    """Lines (LaTeX fragments, the later ones starting with their sign) of a sum, or None."""
+    if not isinstance(expr, sp.Add):
+        return _open_product(expr, printer, budget) if isinstance(expr, (sp.Mul, sp.Pow)) else None
+    lines: list[str] = []
+    current = ""
+    for sign, body, term in _signed_terms(expr, printer):
+        piece = (f" {sign} " if sign else "") + body
+        if current and width(current + piece) > budget:
+            lines.append(current)
+            current = ""
+        if not current and width(piece) > budget and isinstance(term, (sp.Mul, sp.Pow)):
+            opened = _open_product(term, printer, budget - 2 * _OPERATOR)
+            if opened is not None:
+                opened[0] = (f"{sign} " if sign else "") + opened[0]
+                lines.extend(opened[:-1])
+                current = opened[-1]
+                continue
+        current += piece
+    if current:
+        lines.append(current)
+    return lines
+
+
+def display_lines(expr, lhs_width: float = 0.0, variables=(), budget: float = LINE_WIDTH_PT) -> list[str]:
+    """The right-hand side as one or more lines of LaTeX, each within ``budget`` points where the form allows."""
+    printer = _Printer(variables, long_frac_ratio=3)
+    whole = printer.doprint(expr)
+    if width(whole) + lhs_width <= budget:
+        return [whole]
+    lines = _break_sum(expr, printer, budget - lhs_width)
+    if lines is None or len(lines) < 2:
+        return [whole]
+    return lines
+
+
+# -- named radicals -------------------------------------------------------------------------------------------
+def _is_radical(node) -> bool:
+    return (isinstance(node, sp.Pow) and node.exp.is_Rational and node.exp.q == 2 and not node.base.is_Number)
+
+
+def with_named_radicals(expr, registry: dict, size_limit: int = 3000):
+    """(form, names): ``expr`` rewritten with each square root named, names as [(symbol, sqrt(base))].
+
+    ``registry`` (base -> symbol) is shared by one document, so a root keeps its name throughout; new roots
+    are added to it.  Returns (expr, []) when there is nothing to name or the expression is too large to
+    cancel quickly (``size_limit`` operations: the rewriting is for display and must never hold up a
+    derivation)."""
+    if not isinstance(expr, sp.Expr) or sp.count_ops(expr) > size_limit:
+        return expr, []
+    bases = sorted({node.base for node in expr.atoms(sp.Pow) if _is_radical(node)}, key=sp.default_sort_key)
+    if not bases:
+        return expr, []
+    for base in bases:
+        if base not in registry:
+            registry[base] = sp.Symbol(_RADICAL_NAME.format(len(registry) + 1), positive=True)
+    symbols = {b: registry[b] for b in bases}
+
+    def rename(node):
+        whole, odd = divmod(int(node.exp * 2), 2)
+        return node.base ** whole * symbols[node.base] ** odd
+
+    renamed = expr.replace(lambda node: _is_radical(node) and node.base in symbols, rename)
+    numerator, denominator = sp.fraction(sp.cancel(sp.together(renamed)))
+    form = sp.factor(_reduce(numerator, symbols)) / sp.factor(_reduce(denominator, symbols))
+    used = [(symbols[b], sp.sqrt(b)) for b in bases if symbols[b] in form.free_symbols]
+    return form, used
+
+
+def factored(expr, size_limit: int = 3000):
+    """``expr`` as one factored ratio when it is a rational function small enough to cancel quickly, else None."""
+    if not isinstance(expr, sp.Expr) or sp.count_ops(expr) > size_limit or not expr.free_symbols:
+        return None
+    if not expr.is_rational_function(*sorted(expr.free_symbols, key=sp.default_sort_key)):
+        return None
+    return sp.factor(sp.cancel(expr))
+
+
+def _reduce(polynomial, symbols):
+    """Powers of each named root above the first replaced by its square's base (exact)."""
+    out = sp.expand(polynomial)
+    for base, symbol in symbols.items():
+        if out.has(symbol):
+            out = sp.expand(out.replace(lambda node, s=symbol: isinstance(node, sp.Pow) and node.base == s
+                                        and node.exp.is_Integer and node.exp > 1,
+                                        lambda node, b=base, s=symbol: b ** (int(node.exp) // 2)
+                                        * s ** (int(node.exp) % 2)))
+    return out

@@ -1,0 +1,159 @@
+"""The derivation document's displayed forms: term order, domains, line breaking, named radicals, no overfull
+lines.  The references are pdflatex itself (its measured box widths and its overfull-box report) and sympy
+(each displayed form equal to the form as computed); the term order and domain chains are the common practice
+of papers (1 - 2M/r + Q^2/r^2, 0 <= r < R)."""
+
+from __future__ import annotations
+
+import os
+import random
+import re
+import shutil
+import subprocess
+
+import pytest
+import sympy as sp
+
+from derive.report import display
+from derive.report.derivation import Derivation
+
+HERE = os.path.dirname(os.path.abspath(__file__))
+ROOT = os.path.dirname(HERE)
+WORKED = os.path.join(ROOT, "worked")
+EXAMPLES = sorted(d for d in os.listdir(WORKED) if os.path.isfile(os.path.join(WORKED, d, "spec.toml")))
+needs_tex = pytest.mark.skipif(shutil.which("pdflatex") is None, reason="pdflatex not installed (CI installs it)")
+
+r, M, Q, L, R = sp.symbols("r M Q L R", positive=True)
+
+
+def test_sums_in_the_order_papers_write_them():
+    assert display.tex(1 - 2 * M / r + Q**2 / r**2, (r,)) == r"1 - \frac{2 M}{r} + \frac{Q^{2}}{r^{2}}"
+    assert display.tex(1 - r**2 / L**2, (r,)) == r"1 - \frac{r^{2}}{L^{2}}"
+    assert display.tex(sp.sqrt(1 - 2 * M / R), (r,)) == r"\sqrt{1 - \frac{2 M}{R}}"
+
+
+def test_domains_print_as_chains():
+    x = sp.Symbol("x")
+    assert display.tex(sp.And(sp.Le(0, x), sp.Lt(x, R))) == r"0 \le x < R"
+    assert display.tex(sp.And(r > R, r < L)) == r"R < r < L"
+
+
+def test_asymptotic_tail_has_no_zero_terms():
+    derivation = Derivation("t", (r,))
+    from derive.report.latex import field_sections  # noqa: F401 (the tail is built there from this form)
+    leading = sp.S(0) + sp.S(0) / r + sp.Symbol("l") * (sp.Symbol("l") + 1) / r**2
+    shown = display.tex(leading, (r,))
+    assert "0 +" not in shown and r"\frac{0}" not in shown
+    assert derivation.equation("V", shown + " + O(r^{-3})", "tail", relation=r"\sim").rhs == shown + " + O(r^{-3})"
+
+
+def _long_sum(n=14):
+    return sum((k + 3) * M**k * Q**(n - k) / r**k for k in range(n)) + sp.sqrt(1 - 2 * M / r) * L
+
+
+def test_long_sums_break_into_lines_that_fit():
+    lines = display.display_lines(_long_sum(30), 20.0, (r,))
+    assert len(lines) > 2
+    assert all(display.width(line) <= display.OVERFULL_PT for line in lines)
+    # the lines are the terms of the sum, in order: joined they print the same sum
+    assert " ".join(lines).replace("  ", " ") == display.tex(_long_sum(30), (r,))
+
+
+def test_a_wide_product_opens_its_sums():
+    expr = (M / (r - 2 * M)) * _long_sum() * (3 + _long_sum(6))
+    lines = display.display_lines(expr, 20.0, (r,))
+    assert len(lines) > 2 and r"\Bigl(" in lines[0] and lines[-1].endswith(r"\Bigr)")
+
+
+def test_width_estimate_against_pdflatex(tmp_path):
+    """The estimate against pdflatex's own box widths (reference: TeX measures the set formula)."""
+    if shutil.which("pdflatex") is None:
+        pytest.skip("pdflatex not installed (CI installs it)")
+    forms = [display.tex(e, (r,)) for e in (_long_sum(4), _long_sum(9), (1 - 2 * M / r) ** 2 / (r**3 * sp.sqrt(R)),
+                                            sp.sin(sp.Symbol("theta")) ** 2 * r**2, sp.Symbol("omega") ** 2 - M / r)]
+    body = [r"\documentclass[10pt]{article}\usepackage{amsmath,amssymb}\begin{document}"]
+    body += [r"\setbox0\hbox{$\displaystyle %s$}\typeout{W%d=\the\wd0}" % (f, k) for k, f in enumerate(forms)]
+    body.append(r"\end{document}")
+    (tmp_path / "w.tex").write_text("\n".join(body))
+    out = subprocess.run(["pdflatex", "-interaction=nonstopmode", "-no-shell-escape", "w.tex"], cwd=tmp_path,
+                         capture_output=True, text=True, timeout=120, stdin=subprocess.DEVNULL).stdout
+    measured = {int(k): float(w) for k, w in re.findall(r"W(\d+)=([\d.]+)pt", out)}
+    assert len(measured) == len(forms)
+    for k, form in enumerate(forms):
+        # errs wide rather than narrow: never more than 13% under TeX's width (OVERFULL_PT relies on it)
+        assert 0.87 * measured[k] <= display.width(form) <= 1.6 * measured[k], (form, measured[k])
+
+
+def _agree(a, b, symbols, trials=4):
+    rng = random.Random(1)
+    for _ in range(trials):
+        point = {s: sp.Rational(rng.randint(11, 40), 10) for s in symbols}
+        point[M] = sp.Rational(rng.randint(1, 9), 100)        # keep every root real
+        va, vb = sp.N(a.subs(point), 30), sp.N(b.subs(point), 30)
+        assert abs(va - vb) <= 1e-20 * max(1, abs(va))
+
+
+def test_named_radicals_are_the_same_expression():
+    """Each b^{k/2} written S^k with S = sqrt(b): equal on the principal branch (checked at sample points)."""
+    expr = (sp.sqrt(1 - 2 * M * r**2 / R**3) * 3 - sp.sqrt(1 - 2 * M / R)) ** 3 / (1 - 2 * M * r**2 / R**3) ** sp.Rational(3, 2)
+    registry = {}
+    form, names = display.with_named_radicals(expr, registry)
+    assert len(names) == 2 and len(display.tex(form)) < len(display.tex(expr)) * 2
+    back = form.subs({s: v for s, v in names})
+    _agree(back, expr, (r, R))
+    # the registry keeps names across equations of one document
+    again, names_again = display.with_named_radicals(sp.sqrt(1 - 2 * M / R) * r, registry)
+    assert {s for s, _ in names_again} <= set(registry.values())
+
+
+def test_factored_form_is_equal():
+    expr = M / (r - 2 * M) + Q**2 / (r * (r - 2 * M)) - 1 / r
+    form = display.factored(expr)
+    assert sp.cancel(form - expr) == 0
+
+
+def test_matrix_too_wide_is_shown_by_entry():
+    wide = sp.Matrix([[_long_sum(8), 0], [0, _long_sum(9)]])
+    eq = Derivation("t", (r,)).equation("T", wide, "T")
+    assert eq.entries and all(e.lhs.startswith("T_{") for e in eq.entries)
+
+
+def test_unreadable_forms_are_said_not_shown():
+    inner = sp.log(sum(M**k * sp.sqrt(r + k) for k in range(40)))      # one factor that cannot be broken
+    eq = Derivation("t", (r,)).equation("X", inner, "x")
+    assert eq.omitted and "--json" in eq.omitted and not eq.lines
+
+
+def _overfull(tex: str) -> list[str]:
+    from derive.report.latex import compile_pdf
+
+    ok, log, _ = compile_pdf(tex)
+    assert ok, log[-2000:]
+    return re.findall(r"Overfull \\hbox \(([\d.]+)pt too wide\)", log)
+
+
+@needs_tex
+@pytest.mark.slow
+@pytest.mark.parametrize("name", EXAMPLES)
+def test_worked_derivations_have_no_overfull_lines(name, tmp_path):
+    """Every worked example's derivation (geometry, junctions, field) compiles with no overfull box
+    (pdflatex's own report)."""
+    from derive.cli import main
+
+    target = tmp_path / "derivation.tex"
+    code = main(["field", os.path.join(WORKED, name, "spec.toml"), "--latex", str(target)])
+    assert code == 0
+    assert _overfull(target.read_text()) == []
+    body = (tmp_path / "derivation-body.tex").read_text()
+    assert body.splitlines()[1] in target.read_text() and r"\documentclass" not in body
+
+
+@needs_tex
+def test_demo_derivation_has_no_overfull_lines(tmp_path):
+    """The bundled scenario's derivation, as `derive run` writes it, compiles without an overfull box."""
+    from derive.cli import main
+    from derive.demo import demo_spec_path
+
+    target = tmp_path / "demo.tex"
+    assert main(["field", demo_spec_path(), "--latex", str(target)]) == 0
+    assert _overfull(target.read_text()) == []
