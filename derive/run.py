@@ -52,6 +52,7 @@ def run(spacetime, out: str, tolerance: float = 1e-10, progress=print, l_progres
     from derive.report.derivation import Derivation
     from derive.outputs import check_output_folder, replace_folder, staging_folder, write_atomic
     from derive.report.latex import compile_pdf, field_sections, geometry_sections, junction_sections
+    from derive.report.results_tex import FIGURES, results_section
 
     out = check_output_folder(out)
     staging = staging_folder(out, "run")
@@ -92,20 +93,23 @@ def run(spacetime, out: str, tolerance: float = 1e-10, progress=print, l_progres
             summary["kernels"] = {k["name"]: {"status": k["status"], "max_relative_error": k["max_relative_error"]}
                                   for k in document["kernels"]}
             timings["kernels"] = time.perf_counter() - start
+        if kernels is not None:
+            _numerics(spacetime, staging, tolerance, summary, timings, progress, l_progress)
+        summary["status"] = "tolerance not met" if summary.get("shortfalls") else "ok"
+        summary["tolerance"] = tolerance
+        start = time.perf_counter()
+        figures = [name for name, _ in FIGURES if os.path.isfile(os.path.join(staging, name))]
+        if kernels is not None:
+            results_section(derivation, plain(summary, nonfinite_as_none=True), figures)
         tex = derivation.to_latex()
         write_atomic(os.path.join(staging, "derivation.tex"), tex)
         write_atomic(os.path.join(staging, "derivation-body.tex"), derivation.body_latex())
-        start = time.perf_counter()
-        ok, log, pdf = compile_pdf(tex)
+        ok, log, pdf = compile_pdf(tex, files=[os.path.join(staging, name) for name in figures])
         if ok:
             write_atomic(os.path.join(staging, "derivation.pdf"), pdf)
         else:
             summary["skipped"]["derivation.pdf"] = "pdflatex not found" if "not found" in log else "pdflatex failed"
         timings["latex"] = time.perf_counter() - start
-        if kernels is not None:
-            _numerics(spacetime, staging, tolerance, summary, timings, progress, l_progress)
-        summary["status"] = "tolerance not met" if summary.get("shortfalls") else "ok"
-        summary["tolerance"] = tolerance
         provenance = {"spec": spacetime.path, "spec_hash": spacetime.source_hash, "versions": _versions(),
                       "tolerance": tolerance, "timings_seconds": timings, "command": sys.argv,
                       "parameters": {p.name: p.value for p in spacetime.parameters.values()},

@@ -157,3 +157,14 @@ def test_demo_derivation_has_no_overfull_lines(tmp_path):
     target = tmp_path / "demo.tex"
     assert main(["field", demo_spec_path(), "--latex", str(target)]) == 0
     assert _overfull(target.read_text()) == []
+
+
+def test_values_with_errors_in_concise_notation():
+    """The concise notation of the error in units of the last digit (common practice; e.g. the CODATA tables)."""
+    from derive.report.results_tex import with_error
+
+    assert with_error(0.564331529760, 2.5e-11) == r"5.64331529760(25)\times 10^{-1}"
+    assert with_error(12.3456, 0.12) == r"1.235(12)\times 10^{1}"
+    assert with_error(-3.2e-5, 4e-9) == r"-3.20000(40)\times 10^{-5}"
+    assert with_error(1.5, 0.0) == "1.50000000000000"
+    assert with_error(None, 1.0) == "--" and with_error(float("nan"), 1.0) == "--"

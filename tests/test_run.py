@@ -29,6 +29,14 @@ def test_run_writes_everything(tmp_path, capsys):
     assert provenance["versions"]["sympy"] and provenance["spec_hash"] == derive.load(
         os.path.join(ROOT, "worked", "charged_shell", "spec.toml")).source_hash
     assert (out / "kernels" / "verification.json").is_file()
+    # the derivation ends with the results: the response table with each value and its error, and the figures
+    tex = (out / "derivation.tex").read_text()
+    body = (out / "derivation-body.tex").read_text()
+    assert r"\section{Results}" in tex and r"\section{Results}" in body
+    from derive.report.results_tex import with_error
+    for value, error in zip(response["response"], response["error"]):
+        assert with_error(value, error) in tex
+    assert r"\includegraphics[width=0.8\linewidth]{response.pdf}" in tex
 
 
 def test_a_failing_run_leaves_the_earlier_folder(tmp_path, monkeypatch):

@@ -169,7 +169,8 @@ class Derivation:
         from derive.outputs import LATEX_FIRST_LINE
 
         lines = [f"{LATEX_FIRST_LINE} {__version__}", r"\documentclass[10pt]{article}", r"\usepackage{amsmath,amssymb}",
-                 r"\allowdisplaybreaks", r"\setlength{\textwidth}{6.5in}", r"\setlength{\oddsidemargin}{0in}",
+                 r"\usepackage{graphicx}", r"\allowdisplaybreaks", r"\setlength{\textwidth}{6.5in}",
+                 r"\setlength{\oddsidemargin}{0in}",
                  r"\setlength{\evensidemargin}{0in}", r"\sloppy",
                  r"\title{" + escape(self.title) + "}", r"\author{derive}", r"\date{}",
                  r"\begin{document}", r"\maketitle", self.body_latex().split("\n", 1)[1], r"\end{document}"]

@@ -142,8 +142,9 @@ def region_summary_latex(geo) -> str:
             + r",\quad R_{abcd}R^{abcd} = " + latex_of(geo.kretschmann) + "$")
 
 
-def compile_pdf(tex: str, timeout: float = 120.0) -> tuple[bool, str, bytes | None]:
-    """Compile LaTeX text with pdflatex in a temporary folder.
+def compile_pdf(tex: str, timeout: float = 120.0, files=()) -> tuple[bool, str, bytes | None]:
+    """Compile LaTeX text with pdflatex in a temporary folder (``files``: paths copied there first, the figures
+    the document includes).
 
     Returns (ok, log, pdf bytes or None): the whole log of the last pass when it compiled (overfull boxes are
     reported there), its tail when it failed; (False, reason, None) when pdflatex is not installed.
@@ -152,6 +153,8 @@ def compile_pdf(tex: str, timeout: float = 120.0) -> tuple[bool, str, bytes | No
     if engine is None:
         return False, "pdflatex not found", None
     with tempfile.TemporaryDirectory() as tmp:
+        for source in files:
+            shutil.copyfile(source, os.path.join(tmp, os.path.basename(source)))
         path = os.path.join(tmp, "derivation.tex")
         with open(path, "w", encoding="utf-8") as handle:
             handle.write(tex)
