@@ -117,3 +117,24 @@ def test_ratio_to_minkowski_compares_at_equal_proper_frequency():
     # without the shell the ratio is one at every frequency
     flat = derive.load(SHELL, M=1e-9).spectrum([0.3, 3.0], tolerance=1e-10)
     np.testing.assert_allclose(flat.ratio_to_minkowski, 1.0, rtol=1e-8)
+
+
+def test_every_notebook_object_shows_itself_readably():
+    """Spacetime, region geometry, shell, field problem and kernels: a short repr and a rich one (issue: a
+    notebook printed `<... object at 0x...>`)."""
+    st = derive.load(os.path.join(ROOT, "worked", "charged_shell", "spec.toml"))
+    html_text = st._repr_html_()
+    assert "Static charged shell" in html_text and "0 &lt;= r &lt; R" in html_text and "M = 0.2" in html_text
+    shell = st.shells[0]
+    assert "object at 0x" not in repr(shell)
+    latex = shell._repr_latex_()
+    assert latex.startswith("$") and r"\sigma" in latex and r"\approx" in latex
+    problem = st.field_problem
+    assert "object at 0x" not in repr(problem)
+    assert r"1 - \frac{2 M}{r} + \frac{Q^{2}}{r^{2}}" in problem._repr_latex_()
+    kernels = st.kernels
+    assert "not built yet" in repr(kernels)
+    kernels.entries  # noqa: B018 (built now)
+    assert "kernels" in repr(kernels) and "<table>" in kernels._repr_html_()
+    geo = st.geometry["outside"]
+    assert geo._repr_latex_().startswith("$") and "RegionGeometry" in repr(geo)

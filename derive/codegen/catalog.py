@@ -121,6 +121,33 @@ class KernelSet:
                              file=spacetime.path, key="parameters")
         self.spec_parameters = tuple(p.symbol for p in spacetime.parameters.values())
 
+    def __repr__(self) -> str:
+        # cheap on purpose: nothing is built to print the kernels in a notebook
+        entries = self.__dict__.get("entries")
+        built = "not built yet" if entries is None else f"{len(entries)} kernels"
+        if entries is not None and all(e.verification is not None for e in entries):
+            flagged = sum(e.verification.status != "verified" for e in entries)
+            built += ", all verified" if not flagged else f", {flagged} flagged"
+        return f"<KernelSet of {self.spacetime.title!r}: {built}>"
+
+    def _repr_html_(self) -> str:
+        """A table of the kernels built so far: name, arguments, status and largest relative error."""
+        import html
+
+        entries = self.__dict__.get("entries")
+        if entries is None:
+            return f"<p>{html.escape(repr(self))}</p>"
+        rows = []
+        for e in entries:
+            v = e.verification
+            status = "not verified yet" if v is None else v.status
+            error = "" if v is None else f"{v.max_relative_error:.2e}"
+            rows.append(f"<tr><td><code>{html.escape(e.name)}</code></td>"
+                        f"<td>{html.escape(', '.join(str(a) for a in e.arguments))}</td>"
+                        f"<td>{html.escape(status)}</td><td>{error}</td></tr>")
+        return (f"<p>{html.escape(repr(self))}</p><table><tr><th>kernel</th><th>arguments</th><th>status</th>"
+                f"<th>largest relative error</th></tr>{''.join(rows)}</table>")
+
     @cached_property
     def horizons(self) -> list:
         """The spacetime's horizons (derive.fields.horizons.Horizon): each root r_h is an argument of the kernels

@@ -267,6 +267,21 @@ class FieldProblem:
         return (f"<FieldProblem of {self.spacetime.title!r}: regions {', '.join(self.spacetime.regions)}; "
                 f"{len(self.spacetime.interfaces)} interface(s){horizons}>")
 
+    def _repr_latex_(self) -> str:
+        """Each region's f and potential (where they fit a line), in the form of the derivation document."""
+        from derive.report.display import LINE_WIDTH_PT, tex, width
+
+        rows = []
+        for name, region in self.regions.items():
+            variables = (region.r,)
+            row = rf"\text{{{name}: }} f = {tex(region.f, variables)}"
+            potential = tex(region.potential, variables)
+            if width(potential) <= LINE_WIDTH_PT:
+                row += rf",\quad V = {potential}"
+            rows.append(row)
+        return "$\\displaystyle " + r" \\ ".join(rows) + "$" if len(rows) == 1 else (
+            "$$\\begin{gathered}" + r" \\ ".join(rows) + "\\end{gathered}$$")
+
     @cached_property
     def shells(self):
         return self.spacetime.shells

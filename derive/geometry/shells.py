@@ -61,6 +61,25 @@ class Shell:
         return (f"<Shell between {self.minus!r} and {self.plus!r} at {self.coordinate} = {self.position} "
                 f"({self.spacetime.title!r})>")
 
+    def _repr_latex_(self) -> str:
+        """The shell's surface energy density and pressure (the junction is derived to show them): the closed
+        forms where they fit a line, their values at the spec's parameters otherwise."""
+        from derive.report.display import LINE_WIDTH_PT, tex, width
+
+        parts = [rf"\text{{shell {self.minus} | {self.plus} at }}{tex(self.coordinate)} = {tex(self.position)}"]
+        values = self.spacetime.parameter_values
+        for name, expr in ((r"\sigma", self.surface_energy_density), ("p", self.surface_pressure)):
+            if expr is None:
+                continue
+            shown = tex(expr, self.coordinates)
+            number = sp.N(expr.subs(values), 12) if values else None
+            if width(shown) > LINE_WIDTH_PT or not shown:
+                shown = tex(number) if number is not None and number.is_number else r"\text{(long)}"
+            elif number is not None and number.is_number:
+                shown += rf" \approx {tex(number)}"
+            parts.append(f"{name} = {shown}")
+        return "$\\displaystyle " + r",\quad ".join(parts) + "$"
+
     # -- first junction condition ---------------------------------------------------------------------
     def _on_shell(self, expr):
         return expr.subs(self.coordinate, self.position)

@@ -20,6 +20,7 @@ import re
 
 import sympy as sp
 from sympy.printing.latex import LatexPrinter
+from sympy.printing.str import StrPrinter
 
 # the text block of the document (6.5 in) less room for the equation number and the alignment's indent
 LINE_WIDTH_PT = 400.0
@@ -36,12 +37,10 @@ _RADICAL_NAME = r"\mathcal{{S}}_{{{}}}"
 
 
 # -- printing ---------------------------------------------------------------------------------------------------
-class _Printer(LatexPrinter):
-    """sympy's LaTeX printer with the order of terms and the domains a reader expects."""
+class _Ordered:
+    """The order of a sum's terms that papers use (mixed into sympy's LaTeX and string printers)."""
 
-    def __init__(self, variables=(), **settings):
-        super().__init__(settings)
-        self._variables = tuple(variables)
+    _variables: tuple = ()
 
     def _term_key(self, term):
         """Terms free of the variables first (a number before the rest), then by the power of the variables
@@ -65,11 +64,33 @@ class _Printer(LatexPrinter):
         ranked = sorted(enumerate(terms), key=lambda item: (self._term_key(item[1]), item[0]))
         return [term for _, term in ranked]
 
+
+class _Printer(_Ordered, LatexPrinter):
+    """sympy's LaTeX printer with the order of terms and the domains a reader expects."""
+
+    def __init__(self, variables=(), **settings):
+        super().__init__(settings)
+        self._variables = tuple(variables)
+
     def _print_And(self, expr, *args):
         chain = _chain(expr)
         if chain is not None:
             return chain
         return super()._print_And(expr, *args)
+
+
+class _TextPrinter(_Ordered, StrPrinter):
+    def __init__(self, variables=()):
+        super().__init__()
+        self._variables = tuple(variables)
+
+
+def text(expr, variables=()) -> str:
+    """str() of a sympy object with the terms of every sum in the order of :func:`tex` (sympy reads it back
+    as the same expression)."""
+    if not isinstance(expr, (sp.Basic, sp.MatrixBase)):
+        return str(expr)
+    return _TextPrinter(variables).doprint(expr)
 
 
 _RELATION = {"<": "<", "<=": r"\le", ">": ">", ">=": r"\ge"}

@@ -7,42 +7,51 @@ import math
 
 import sympy as sp
 
-
-def expr_text(expr) -> str:
-    """str() of a sympy expression: the form sympy reads back."""
-    return str(expr)
+from derive.report import display
 
 
-def matrix_text(matrix: sp.Matrix) -> list[list[str]]:
-    return [[expr_text(matrix[i, j]) for j in range(matrix.shape[1])] for i in range(matrix.shape[0])]
+def expr_text(expr, variables=()) -> str:
+    """str() of a sympy expression, the form sympy reads back, with sums in the order papers write them
+    (terms free of ``variables`` first, then by their power)."""
+    return display.text(expr, variables)
+
+
+def matrix_text(matrix: sp.Matrix, variables=()) -> list[list[str]]:
+    return [[expr_text(matrix[i, j], variables) for j in range(matrix.shape[1])] for i in range(matrix.shape[0])]
 
 
 def geometry_json(geo) -> dict:
     """The geometry of one region (keys documented in README.md)."""
+    def _tx(expr):
+        return expr_text(expr, geo.coordinates)
+
+    def _mx(matrix):
+        return matrix_text(matrix, geo.coordinates)
+
     names = [c.name for c in geo.coordinates]
     stress = geo.stress_energy
     out = {
         "coordinates": names,
-        "metric": matrix_text(geo.metric),
-        "inverse_metric": matrix_text(geo.inverse_metric),
-        "christoffel": {f"{names[a]},{names[b]},{names[c]}": expr_text(v) for (a, b, c), v in geo.christoffel.items()},
-        "riemann": {",".join(names[i] for i in k): expr_text(v) for k, v in geo.riemann.items()},
-        "ricci": matrix_text(geo.ricci),
-        "ricci_scalar": expr_text(geo.ricci_scalar),
-        "einstein": matrix_text(geo.einstein),
-        "kretschmann": expr_text(geo.kretschmann),
-        "ricci_squared": expr_text(geo.ricci_squared),
+        "metric": _mx(geo.metric),
+        "inverse_metric": _mx(geo.inverse_metric),
+        "christoffel": {f"{names[a]},{names[b]},{names[c]}": _tx(v) for (a, b, c), v in geo.christoffel.items()},
+        "riemann": {",".join(names[i] for i in k): _tx(v) for k, v in geo.riemann.items()},
+        "ricci": _mx(geo.ricci),
+        "ricci_scalar": _tx(geo.ricci_scalar),
+        "einstein": _mx(geo.einstein),
+        "kretschmann": _tx(geo.kretschmann),
+        "ricci_squared": _tx(geo.ricci_squared),
         "stress_energy": {
-            "mixed": matrix_text(stress["mixed"]),
+            "mixed": _mx(stress["mixed"]),
             "frame": stress["frame"],
-            "energy_density": None if stress["energy_density"] is None else expr_text(stress["energy_density"]),
+            "energy_density": None if stress["energy_density"] is None else _tx(stress["energy_density"]),
             "pressures": None if stress["pressures"] is None else
-            {k: expr_text(v) for k, v in stress["pressures"].items()},
+            {k: _tx(v) for k, v in stress["pressures"].items()},
         },
         "energy_conditions": geo.energy_conditions,
     }
     if geo.dimension >= 4:
-        out["weyl_squared"] = expr_text(geo.weyl_squared)
+        out["weyl_squared"] = _tx(geo.weyl_squared)
     return out
 
 
@@ -75,28 +84,40 @@ def _textify(value):
 
 def junction_json(shell) -> dict:
     """One interface (keys documented in README.md)."""
+    def _tx(expr):
+        return expr_text(expr, shell.coordinates)
+
+    def _mx(matrix):
+        return matrix_text(matrix, shell.coordinates)
+
     k = shell.extrinsic_curvature
     return {
         "between": list(shell.interface.between),
         "at": shell.interface.text,
-        "solved": {str(u): expr_text(v) for u, v in shell.solved.items()},
+        "solved": {str(u): _tx(v) for u, v in shell.solved.items()},
         "intrinsic_coordinates": [c.name for c in shell.tangential],
-        "induced_metric": matrix_text(shell.induced_metric),
+        "induced_metric": _mx(shell.induced_metric),
         "normal_points_to_larger": shell.coordinate.name if shell.orientation > 0 else None,
-        "extrinsic_curvature": {"first": matrix_text(k["minus"]), "second": matrix_text(k["plus"]),
-                                "jump": matrix_text(k["jump"]), "trace_jump": expr_text(k["trace_jump"])},
-        "surface_stress": matrix_text(shell.surface_stress),
+        "extrinsic_curvature": {"first": _mx(k["minus"]), "second": _mx(k["plus"]),
+                                "jump": _mx(k["jump"]), "trace_jump": _tx(k["trace_jump"])},
+        "surface_stress": _mx(shell.surface_stress),
         "surface_energy_density": _textify(shell.surface_energy_density),
         "surface_pressure": _textify(shell.surface_pressure),
         "surface_pressures": _textify(shell.surface_pressures),
         "proper_mass": _textify(shell.proper_mass),
-        "ricci_delta": expr_text(shell.ricci_delta),
+        "ricci_delta": _tx(shell.ricci_delta),
         "energy_conditions": shell.energy_conditions,
     }
 
 
 def field_json(problem, l_value=None) -> dict:
     """The radial problem of every region and the transfer matrix of every interface."""
+    def _tx(expr):
+        return expr_text(expr, problem.spacetime.coordinates)
+
+    def _mx(matrix):
+        return matrix_text(matrix, problem.spacetime.coordinates)
+
     from derive.fields.radial import L_SYMBOL
 
     def at_l(expr):
@@ -112,18 +133,18 @@ def field_json(problem, l_value=None) -> dict:
     regions = {}
     for name, region in problem.regions.items():
         regions[name] = {
-            "f": expr_text(region.f), "h": expr_text(region.h),
+            "f": _tx(region.f), "h": _tx(region.h),
             "transverse": {"n": region.form.n, "k": region.form.k},
-            "eigenvalue": expr_text(at_l(region.eigenvalue)),
-            "ricci_scalar": expr_text(region.ricci_scalar),
-            "dtortoise_dr": expr_text(region.dtortoise_dr),
-            "tortoise": None if region.tortoise is None else expr_text(region.tortoise),
-            "potential": expr_text(at_l(region.potential)),
+            "eigenvalue": _tx(at_l(region.eigenvalue)),
+            "ricci_scalar": _tx(region.ricci_scalar),
+            "dtortoise_dr": _tx(region.dtortoise_dr),
+            "tortoise": None if region.tortoise is None else _tx(region.tortoise),
+            "potential": _tx(at_l(region.potential)),
             "ends": _textify(deep(region.ends)),
         }
     interfaces = [{"between": list(m.between), "at": m.shell.interface.text,
-                   "transfer_matrix": matrix_text(m.transfer_matrix.applyfunc(at_l)),
-                   "derivative_jump": expr_text(m.derivative_jump)} for m in problem.interfaces]
-    return {"l": l_value, "mass": expr_text(problem.spacetime.field.mass),
-            "coupling": expr_text(problem.spacetime.field.coupling), "boundary": problem.spacetime.field.boundary,
+                   "transfer_matrix": _mx(m.transfer_matrix.applyfunc(at_l)),
+                   "derivative_jump": _tx(m.derivative_jump)} for m in problem.interfaces]
+    return {"l": l_value, "mass": _tx(problem.spacetime.field.mass),
+            "coupling": _tx(problem.spacetime.field.coupling), "boundary": problem.spacetime.field.boundary,
             "regions": regions, "interfaces": interfaces}

@@ -5,8 +5,12 @@ from __future__ import annotations
 import sympy as sp
 
 
-def _short(expr, width: int = 90) -> str:
-    text = str(expr)
+def _short(expr, width: int = 90, variables=()) -> str:
+    """One line of an expression for the terminal, sums ordered by the powers of ``variables`` (the
+    coordinates), cut at ``width`` characters."""
+    from derive.report.display import text as ordered
+
+    text = ordered(expr, variables) if not isinstance(expr, str) else expr
     return text if len(text) <= width else text[: width - 3] + "..."
 
 
@@ -81,20 +85,24 @@ def spec_summary(spacetime) -> str:
 
 def geometry_summary(spacetime, names) -> str:
     lines = [f"{spacetime.title}"]
+
+    def short(expr):
+        return _short(expr, variables=spacetime.coordinates)
+
     for name in names:
         geo = spacetime.geometry[name]
         lines.append(f"\nregion {name} ({geo.dimension} dimensions, coordinates "
                      f"{', '.join(c.name for c in geo.coordinates)})")
         lines.append(f"  nonzero Christoffel symbols:     {len(geo.christoffel)}")
         lines.append(f"  independent nonzero Riemann:     {len(geo.riemann)}")
-        lines.append(f"  Ricci scalar R         = {_short(geo.ricci_scalar)}")
-        lines.append(f"  Kretschmann R_abcd R^abcd = {_short(geo.kretschmann)}")
-        lines.append(f"  Ricci squared R_ab R^ab  = {_short(geo.ricci_squared)}")
+        lines.append(f"  Ricci scalar R         = {short(geo.ricci_scalar)}")
+        lines.append(f"  Kretschmann R_abcd R^abcd = {short(geo.kretschmann)}")
+        lines.append(f"  Ricci squared R_ab R^ab  = {short(geo.ricci_squared)}")
         stress = geo.stress_energy
         if stress["energy_density"] is not None:
-            lines.append(f"  energy density rho     = {_short(stress['energy_density'])}")
+            lines.append(f"  energy density rho     = {short(stress['energy_density'])}")
             for cname, p in stress["pressures"].items():
-                lines.append(f"  pressure p_{cname:<11} = {_short(p)}")
+                lines.append(f"  pressure p_{cname:<11} = {short(p)}")
             for cond, verdict in geo.energy_conditions.items():
                 where = verdict.get("fails_where")
                 tail = f", fails where {where}" if where and where != "everywhere" else ""
@@ -106,19 +114,23 @@ def geometry_summary(spacetime, names) -> str:
 
 def junction_summary(spacetime) -> str:
     lines = [spacetime.title]
+
+    def short(expr):
+        return _short(expr, variables=spacetime.coordinates)
+
     for shell in spacetime.shells:
         first, second = shell.interface.between
         lines.append(f"\ninterface {first} | {second} at {shell.interface.text} (normal from {first} to {second})")
         for unknown, value in shell.solved.items():
-            lines.append(f"  first junction condition: {unknown} = {_short(value)}")
+            lines.append(f"  first junction condition: {unknown} = {short(value)}")
         if not shell.solved:
             lines.append("  first junction condition: induced metrics agree")
-        lines.append(f"  [K] = {_short(shell.extrinsic_curvature['trace_jump'])}")
+        lines.append(f"  [K] = {short(shell.extrinsic_curvature['trace_jump'])}")
         if shell.surface_energy_density is not None:
-            lines.append(f"  surface energy density sigma = {_short(shell.surface_energy_density)}")
-            lines.append(f"  surface pressure p           = {_short(shell.surface_pressure)}")
+            lines.append(f"  surface energy density sigma = {short(shell.surface_energy_density)}")
+            lines.append(f"  surface pressure p           = {short(shell.surface_pressure)}")
         if shell.proper_mass is not None:
-            lines.append(f"  proper mass m = 4 pi R^2 sigma = {_short(shell.proper_mass)}")
+            lines.append(f"  proper mass m = 4 pi R^2 sigma = {short(shell.proper_mass)}")
         values = spacetime.parameter_values
         if shell.surface_energy_density is not None:
             sigma = shell.surface_energy_density.subs(values)

@@ -239,3 +239,37 @@ class Spacetime:
         regions = ", ".join(self.regions)
         return (f"<Spacetime {self.title!r}: {self.dimension} dimensions, regions {regions}; "
                 f"{len(self.interfaces)} interface(s); from {self.path}>")
+
+    def _repr_html_(self) -> str:
+        """The spec as a notebook shows it: regions with their line elements and domains, interfaces,
+        parameters, field and detector, all in the spec's own words (nothing is derived to show it)."""
+        import html
+
+        def cell(text):
+            return f"<td>{html.escape(str(text))}</td>"
+
+        rows = "".join(f"<tr>{cell(name)}{cell(region.where_text or 'everywhere')}"
+                       f"<td><code>{html.escape(region.line_element_text or '(metric components)')}</code></td></tr>"
+                       for name, region in self.regions.items())
+        lines = [f"<p><b>{html.escape(self.title)}</b> ({self.dimension} dimensions, from "
+                 f"<code>{html.escape(str(self.path))}</code>)</p>",
+                 f"<table><tr><th>region</th><th>where</th><th>line element</th></tr>{rows}</table>"]
+        if self.interfaces:
+            lines.append("<p>interfaces: " + "; ".join(
+                html.escape(f"{' | '.join(i.between)} at {i.text}") for i in self.interfaces) + "</p>")
+        if self.parameters:
+            lines.append("<p>parameters: " + ", ".join(
+                html.escape(f"{p.name} = {p.value:g}" if p.value is not None else p.name)
+                for p in self.parameters.values()) + "</p>")
+        if self.field is not None:
+            lines.append(html.escape(f"field: mass {self.field.mass}, coupling {self.field.coupling}")
+                         .join(("<p>", "</p>")))
+        if self.detector is not None and self.detector.gaps:
+            detector = self.detector
+            gaps = ", ".join(f"{g:g}" for g in detector.gaps)
+            lines.append("<p>" + html.escape(f"detector at {detector.coordinate} = {detector.position}, state "
+                                             f"{detector.state}, gaps {gaps}") + "</p>")
+        if self.detectors:
+            lines.append("<p>detectors: " + "; ".join(html.escape(f"{d.name} at {d.at}, gap {d.gap:g}")
+                                                      for d in self.detectors) + "</p>")
+        return "".join(lines)
