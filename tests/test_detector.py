@@ -242,7 +242,12 @@ def test_massive_field_with_bound_states_is_refused(capsys, tmp_path):
     path = tmp_path / "spec.toml"
     path.write_text(text)
     assert main(["response", str(path)]) == 2
-    assert "bound states" in capsys.readouterr().err
+    err = capsys.readouterr().err
+    assert "bound states" in err
+    # the refusal names exactly what is missing: the l = 0 levels (with their weights) and the infinitely many
+    # more that accumulate at the continuum's threshold (the lapse at infinity times mu: 1 here)
+    assert "missing are the l = 0 levels omega = 0.9" in err and "weight" in err
+    assert "infinitely many more accumulating at omega = 1" in err
 
 
 @pytest.mark.slow

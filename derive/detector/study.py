@@ -145,10 +145,11 @@ def proper_density(problem, tolerance, r0: float = 0.0, state: str = "vacuum", p
         raise Unsupported(f"state {state!r} needs a horizon; this spacetime has none (use 'vacuum')")
 
     if bound_states_possible(problem):
-        raise Unsupported("a massive field here can have bound states below the mass (V dips below mu^2, e.g. "
-                          "the Coulomb-like tail of a gravitating body): derive spectrum lists the lowest levels "
-                          "of each l with their weights, but their infinitely many levels and l are not yet "
-                          "summed into a response, so a response would be incomplete")
+        raise Unsupported("a massive field here has bound states below the mass (V dips below mu^2, e.g. the "
+                          "Coulomb-like tail of a gravitating body), and their part of the response is not built: "
+                          + missing_levels(problem, r0) + ". The continuum above the mass alone would be an "
+                          "incomplete response, so none is given; derive spectrum lists the levels with their "
+                          "weights")
 
     solve = density_function(problem, r0, tolerance, progress)
 
@@ -158,6 +159,26 @@ def proper_density(problem, tolerance, r0: float = 0.0, state: str = "vacuum", p
             _missed(shortfalls, result, tolerance)
         return sqrt_f0 * result.density, sqrt_f0 * result.error
     return density_at, sqrt_f0, False
+
+
+def missing_levels(problem, r0: float) -> str:
+    """What a response would need from the discrete spectrum at r0, in words: the lowest levels of l = 0 (as
+    frequencies of the spec's time, with their weights at r0), whether infinitely many follow (a Coulomb-like
+    tail: they accumulate at the continuum's threshold), and, off the centre, the levels of every l."""
+    from derive.solve.bound import bound_states
+    from derive.solve.centre import continuum_threshold
+
+    threshold = continuum_threshold(problem)
+    where = "at the centre only l = 0 reaches" if r0 == 0.0 else f"at r = {r0:.6g} every l contributes"
+    try:
+        levels = bound_states(problem, 0, r0, 1e-8, count=4)
+    except Exception:       # noqa: BLE001 (the message only; the refusal stands either way)
+        return f"the levels below omega = {threshold:.10g} ({where}) are missing"
+    listed = ", ".join(f"{w:.10g} (weight {c:.3e})" for w, c in zip(levels.omega, levels.weight))
+    more = (f" and infinitely many more accumulating at omega = {threshold:.10g}" if levels.truncated
+            else "")
+    return (f"missing are the l = 0 levels omega = {listed}{more}"
+            + ("" if r0 == 0.0 else ", and those of every l > 0") + f" ({where})")
 
 
 def local_temperature(problem, sqrt_f0: float) -> float | None:
