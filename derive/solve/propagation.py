@@ -137,11 +137,15 @@ def _trig_pair(k2, x):
     """c = cos(k x), so = sin(k x)/k for k^2 > 0 (cosh, sinh/gamma for k^2 < 0), real arithmetic, with the
     series near k x = 0."""
     z2 = k2 * x * x
+    small = np.abs(z2) < 1e-3
+    pos = (z2 > 0) & ~small
+    if pos.all():              # the common case, oscillatory everywhere: no masked copies
+        k = np.sqrt(k2)
+        kx = k * x
+        return np.cos(kx), np.sin(kx) / k
     c = np.empty(np.broadcast(k2, x).shape)
     so = np.empty_like(c)
     x = np.broadcast_to(x, c.shape)
-    small = np.abs(z2) < 1e-3
-    pos = (z2 > 0) & ~small
     neg = (z2 < 0) & ~small
     if np.any(small):
         z = z2[small]
@@ -178,24 +182,26 @@ def step_integrals(k2, h, c=None, so=None):
     if c is None or so is None:
         c, so = _trig_pair(k2, a)
     beta2 = 4 * k2
-    u = -beta2 * a * a                      # the series variable (-beta^2 a^2)
-    total_s = np.zeros(u.shape)
-    for coefficient in reversed(_S_SERIES):
-        total_s = total_s * u + coefficient
-    total_k = np.zeros(u.shape)
-    for coefficient in reversed(_K_SERIES):
-        total_k = total_k * u + coefficient
     a2 = a * a
+    u = -beta2 * a2                         # the series variable (-beta^2 a^2)
     small = np.abs(u) < 0.25
     with np.errstate(divide="ignore", invalid="ignore"):
         sb = so * c                          # sin(beta a)/beta (sinh(B a)/B for beta^2 < 0)
         cz = 2 * c * c - 1                   # cos(beta a) (cosh)
         inverse = 1 / np.where(small, 1.0, beta2)
-        S_closed = 2 * (sb - a * cz) * inverse
+        S = 2 * (sb - a * cz) * inverse
         c2 = a2 * sb + 2 * (a * cz - sb) * inverse
-        Kq_closed = 4 * (2 * c2 - (2 / 3) * a2 * sb) * inverse
-    S = np.where(small, total_s * a2 * a, S_closed)
-    Kq = np.where(small, total_k * a2 * a2 * a, Kq_closed)
+        Kq = 4 * (2 * c2 - (2 / 3) * a2 * sb) * inverse
+    if small.any():                          # the series where the closed forms cancel (only there)
+        us, as_ = u[small], a[small]
+        total_s = np.zeros(us.shape)
+        for coefficient in reversed(_S_SERIES):
+            total_s = total_s * us + coefficient
+        total_k = np.zeros(us.shape)
+        for coefficient in reversed(_K_SERIES):
+            total_k = total_k * us + coefficient
+        S[small] = total_s * as_ ** 3
+        Kq[small] = total_k * as_ ** 5
     return S, Kq
 
 
