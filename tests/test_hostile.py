@@ -14,8 +14,11 @@ import stat
 
 import pytest
 
+import derive
 from conftest import two_region_spec
 from derive.cli import main
+
+ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 
 BASE = two_region_spec("1", "f", "M = { value = 0.1, positive = true }\nR = { value = 1.0, positive = true }")
 BASE = BASE.replace("[[region]]", '[definitions]\nf = "1 - 2*M/r"\n[[region]]', 1).lstrip() + """[detector]
@@ -798,3 +801,31 @@ def test_horizon_as_a_bound(sandbox, capsys, where, problem):
         assert main(["check", path]) == 0
         return
     _run_refused(sandbox, capsys, ["check", path], "region[0].where")
+
+
+def test_a_junction_solve_that_does_not_finish_is_refused_with_what_to_do(monkeypatch, capsys):
+    """No symbolic step runs unbounded: the first junction condition's solve past its time limit is an input
+    error saying what to write instead (the limit shrunk here so that any solve passes it)."""
+    from derive.geometry import shells
+
+    monkeypatch.setattr(shells, "SOLVE_SECONDS", 1e-6)
+    code = main(["junction", os.path.join(ROOT, "worked", "charged_shell", "spec.toml")])
+    assert code == 2
+    err = capsys.readouterr().err
+    assert "was not solved for alpha within" in err and "[definitions]" in err and "Traceback" not in err
+
+
+def test_field_stage_simplifications_fall_back_to_the_exact_forms(monkeypatch):
+    """The ends' simplifications past their time limit leave the forms as computed: the same physics (the
+    horizon's surface gravity 1/(4M) for Schwarzschild, from memory of any GR text) still comes out."""
+    import sympy as sp
+
+    from derive.fields import ends
+
+    monkeypatch.setattr(ends, "TIDY_SECONDS", 1e-6)
+    st = derive.load(os.path.join(ROOT, "worked", "schwarzschild", "spec.toml"))
+    region = next(iter(st.field_problem.regions.values()))
+    kappa = region.ends["lower"]["surface_gravity"]
+    mass = st.parameter_values[next(s for s in st.parameter_values if s.name == "M")]
+    assert isinstance(kappa, sp.Basic)
+    assert abs(float(kappa.subs(st.kernels.values)) - 1 / (4 * float(mass))) < 1e-12

@@ -16,16 +16,26 @@ from __future__ import annotations
 import sympy as sp
 
 from derive.fields.radial import L_SYMBOL, OMEGA
+from derive.geometry.checks import bounded
 
 SERIES_ORDER = 2   # shown and exported; the solver continues the recursion numerically
+TIDY_SECONDS = 5.0
+
+
+def _tidy(expr):
+    """sympy's simplify within a few seconds, else the form as it stands (equally exact, only longer): no
+    symbolic step of the field stage may run unbounded."""
+    return bounded(lambda: sp.simplify(expr), expr, seconds=TIDY_SECONDS)
 
 
 def _limit(expr, x):
     try:
-        value = sp.limit(expr, x, 0, "+")
+        value = bounded(lambda: sp.limit(expr, x, 0, "+"), None, seconds=TIDY_SECONDS)
     except Exception:   # sympy could not take the limit: treat as not finite
         return sp.zoo
-    return sp.simplify(value)
+    if value is None:   # not found in time: treated as not finite, as when sympy cannot take it
+        return sp.zoo
+    return _tidy(value)
 
 
 def frobenius(p, q, r, r0, exponent, order: int = SERIES_ORDER, upper: bool = False) -> list:
@@ -207,12 +217,12 @@ def _finite_end(field, r0, interfaces, p, q, F2, side) -> dict:
     if f0 == 0 and h0 == 0:
         fp = _limit(sp.diff(f, r).subs(r, r0 + (x if side == "lower" else -x)), x)
         hp = _limit(sp.diff(h, r).subs(r, r0 + (x if side == "lower" else -x)), x)
-        kappa = sp.simplify(sp.sqrt(sp.factor(fp * hp)) / 2)
+        kappa = _tidy(sp.sqrt(sp.factor(fp * hp)) / 2)
         if kappa == 0:
             return {"kind": "degenerate horizon", "at": r0}
         ingoing = -sp.I * OMEGA / (2 * kappa)
         end = {"kind": "horizon", "at": r0, "surface_gravity": kappa,
-               "hawking_temperature": sp.simplify(kappa / (2 * sp.pi)),
+               "hawking_temperature": _tidy(kappa / (2 * sp.pi)),
                "exponents": [ingoing, -ingoing],
                "behaviour": "u ~ exp(-+ i omega r*) ~ (r - r_h)^(-+ i omega/(2 kappa))"}
         if side == "lower":
@@ -225,8 +235,8 @@ def _finite_end(field, r0, interfaces, p, q, F2, side) -> dict:
             s = sp.Symbol("s")
             roots = sp.solve(sp.expand(s * (s - 1) + P0 * s + Q0), s)
             roots = sorted(roots, key=lambda e: -float(e.subs(L_SYMBOL, 1)))
-            regular = sp.simplify(roots[0])
-            return {"kind": "regular centre", "at": 0, "exponents": [sp.simplify(e) for e in roots],
+            regular = _tidy(roots[0])
+            return {"kind": "regular centre", "at": 0, "exponents": [_tidy(e) for e in roots],
                     "regular_exponent": regular, "series": frobenius(p, q, r, 0, regular),
                     "behaviour": "u ~ r^(l + n/2) (1 + a_1 r + ...)"}
         return {"kind": "singular", "at": 0}
@@ -243,7 +253,7 @@ def _infinity(field, V, p=None, q=None) -> dict:
     if f_inf in (sp.oo, -sp.oo):
         lead = sp.limit(f / r ** 2, r, sp.oo)
         end = {"kind": "infinity", "tail": "AdS-like" if lead.is_positive else "growing",
-               "f_leading": sp.simplify(lead) * r ** 2,
+               "f_leading": _tidy(lead) * r ** 2,
                "behaviour": "reflecting conformal boundary at finite r*: the spectrum is discrete"}
         if lead.is_positive and p is not None:
             end.update(ads_boundary_series(p, q, r))
@@ -253,7 +263,7 @@ def _infinity(field, V, p=None, q=None) -> dict:
         f_expansion = sp.series(f.subs(r, 1 / z), z, 0, 2).removeO()
     except Exception:   # sympy could not expand: say so rather than guess
         return {"kind": "infinity", "tail": "unknown"}
-    V0, V1, V2 = (sp.simplify(expansion.coeff(z, k)) for k in range(3))
+    V0, V1, V2 = (_tidy(expansion.coeff(z, k)) for k in range(3))
     if V0 != 0:
         tail = "Coulomb-like (massive)" if V1 != 0 else "massive, short-range"
     elif V1 != 0:
@@ -263,7 +273,7 @@ def _infinity(field, V, p=None, q=None) -> dict:
     else:
         tail = "short-range"
     return {"kind": "infinity", "tail": tail, "V_infinity": V0, "coulomb": V1, "centrifugal": V2,
-            "f_expansion": sp.simplify(f_expansion.subs(z, 1 / r)),
+            "f_expansion": _tidy(f_expansion.subs(z, 1 / r)),
             "behaviour": {"short-range": "free waves exp(+- i omega r*)",
                           "centrifugal": "Riccati-Bessel functions of omega r*",
                           "Coulomb-like": "Coulomb wave functions",
@@ -291,7 +301,7 @@ def ads_boundary_series(p, q, r, order: int = BOUNDARY_ORDER) -> dict:
     # solver checks that at the parameters' values)
     root = sp.sqrt(sp.factor((1 - P0) ** 2 - 4 * Q0))
     fast, slow = ((1 - P0) + root) / 2, ((1 - P0) - root) / 2
-    out = {"boundary_exponents": {"dirichlet": sp.simplify(fast), "neumann": sp.simplify(slow)}}
+    out = {"boundary_exponents": {"dirichlet": _tidy(fast), "neumann": _tidy(slow)}}
     for name, exponent in (("dirichlet", fast), ("neumann", slow)):
         if name == "neumann" and root.is_number and root >= 2:    # nu >= 1: the slower falloff is not normalisable
             out["series_neumann"] = None

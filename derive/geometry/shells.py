@@ -20,7 +20,7 @@ from functools import cached_property
 import sympy as sp
 
 from derive.errors import GeometryError, JunctionError
-from derive.geometry.checks import simplify_checked
+from derive.geometry.checks import bounded, simplify_checked
 from derive.geometry.matter import energy_conditions
 
 
@@ -34,6 +34,9 @@ def _clean(expr):
     if len(radicals) == 1:   # radsimp is fast and helpful with one radical, explosive with several
         candidates.append(sp.simplify(sp.radsimp(expr)))
     return min(candidates, key=sp.count_ops)
+
+
+SOLVE_SECONDS = 30.0   # the first junction condition's solve; past it the user is told what to write instead
 
 
 class Shell:
@@ -106,7 +109,15 @@ class Shell:
         equations = {k: v for k, v in equations.items() if v != 0}
         solution: dict = {}
         if equations and self.unknowns:
-            candidates = sp.solve(list(equations.values()), list(self.unknowns), dict=True)
+            candidates = bounded(lambda: sp.solve(list(equations.values()), list(self.unknowns), dict=True),
+                                 None, seconds=SOLVE_SECONDS)
+            if candidates is None:
+                raise JunctionError(
+                    f"the first junction condition at {self.interface.text} was not solved for "
+                    f"{', '.join(map(str, self.unknowns))} within {SOLVE_SECONDS:g} s (sympy's solve on "
+                    f"{len(equations)} equation(s)); write the unknown's value into the line element (for "
+                    "example as a [definitions] entry) so that the induced metrics agree as they stand",
+                    file=self.spacetime.path, key=self._key())
             values = self.spacetime.parameter_values
             for candidate in candidates:
                 ok = True
