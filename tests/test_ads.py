@@ -120,3 +120,40 @@ def test_neumann_and_transparent_normal_modes(tmp_path, capsys):
         modes = normal_modes(spec, 0, capsys)
         np.testing.assert_allclose(modes["omega"], np.array(expected) / L, rtol=1e-11)
         np.testing.assert_allclose(modes["weight"], half * np.array(expected) / (2 * np.pi ** 2 * L), rtol=1e-10)
+
+
+@pytest.mark.slow
+def test_an_off_centre_detector_in_ads_against_the_closed_form_wightman_function(tmp_path, capsys):
+    # The conformally coupled massless field in AdS4 with the reflecting (Dirichlet, Delta = 2) condition has
+    # W = (1/(8 pi^2 L^2)) [1/(Z - 1) - 1/(Z + 1)] (Avis, Isham & Storey, Phys. Rev. D 18, 3565 (1978)), Z = -X.X'/L^2
+    # the embedding-space invariant; at the centre it is the mode sum of the test above, -1/(4 pi^2 L^2 sin^2(u/L)).
+    # A static detector at r0 (lapse gamma = sqrt(1 + r0^2/L^2), proper time tau = gamma t) has
+    # Z = gamma^2 cos(tau/(gamma L)) - gamma^2 + 1 (derived here).  F(Omega) = int du C(u) e^{-i Omega u} W(u - i0)
+    # with C(u) = sqrt(pi) sigma e^{-u^2/(4 sigma^2)} for the Gaussian; W's singularities are all on the real
+    # axis (cos w = c with |c| <= 1 has real roots only), so the integral runs on Im u = -sigma/2 (mpmath).
+    # derive sums the normal modes of every l below the switching's reach.
+    import mpmath as mp
+
+    sigma, r0, gaps = 1.0, 0.7, [-1.0, 0.0, 1.0]
+    spec = ads_spec(str(tmp_path), coupling="1/6", width=str(sigma))
+    with open(spec) as handle:
+        text = handle.read().replace('at = "r = 0"', f'at = "r = {r0}"').replace("gaps = [0.0]", f"gaps = {gaps}")
+    with open(spec, "w") as handle:
+        handle.write(text)
+    assert main(["response", spec, "--json", "--tolerance", "1e-9"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    mp.mp.dps = 25
+    g2 = 1 + mp.mpf(r0) ** 2 / L ** 2
+    shift = mp.mpf(sigma) / 2
+
+    def wightman(z):
+        Z = g2 * mp.cos(z / (mp.sqrt(g2) * L)) - g2 + 1
+        return (1 / (Z - 1) - 1 / (Z + 1)) / (8 * mp.pi ** 2 * L ** 2)
+
+    for gap, value, error in zip(gaps, data["response"], data["error"]):
+        def integrand(u, gap=gap):
+            z = u - 1j * shift
+            return mp.sqrt(mp.pi) * sigma * mp.exp(-z ** 2 / (4 * sigma ** 2) - 1j * gap * z) * wightman(z)
+        exact = float(mp.re(mp.quad(integrand, [-mp.inf, -5, 0, 5, mp.inf])))
+        assert abs(value - exact) <= error, (gap, value, exact, error)
+        assert error < 1e-9 * value

@@ -219,14 +219,11 @@ def detector_response(problem, detector, tolerance: float = 1e-10, gaps=None, st
         if state != "vacuum":
             raise Unsupported(f"state {state!r}: an AdS spacetime without a horizon has its global vacuum only "
                               "(use 'vacuum')")
-        if detector.radius != 0.0:
-            raise Unsupported("in AdS the response is computed at the centre so far: off it, the sum over l of "
-                              "every normal mode below the switching's reach is not yet fast enough to be checked "
-                              "(derive spectrum --at gives the normal modes and their weights there)")
         from derive.detector.response import normal_mode_response
 
         sqrt_f0 = _sqrt_f(problem, detector.radius)
-        return normal_mode_response(problem, gaps, switching, sqrt_f0, tolerance), switching, sqrt_f0
+        return (normal_mode_response(problem, gaps, switching, sqrt_f0, tolerance, detector.radius, progress),
+                switching, sqrt_f0)
     from derive.solve.cosmological import constant_zero_mode, has_cosmological_horizon
 
     if has_cosmological_horizon(problem) and constant_zero_mode(problem):

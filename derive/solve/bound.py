@@ -314,16 +314,58 @@ def _levels(problem, l, steps, count, r0, brackets=None):
             break
         low, high = np.where(lost, low - width, low), np.where(lost, high + width, high)
         d_low = _d_value(problem, l, low, steps, layout)
-    for _ in range(BISECTIONS):
-        middle = 0.5 * (low + high)
-        if np.all((middle == low) | (middle == high)):
+    found = _zeros(lambda x: _d_scaled(problem, l, x, steps, layout), low, high)
+    return np.where(lost, np.nan, found), truncated, brackets
+
+
+def _d_scaled(problem, l, omegas, steps, layout):
+    """D(omega) as (value at unit scale, log scale): D = value e^(log scale)."""
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        return _march(problem, l, omegas, steps, layout)[0]
+
+
+def _zeros(evaluate, low, high):
+    """The zero of D in each bracket [low, high] (sign change), to the last bits: false position with the
+    Illinois modification, every fourth step a bisection (so that each bracket at least halves every four
+    steps whatever D does), all brackets together; a bracket is done when its estimate stops moving or its
+    width reaches rounding.  D is compared across evaluations on one scale per bracket (its log scale at the
+    lower end), so that the interpolation sees the function and not the marcher's rescaling.  About ten
+    evaluations where bisection took fifty."""
+    low, high = low.astype(float).copy(), high.astype(float).copy()
+    value, scale = evaluate(low)
+    reference = scale
+    f_low = value
+    value, scale = evaluate(high)
+    f_high = value * np.exp(scale - reference)
+    estimate = 0.5 * (low + high)
+    active = np.isfinite(f_low) & np.isfinite(f_high) & (np.sign(f_low) * np.sign(f_high) < 0)
+    kept = np.zeros(len(low), dtype=int)        # +1: the high end was kept last time, -1: the low end
+    for step in range(4 * BISECTIONS):
+        index = np.nonzero(active)[0]
+        if not len(index):
             break
-        d_mid = _d_value(problem, l, middle, steps, layout)
-        same = np.sign(d_mid) == np.sign(d_low)
-        low, d_low = np.where(same, middle, low), np.where(same, d_mid, d_low)
-        high = np.where(same, high, middle)
-    found = np.where(lost, np.nan, 0.5 * (low + high))
-    return found, truncated, brackets
+        a, b, fa, fb = low[index], high[index], f_low[index], f_high[index]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            x = b - fb * (b - a) / (fb - fa)
+        bisect = ~np.isfinite(x) | (x <= a) | (x >= b) | (step % 4 == 3)
+        x = np.where(bisect, 0.5 * (a + b), x)
+        value, scale = evaluate(x)
+        fx = value * np.exp(scale - reference[index])
+        moved = np.abs(x - estimate[index])
+        estimate[index] = x
+        same = np.sign(fx) == np.sign(fa)
+        # Illinois: the end kept twice running has its value halved, so that the next step moves it
+        halve_high = same & (kept[index] == 1)
+        halve_low = ~same & (kept[index] == -1)
+        low[index] = np.where(same, x, a)
+        f_low[index] = np.where(same, fx, np.where(halve_low, fa / 2, fa))
+        high[index] = np.where(same, b, x)
+        f_high[index] = np.where(same, np.where(halve_high, fb / 2, fb), fx)
+        kept[index] = np.where(same, 1, -1)
+        tiny = 4 * np.finfo(float).eps * np.abs(x)
+        done = (fx == 0) | (high[index] - low[index] <= tiny) | (~bisect & (moved <= tiny))
+        active[index[done]] = False
+    return estimate
 
 
 def _weights(problem, l, omegas, steps, r0):

@@ -58,6 +58,7 @@ def make_grid(region, lower: float, upper: float, count: int, geometric: bool) -
     key = (id(region), float(lower), float(upper), int(count), bool(geometric))
     hit = _GRIDS.get(key)
     if hit is not None and hit[0] is region:
+        _GRIDS[key] = _GRIDS.pop(key)       # most recently used last: the oldest go first when full
         return hit[1]
     r, mid = radial_nodes(lower, upper, count, geometric)
     a, b = r[:-1], r[1:]
@@ -66,8 +67,8 @@ def make_grid(region, lower: float, upper: float, count: int, geometric: bool) -
     increments = half * np.sum(GAUSS_WEIGHTS[None, :] * region.dtortoise_dr(points), axis=1)
     grid = Grid(r, increments, mid)
     grid = replace(grid, gauss_points=_gauss_points(region, grid))
-    if len(_GRIDS) >= _GRID_LIMIT:
-        _GRIDS.clear()
+    while len(_GRIDS) >= _GRID_LIMIT:
+        del _GRIDS[next(iter(_GRIDS))]
     _GRIDS[key] = (region, grid)
     return grid
 
