@@ -168,3 +168,17 @@ def test_values_with_errors_in_concise_notation():
     assert with_error(-3.2e-5, 4e-9) == r"-3.20000(40)\times 10^{-5}"
     assert with_error(1.5, 0.0) == "1.50000000000000"
     assert with_error(None, 1.0) == "--" and with_error(float("nan"), 1.0) == "--"
+
+
+def test_pdf_figures_embed_truetype_fonts(tmp_path):
+    """Vector figures with Type 42 (TrueType) fonts, not Type 3 (which journals' production systems refuse):
+    the PDF's font dictionaries say /Subtype /TrueType or /Type0 (common practice of publishers' checks)."""
+    from derive.report.tables import write_response_files
+
+    data = {"gaps": [-1.0, 0.0, 1.0], "response": [0.2, 0.08, 0.007], "error": [1e-12, 1e-12, 1e-13],
+            "switching": {"shape": "gaussian", "width": 0.5}, "state": "vacuum", "at": 0.0,
+            "locality": {"duration": 5.0, "round_trip": 2.0, "local": False}}
+    paths = write_response_files(str(tmp_path), data, "test", pdf=True)
+    pdf = next(p for p in paths if p.endswith(".pdf"))
+    raw = open(pdf, "rb").read()
+    assert b"/Type3" not in raw and (b"/TrueType" in raw or b"/Type0" in raw)

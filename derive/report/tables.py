@@ -30,8 +30,12 @@ def _save(figure, out: str, stem: str, pdf: bool) -> list[str]:
     paths = [os.path.join(out, stem + ".png")]
     write_atomic(paths[0], _png(figure))
     if pdf:
+        import matplotlib
+
         buffer = io.BytesIO()
-        figure.savefig(buffer, format="pdf", bbox_inches="tight")
+        # TrueType (Type 42) fonts embedded: journals' production systems refuse Type 3 bitmap fonts
+        with matplotlib.rc_context({"pdf.fonttype": 42}):
+            figure.savefig(buffer, format="pdf", bbox_inches="tight")
         paths.append(os.path.join(out, stem + ".pdf"))
         write_atomic(paths[1], buffer.getvalue())
     return paths
