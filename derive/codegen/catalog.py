@@ -125,9 +125,13 @@ class KernelSet:
         # cheap on purpose: nothing is built to print the kernels in a notebook
         entries = self.__dict__.get("entries")
         built = "not built yet" if entries is None else f"{len(entries)} kernels"
-        if entries is not None and all(e.verification is not None for e in entries):
-            flagged = sum(e.verification.status != "verified" for e in entries)
-            built += ", all verified" if not flagged else f", {flagged} flagged"
+        if entries is not None:
+            checked = [e for e in entries if e.verification is not None]
+            flagged = sum(e.verification.status != "verified" for e in checked)
+            built += f", {len(checked) - flagged} verified"
+            built += f", {flagged} flagged" if flagged else ""
+            unchecked = len(entries) - len(checked)
+            built += f", {unchecked} not verified yet (verified when first used)" if unchecked else ""
         return f"<KernelSet of {self.spacetime.title!r}: {built}>"
 
     def _repr_html_(self) -> str:
