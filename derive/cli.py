@@ -103,7 +103,7 @@ def cmd_geometry(args) -> int:
     spacetime = _load(args)
     names = _selected_regions(spacetime, args.region)
     if args.latex:
-        derivation = Derivation(spacetime.title, spacetime.coordinates)
+        derivation = Derivation(spacetime.title, spacetime.coordinates, spacetime.parameter_values)
         geometry_sections(derivation, spacetime, names)
         _write_derivation(args.latex, derivation)
     if args.json:
@@ -117,7 +117,7 @@ def _derivation_with(spacetime, *stages):
     from derive.report.derivation import Derivation
     from derive.report.latex import field_sections, geometry_sections, junction_sections
 
-    derivation = Derivation(spacetime.title, spacetime.coordinates)
+    derivation = Derivation(spacetime.title, spacetime.coordinates, spacetime.parameter_values)
     builders = {"geometry": geometry_sections, "junction": junction_sections, "field": field_sections}
     for stage in stages:
         builders[stage](derivation, spacetime)

@@ -61,7 +61,7 @@ def run(spacetime, out: str, tolerance: float = 1e-10, progress=print, l_progres
     try:
         start = time.perf_counter()
         progress("geometry ...")
-        derivation = Derivation(spacetime.title, spacetime.coordinates)
+        derivation = Derivation(spacetime.title, spacetime.coordinates, spacetime.parameter_values)
         geometry_sections(derivation, spacetime)
         summary["regions"] = {name: {"ricci_scalar": str(geo.ricci_scalar), "kretschmann": str(geo.kretschmann),
                                      "energy_conditions": geo.energy_conditions}

@@ -32,6 +32,26 @@ def test_sums_in_the_order_papers_write_them():
     assert display.tex(sp.sqrt(1 - 2 * M / R), (r,)) == r"\sqrt{1 - \frac{2 M}{R}}"
 
 
+def test_polynomials_without_a_number_term_run_from_the_highest_power():
+    assert display.tex(Q**2 - 2 * M * r + r**2, (r,)) == r"r^{2} - 2 M r + Q^{2}"
+    assert display.tex(r - L, (r,)) == "r - L"
+    assert display.tex(1 - 2 * M / r - r**2 / L**2, (r,)) == r"1 - \frac{2 M}{r} - \frac{r^{2}}{L^{2}}"
+    assert display.text(R - 2 * M) == "R - 2*M" and display.text(1 + Q**2 / R**2 - 2 * M / R) == "1 - 2*M/R + Q**2/R**2"
+
+
+def test_a_clock_rate_as_one_root_of_a_ratio():
+    """The interior clock rate of a de Sitter core inside a Schwarzschild exterior, as the first junction
+    condition gives it, written as papers do: sqrt((1 - 2M/R)/(1 - R^2/L^2)) (the lapses' ratio; common practice)."""
+    raw = L * sp.sqrt(-(2 * M - R) / (L - R)) / (sp.sqrt(R) * sp.sqrt(L + R))
+    values = {M: 0.3, R: 1.0, L: 4.0}
+    form = display.one_root(raw, values)
+    assert display.tex(form) == r"\sqrt{\frac{1 - \frac{2 M}{R}}{1 - \frac{R^{2}}{L^{2}}}}"
+    _agree(form, raw, (R, L))
+    # a sum is left alone, and so is a form that is not real at the values
+    assert display.one_root(raw + 1, values) is None
+    assert display.one_root(sp.sqrt(M - R) * sp.sqrt(L), values) is None
+
+
 def test_domains_print_as_chains():
     x = sp.Symbol("x")
     assert display.tex(sp.And(sp.Le(0, x), sp.Lt(x, R))) == r"0 \le x < R"

@@ -68,9 +68,10 @@ class Derivation:
     ``variables`` (the spacetime's coordinates) order the terms of every sum: the terms free of them first,
     then by their power, lowest magnitude first."""
 
-    def __init__(self, title: str, variables=()):
+    def __init__(self, title: str, variables=(), values=None):
         self.title = title
         self.variables = tuple(variables)
+        self.values = dict(values or {})    # the parameters' values: display forms are checked there
         self.sections: list[Section] = []
         self._labels: set[str] = set()
         self._allowance = display.SIMPLIFY_SECONDS
@@ -96,6 +97,9 @@ class Derivation:
         indent = display.width(lhs_tex) + display.width(relation) + 4.0
         if isinstance(rhs, sp.MatrixBase) and display.width(one_line) + indent > display.LINE_WIDTH_PT:
             return self._by_entry(lhs_tex, rhs, label, relation, one_line)
+        rooted = self._bounded(lambda: display.one_root(rhs, self.values)) if self.values else None
+        if rooted is not None and display.width(latex_of(rooted, self.variables)) < display.width(one_line):
+            rhs, one_line = rooted, latex_of(rooted, self.variables)
         lines = display.display_lines(rhs, indent, self.variables)
         eq = Equation(lhs_tex, one_line, label, relation, lines)
         if len(lines) > 1:

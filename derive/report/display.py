@@ -48,7 +48,11 @@ class _Ordered:
         within each class positive terms before negative ones."""
         negative = bool(term.could_extract_minus_sign())
         if not (term.free_symbols & set(self._variables)):
-            return (0, 0 if term.is_Number else 1, 0, negative)
+            # free of the variables: a number first, then by the degree of the term's denominator (1 - 2M/R +
+            # Q^2/R^2), positive before negative (R - 2M)
+            inverse = sp.fraction(term)[1]
+            degree = sum(int(p) for p in inverse.as_powers_dict().values() if p.is_Integer) if inverse != 1 else 0
+            return (0, 0 if term.is_Number else 1, degree, negative)
         degree = 0
         for factor, power in term.as_powers_dict().items():
             if factor in self._variables:
@@ -61,7 +65,16 @@ class _Ordered:
 
     def _as_ordered_terms(self, expr, order=None):
         terms = list(super()._as_ordered_terms(expr, order=order))
-        ranked = sorted(enumerate(terms), key=lambda item: (self._term_key(item[1]), item[0]))
+        keys = [self._term_key(term) for term in terms]
+        def signed(k):      # the power of the variables in a term of the polynomial classes
+            return (k[1] if k[2] == 1 else -k[1]) if k[0] == 1 else 0
+        powers = [signed(k) for k in keys if k[0] == 1]
+        descending = (powers and min(powers) >= 0 and max(powers) > 0
+                      and not any(k[0] == 0 and k[1] == 0 for k in keys) and all(k[0] < 2 for k in keys))
+        if descending:
+            # a polynomial in the variables with no number term: highest power first (r^2 - 2Mr + Q^2, r - L)
+            keys = [(-signed(k), k[3]) for k in keys]
+        ranked = sorted(enumerate(terms), key=lambda item: (keys[item[0]], item[0]))
         return [term for _, term in ranked]
 
 
@@ -380,3 +393,62 @@ def _reduce(polynomial, symbols):
                                         lambda node, b=base, s=symbol: b ** (int(node.exp) // 2)
                                         * s ** (int(node.exp) % 2)))
     return out
+
+
+# -- one root of a ratio ----------------------------------------------------------------------------------------
+def _number_at(expr, values):
+    """``expr`` at the parameters' values to 30 digits (the doubles taken as exact binary fractions, so that two
+    equal forms agree to all 30), or None where it is not a real number."""
+    exact = {k: sp.Rational(float(v)) if isinstance(v, (int, float)) or getattr(v, "is_Float", False) else v
+             for k, v in values.items()}
+    try:
+        value = sp.N(sp.S(expr).subs(exact), 30)
+    except (TypeError, ValueError):
+        return None
+    return value if value.is_number and value.is_real else None
+
+
+def _normalised(factor, values):
+    """A sum written as its dominant term (largest at the spec's values) times 1 + the rest over it:
+    R - 2M -> R (1 - 2M/R), L^2 - R^2 -> L^2 (1 - R^2/L^2).  Returns (monomial, normalised sum)."""
+    terms = sp.Add.make_args(sp.expand(factor))
+    sizes = [_number_at(t, values) for t in terms]
+    if len(terms) < 2 or any(s is None for s in sizes):
+        return sp.S(1), factor
+    lead = terms[max(range(len(terms)), key=lambda k: abs(sizes[k]))]
+    return lead, sp.expand(factor / lead)
+
+
+def one_root(expr, values):
+    """A product of square roots and powers as one root of a ratio of sums normalised to their dominant terms:
+    L sqrt(-(2M - R)/(L - R))/(sqrt(R) sqrt(L + R)) -> sqrt((1 - 2M/R)/(1 - R^2/L^2)).  Exact where ``expr`` is
+    real (it is sign(expr) sqrt(expr^2)); accepted only if it agrees with ``expr`` at 30 digits at the spec's
+    parameter values (``values``), else None.  Sums of several terms are left alone (None)."""
+    if not isinstance(expr, sp.Mul) or not values or not any(_is_radical(f) for f in sp.Mul.make_args(expr)):
+        return None
+    here = _number_at(expr, values)
+    if here is None or here == 0:
+        return None
+    square = sp.cancel(sp.together(expr ** 2))
+    if any(_is_radical(node) for node in square.atoms(sp.Pow)):
+        return None
+    numerator, denominator = sp.fraction(square)
+    parts = []
+    for side in (numerator, denominator):
+        monomial, sums = sp.S(1), sp.S(1)
+        for base, power in sp.Mul(sp.factor(side)).as_powers_dict().items():
+            if isinstance(base, sp.Add):
+                sums = sums * base ** power
+            else:
+                monomial = monomial * base ** power
+        lead, rest = _normalised(sums, values) if sums != 1 else (sp.S(1), sp.S(1))
+        parts.append((monomial * lead, rest))
+    (m_num, s_num), (m_den, s_den) = parts
+    ratio = s_num if s_den == 1 else sp.Mul(s_num, sp.Pow(s_den, -1, evaluate=False), evaluate=False)
+    root = sp.Pow(ratio, sp.Rational(1, 2), evaluate=False) if ratio != 1 else sp.S(1)
+    prefactor = sp.sign(here) * sp.sqrt(sp.cancel(m_num / m_den))
+    form = root if prefactor == 1 else (-root if prefactor == -1 else sp.Mul(prefactor, root, evaluate=False))
+    check = _number_at(form, values)
+    if check is None or abs(check - here) > sp.Float(10) ** -25 * abs(here):
+        return None
+    return form

@@ -113,6 +113,8 @@ def geometry_summary(spacetime, names) -> str:
 
 
 def junction_summary(spacetime) -> str:
+    from derive.report.display import one_root
+
     lines = [spacetime.title]
 
     def short(expr):
@@ -122,7 +124,8 @@ def junction_summary(spacetime) -> str:
         first, second = shell.interface.between
         lines.append(f"\ninterface {first} | {second} at {shell.interface.text} (normal from {first} to {second})")
         for unknown, value in shell.solved.items():
-            lines.append(f"  first junction condition: {unknown} = {short(value)}")
+            rooted = one_root(value, spacetime.parameter_values)
+            lines.append(f"  first junction condition: {unknown} = {short(rooted if rooted is not None else value)}")
         if not shell.solved:
             lines.append("  first junction condition: induced metrics agree")
         lines.append(f"  [K] = {short(shell.extrinsic_curvature['trace_jump'])}")
