@@ -171,6 +171,7 @@ switching = { shape = "gaussian", width = "0.5" }
 """
 
 
+@pytest.mark.slow
 def test_correlations_command_in_flat_space(tmp_path, capsys):
     path = spec_file(str(tmp_path), TWO)
     out = str(tmp_path / "out")

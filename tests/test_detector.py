@@ -340,6 +340,7 @@ def test_a_response_not_known_to_its_tolerance_is_a_shortfall():
     assert shortfalls == []
 
 
+@pytest.mark.slow
 def test_short_switching_in_a_cavity_resolves_the_density_ripple():
     # Self-consistency (no outside value): light returning from the shell after the round trip T makes the
     # density at the centre ripple with period 2 pi/T; a Gaussian of width 0.025 has panels 20 wide, which once

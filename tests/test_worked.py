@@ -186,8 +186,8 @@ def test_schwarzschild_de_sitter_horizons_found_from_the_word_horizon():
         assert h.surface_gravity == pytest.approx(abs(2 / r ** 2 - 2 * r / 100) / 2, rel=1e-12)
 
 
-@pytest.mark.parametrize("name, zeta", [("spec", 1), pytest.param("neumann", -1, marks=pytest.mark.slow),
-                                        pytest.param("transparent", 0, marks=pytest.mark.slow)])
+@pytest.mark.slow
+@pytest.mark.parametrize("name, zeta", [("spec", 1), ("neumann", -1), ("transparent", 0)])
 def test_btz_example(capsys, name, zeta):
     # The README's table: each boundary condition against the image sum of AdS3's Wightman function (Lifschytz &
     # Ortiz, Phys. Rev. D 49, 1929 (1994); the reference integration is in tests/test_btz.py).
@@ -201,6 +201,7 @@ def test_btz_example(capsys, name, zeta):
     assert data["local_temperature"] == pytest.approx(1.0 / (2 * np.pi * 4.0 * np.sqrt(1.25 / 4.0)), rel=1e-12)
 
 
+@pytest.mark.slow
 def test_harvesting_shell_example(capsys):
     # The commutator part of M is state-independent and, inside the flat interior before any reflection from the
     # shell returns, it is flat space's (causality; the empty-space value is the closed form of

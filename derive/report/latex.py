@@ -142,9 +142,9 @@ def region_summary_latex(geo) -> str:
             + r",\quad R_{abcd}R^{abcd} = " + latex_of(geo.kretschmann) + "$")
 
 
-def compile_pdf(tex: str, timeout: float = 120.0, files=()) -> tuple[bool, str, bytes | None]:
+def compile_pdf(tex: str, timeout: float = 120.0, files=(), passes: int = 2) -> tuple[bool, str, bytes | None]:
     """Compile LaTeX text with pdflatex in a temporary folder (``files``: paths copied there first, the figures
-    the document includes).
+    the document includes; ``passes``: pdflatex runs, two for references, one is enough to read the log).
 
     Returns (ok, log, pdf bytes or None): the whole log of the last pass when it compiled (overfull boxes are
     reported there), its tail when it failed; (False, reason, None) when pdflatex is not installed.
@@ -159,7 +159,7 @@ def compile_pdf(tex: str, timeout: float = 120.0, files=()) -> tuple[bool, str, 
         with open(path, "w", encoding="utf-8") as handle:
             handle.write(tex)
         log = ""
-        for _ in range(2):   # twice, for references
+        for _ in range(passes):   # twice by default, for references
             proc = subprocess.run([engine, "-interaction=nonstopmode", "-halt-on-error", "-no-shell-escape",
                                    "derivation.tex"], cwd=tmp, capture_output=True, timeout=timeout,
                                   stdin=subprocess.DEVNULL)
