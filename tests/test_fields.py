@@ -318,3 +318,29 @@ def test_non_static_region_is_refused(write_spec, capsys):
         derive.load(path).field_problem.regions["region"]
     assert "not diagonal" in str(info.value)
     assert main(["field", path]) == 2
+
+
+@pytest.mark.slow
+def test_transfer_matrix_through_named_quantities_equals_the_substituted_one():
+    """T = [[1, 0], [n (F_2 - F_1)/(2R) - 2 s xi [K] N, 1]] (derived in derive/fields/matching.py from the
+    matching condition with P_i = F_i R^n) agrees with the matrix solved from the condition itself, for a shell
+    with curvature coupling (the de Sitter bubble, conformal) and without (the charged shell)."""
+    import os
+
+    import sympy as sp
+
+    import derive
+
+    root = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+    for name in ("de_sitter_bubble", "charged_shell"):
+        st = derive.load(os.path.join(root, "worked", name, "spec.toml"))
+        exact = {k: sp.Rational(v) for k, v in st.parameter_values.items()}
+        for matching in st.field_problem.interfaces:
+            named, quantities = matching.named_transfer_matrix
+            assert named[1, 1] == 1 and named[0, 0] == 1 and named[0, 1] == 0
+            substituted = named.subs(quantities)
+            for i in range(2):
+                for j in range(2):
+                    a = sp.N(substituted[i, j].subs(exact), 30)
+                    b = sp.N(matching.transfer_matrix[i, j].subs(exact), 30)
+                    assert abs(a - b) <= 1e-25 * (1 + abs(b))

@@ -86,6 +86,28 @@ class Matching:
         return sp.Matrix([[1, 0], row])
 
     @cached_property
+    def named_transfer_matrix(self) -> tuple[sp.Matrix, dict]:
+        """(T written through named quantities at the shell, {symbol: its value}).  Since P_i = F_i R^n and
+        w = sqrt(f) R^n (:attr:`pieces`), the matching condition gives
+
+            T = [[1, 0], [n (F_2 - F_1)/(2R) - 2 s xi [K] N, 1]],
+
+        F_i = sqrt(f h) on side i (1 the first region, 2 the second), N = sqrt(f) (the lapse, equal on both
+        sides), [K] the jump of the extrinsic curvature's trace, all at the shell, s the normal's orientation.
+        These are what a reader checks against the two metrics; the substituted matrix is
+        :attr:`transfer_matrix` (tests/test_fields.py checks the two agree)."""
+        p = self.pieces
+        R = self.shell.position
+        n = p["first"]["n"]
+        xi = self.problem.spacetime.field.coupling
+        F1, F2, N, K = sp.symbols("F_1 F_2 N [K]")
+        entry = sp.Rational(n, 2) * (F2 - F1) / R - 2 * p["orientation"] * xi * K * N
+        matrix = sp.Matrix([[1, 0], [entry, 1]])
+        values = {F1: p["first"]["F"], F2: p["second"]["F"], N: p["first"]["w"] / R ** n,
+                  K: self.shell.extrinsic_curvature["trace_jump"]}
+        return matrix, {k: v for k, v in values.items() if matrix.has(k)}
+
+    @cached_property
     def derivative_jump(self):
         """[d psi/dl]/psi implied by the transfer matrix (docs/conventions.md section 5: -2 xi [K])."""
         xi = self.problem.spacetime.field.coupling

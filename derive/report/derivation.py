@@ -137,7 +137,8 @@ class Derivation:
         base = lhs_tex if re.fullmatch(r"[A-Za-z]", lhs_tex) else rf"\left({lhs_tex}\right)"
         for (i, j), value in ((ij, matrix[ij]) for ij in _entries(matrix.shape)):
             if value != 0 or not (matrix.is_square and matrix.is_diagonal()):
-                sub = self.equation(f"{base}_{{{i + 1}{j + 1}}}", value, label, i + 1, j + 1, relation=relation)
+                sub = self.equation(f"{base}_{{{i + 1}{j + 1}}}", value, *label.removeprefix("eq:").split("-"),
+                                    i + 1, j + 1, relation=relation)
                 eq.entries.append(sub)
         return eq
 

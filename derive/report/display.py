@@ -355,7 +355,9 @@ def with_named_radicals(expr, registry: dict, size_limit: int = 3000):
     derivation)."""
     if not isinstance(expr, sp.Expr) or sp.count_ops(expr) > size_limit:
         return expr, []
-    bases = sorted({node.base for node in expr.atoms(sp.Pow) if _is_radical(node)}, key=sp.default_sort_key)
+    # roots of sums only: a name for sqrt(R) would be longer than what it names
+    bases = sorted({node.base for node in expr.atoms(sp.Pow) if _is_radical(node) and isinstance(node.base, sp.Add)},
+                   key=sp.default_sort_key)
     if not bases:
         return expr, []
     for base in bases:

@@ -144,6 +144,8 @@ def field_json(problem, l_value=None) -> dict:
         }
     interfaces = [{"between": list(m.between), "at": m.shell.interface.text,
                    "transfer_matrix": _mx(m.transfer_matrix.applyfunc(at_l)),
+                   "transfer_matrix_named": _mx(m.named_transfer_matrix[0]),
+                   "definitions": {str(k): _tx(v) for k, v in m.named_transfer_matrix[1].items()},
                    "derivative_jump": _tx(m.derivative_jump)} for m in problem.interfaces]
     return {"l": l_value, "mass": _tx(problem.spacetime.field.mass),
             "coupling": _tx(problem.spacetime.field.coupling), "boundary": problem.spacetime.field.boundary,

@@ -279,5 +279,13 @@ def field_sections(derivation: Derivation, spacetime) -> None:
                       r"From the weak form of the field equation: $\psi$ is continuous and "
                       r"$[d\psi/d\ell] = -2\xi[K]\psi$. On the column $(u, du/dr_*)$ from region "
                       f"{escape(first)} to region {escape(second)}:")
+        named, quantities = matching.named_transfer_matrix
+        sub.text = sub.text.rstrip(":") + (
+            f", written with $F = \\sqrt{{f h}}$ on each side at the shell (1: region {escape(first)}, 2: region "
+            f"{escape(second)}), the lapse $N = \\sqrt{{f}}$ there (the same on both sides) and the jump $[K]$ of "
+            "the junction conditions, then with these substituted:")
+        sub.equations.append(derivation.equation("T", named, "field", first, second, "T", "named"))
+        for symbol, value in quantities.items():
+            sub.equations.append(derivation.equation(symbol, value, "field", first, second, "def", symbol))
         sub.equations.append(derivation.equation("T", matching.transfer_matrix, "field", first, second, "T"))
         sec.subsections.append(sub)
