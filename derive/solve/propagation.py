@@ -114,7 +114,8 @@ def ordered_product(matrices: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     # + log ||B||_max + log 2; the partial products are rescaled only at the levels where the bound of the
     # products formed since the last rescaling could pass e^BOUND (every level rescaled cost as much as the
     # products themselves; oscillatory stretches need it rarely, evanescent ones at every level)
-    growth = float(np.max(np.log(np.maximum(np.max(np.abs(matrices), axis=(-2, -1)), 1e-300)))) + np.log(2.0)
+    # (the log of the largest entry: one reduction, no logarithm per step)
+    growth = float(np.log(max(float(np.max(np.abs(matrices))), 1e-300))) + np.log(2.0)
     growth = max(growth, 0.0)
     block = 1                     # steps per partial product since the last rescaling
     while matrices.shape[0] > 1:
