@@ -29,7 +29,7 @@ import mpmath
 import sympy as sp
 
 from derive.errors import GeometryError
-from derive.spec.roots import DIGITS, _exact_values, _number, _numerator_poly, real_roots
+from derive.spec.roots import DIGITS, _number, _numerator_poly, exact_values, real_roots
 
 
 
@@ -58,7 +58,7 @@ class Horizon:
 
 def _value_at(expr, r, point, values):
     with mpmath.workdps(DIGITS):
-        return _number(sp.S(expr).subs(_exact_values(values)).subs(r, sp.Float(point, DIGITS)), {})
+        return _number(sp.S(expr).subs(exact_values(values)).subs(r, sp.Float(point, DIGITS)), {})
 
 
 def _fresh_symbol(base: str, taken: set[str]) -> sp.Symbol:
@@ -88,7 +88,7 @@ def _find_horizons(field, taken: set[str]) -> list[Horizon]:
     found = []
     bounds = {}
     for side, bound in ends.items():
-        bounds[side] = None if bound is None else _number(bound, _exact_values(values))
+        bounds[side] = None if bound is None else _number(bound, exact_values(values))
     if roots is not None:
         lo, hi = bounds["lower"], bounds["upper"]
         lo_v = lo if lo is not None else mpmath.mpf(0)

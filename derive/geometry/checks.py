@@ -15,9 +15,7 @@ import threading
 import mpmath
 import sympy as sp
 
-
-def _exact(values: dict) -> dict:
-    return {k: sp.Rational(repr(float(v))) for k, v in values.items()}
+from derive.spec.roots import exact_values
 
 
 def vanishes(expr, values: dict, points: list[dict] | None = None, simplify: bool = True) -> bool:
@@ -27,10 +25,10 @@ def vanishes(expr, values: dict, points: list[dict] | None = None, simplify: boo
         return True
     if simplify and expr.count_ops() < 300 and sp.simplify(expr) == 0:
         return True
-    base = _exact(values)
+    base = exact_values(values)
     trials = [dict(base)]
     for point in points or []:
-        trials.append({**base, **_exact(point)})
+        trials.append({**base, **exact_values(point)})
     terms = sp.Add.make_args(sp.expand(expr)) if expr.count_ops() < 300 else (expr,)
     with mpmath.workdps(30):
         for trial in trials:
@@ -86,7 +84,7 @@ def simplify_checked(expr, values: dict):
     with ``expr`` at 30 digits at the spec's parameter values (so the sign assumption is checked, not made)."""
     expr = sp.S(expr)
     radical = (lambda e: e.is_Pow and e.exp.is_Rational and not e.exp.is_Integer)
-    exact = _exact(values)
+    exact = exact_values(values)
 
     def signed(arg):   # |a| -> a or -a, whichever is positive at the spec's values
         number = sp.N(arg.subs(exact), 30)

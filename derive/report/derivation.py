@@ -8,6 +8,7 @@ object, already laid out for the page by derive.report.display, plus a unique la
 
 from __future__ import annotations
 
+import itertools
 import re
 import time
 from dataclasses import dataclass, field
@@ -110,12 +111,14 @@ class Derivation:
                     eq.lines = shorter
                     eq.rhs = latex_of(form, self.variables) if len(shorter) == 1 else one_line
         if len(eq.lines) > display.TRY_NAMES_LINES:
-            form, names = self._bounded(lambda: display.with_named_radicals(rhs, self._radicals)) or (rhs, [])
+            registry = dict(self._radicals)      # names kept only if this form is shown (no gaps in S_k)
+            form, names = self._bounded(lambda: display.with_named_radicals(rhs, registry)) or (rhs, [])
             if names:
                 named = display.display_lines(form, indent, self.variables)
                 where = [(latex_of(s), display.display_lines(v, 40.0, self.variables)) for s, v in names]
                 if len(named) + sum(len(w) for _, w in where) < len(eq.lines):
                     eq.lines, eq.where = named, where
+                    self._radicals = registry
         shown = [(line, indent) for line in eq.lines] + [(line, 40.0) for _, value in eq.where for line in value]
         unbreakable = any(display.width(line) + offset > display.OVERFULL_PT for line, offset in shown)
         if len(shown) > display.MAX_LINES or unbreakable:
@@ -135,7 +138,8 @@ class Derivation:
                 eq.rhs, eq.lines = diagonal, [diagonal]
                 return eq
         base = lhs_tex if re.fullmatch(r"[A-Za-z]", lhs_tex) else rf"\left({lhs_tex}\right)"
-        for (i, j), value in ((ij, matrix[ij]) for ij in _entries(matrix.shape)):
+        for i, j in itertools.product(range(matrix.rows), range(matrix.cols)):
+            value = matrix[i, j]
             if value != 0 or not (matrix.is_square and matrix.is_diagonal()):
                 sub = self.equation(f"{base}_{{{i + 1}{j + 1}}}", value, *label.removeprefix("eq:").split("-"),
                                     i + 1, j + 1, relation=relation)
@@ -198,10 +202,6 @@ class Derivation:
             out += self._section(sub, r"\subsection" if command == r"\section" else r"\subsubsection")
         out.append("")
         return out
-
-
-def _entries(shape):
-    return [(i, j) for i in range(shape[0]) for j in range(shape[1])]
 
 
 def _display(eq: Equation) -> list[str]:

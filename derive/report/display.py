@@ -2,9 +2,9 @@
 
 Everything here is exact rewriting of what the symbolic stages computed, for reading only:
 
-* :func:`tex` prints a sympy object with the terms of every sum in the order a physicist writes them: terms
-  free of the coordinates first, then by the power of the coordinates, the lowest magnitude first
-  (``1 - 2M/r + Q^2/r^2``, ``1 - r^2/L^2``); domains print as chains (``0 \\le r < R``).
+* :func:`tex` and :func:`text` print a sympy object with the terms of every sum in the order a physicist
+  writes them (:class:`_Ordered`: ``1 - 2M/r + Q^2/r^2``, ``r^2 - 2Mr + Q^2``); domains print as chains
+  (``0 \\le r < R``).
 * :func:`width` estimates the printed width of a LaTeX formula in points (10 pt Computer Modern, display
   style), from the formula's text alone; it is calibrated against pdflatex's own measurements and errs wide.
 * :func:`display_lines` breaks a long right-hand side at the terms of its sums into lines that fit the page,
@@ -12,6 +12,7 @@ Everything here is exact rewriting of what the symbolic stages computed, for rea
 * :func:`with_named_radicals` names the square roots of a long expression (each ``b^{k/2}`` becomes
   ``S^k``, exact on the principal branch), reduces powers of each name against its square and cancels; the
   document shows the shorter of the two forms, with the names defined beside it.
+* :func:`one_root` writes a product of square roots as one root of a ratio of normalised sums.
 """
 
 from __future__ import annotations
@@ -21,6 +22,9 @@ import re
 import sympy as sp
 from sympy.printing.latex import LatexPrinter
 from sympy.printing.str import StrPrinter
+
+from derive.geometry.checks import vanishes
+from derive.spec.roots import exact_values
 
 # the text block of the document (6.5 in) less room for the equation number and the alignment's indent
 LINE_WIDTH_PT = 400.0
@@ -38,42 +42,44 @@ _RADICAL_NAME = r"\mathcal{{S}}_{{{}}}"
 
 # -- printing ---------------------------------------------------------------------------------------------------
 class _Ordered:
-    """The order of a sum's terms that papers use (mixed into sympy's LaTeX and string printers)."""
+    """The order of a sum's terms that papers use (mixed into sympy's LaTeX and string printers):
+
+    * with a number term, from the constant up: the terms free of the variables (the number first, then by the
+      degree of their denominators: 1 - 2M/R + Q^2/R^2), then by the magnitude of the variables' power,
+      inverse powers first (1 - 2M/r + Q^2/r^2, 1 - 2M/r - r^2/L^2), then functions of the variables;
+    * a polynomial in the variables without a number term, from its highest power (r^2 - 2Mr + Q^2, r - L);
+    * positive terms before negative ones where the rest ties (R - 2M)."""
 
     _variables: tuple = ()
 
-    def _term_key(self, term):
-        """Terms free of the variables first (a number before the rest), then by the power of the variables
-        (lowest magnitude first, inverse powers before positive ones), then functions of the variables;
-        within each class positive terms before negative ones."""
+    def _classify(self, term):
+        """(class, power of the variables, negative, degree of the denominator): class 0 free of the variables
+        (-1 for a number), 1 a power of the variables, 2 a function of them."""
         negative = bool(term.could_extract_minus_sign())
-        if not (term.free_symbols & set(self._variables)):
-            # free of the variables: a number first, then by the degree of the term's denominator (1 - 2M/R +
-            # Q^2/R^2), positive before negative (R - 2M)
-            inverse = sp.fraction(term)[1]
-            degree = sum(int(p) for p in inverse.as_powers_dict().values() if p.is_Integer) if inverse != 1 else 0
-            return (0, 0 if term.is_Number else 1, degree, negative)
-        degree = 0
-        for factor, power in term.as_powers_dict().items():
-            if factor in self._variables:
-                if not power.is_Integer:
-                    return (2, 0, 0, negative)
-                degree += int(power)
-            elif factor.free_symbols & set(self._variables):
-                return (2, 0, 0, negative)        # a function of the variables: after the powers
-        return (1, abs(degree), 0 if degree < 0 else 1, negative)
+        variables = set(self._variables)
+        if not (term.free_symbols & variables):
+            denominator = sp.fraction(term)[1]
+            degree = sum(int(p) for p in denominator.as_powers_dict().values() if p.is_Integer)
+            return (-1 if term.is_Number else 0, 0, negative, degree if denominator != 1 else 0)
+        power = 0
+        for factor, exponent in term.as_powers_dict().items():
+            if factor in variables and exponent.is_Integer:
+                power += int(exponent)
+            elif factor.free_symbols & variables:
+                return (2, 0, negative, 0)
+        return (1, power, negative, 0)
 
     def _as_ordered_terms(self, expr, order=None):
         terms = list(super()._as_ordered_terms(expr, order=order))
-        keys = [self._term_key(term) for term in terms]
-        def signed(k):      # the power of the variables in a term of the polynomial classes
-            return (k[1] if k[2] == 1 else -k[1]) if k[0] == 1 else 0
-        powers = [signed(k) for k in keys if k[0] == 1]
+        kinds = [self._classify(term) for term in terms]
+        powers = [k[1] for k in kinds if k[0] == 1]
         descending = (powers and min(powers) >= 0 and max(powers) > 0
-                      and not any(k[0] == 0 and k[1] == 0 for k in keys) and all(k[0] < 2 for k in keys))
+                      and all(k[0] in (0, 1) for k in kinds))
         if descending:
-            # a polynomial in the variables with no number term: highest power first (r^2 - 2Mr + Q^2, r - L)
-            keys = [(-signed(k), k[3]) for k in keys]
+            keys = [(-power, negative) for _, power, negative, _ in kinds]
+        else:
+            keys = [(max(kind, 0), kind, denominator, abs(power), power > 0, negative)
+                    for kind, power, negative, denominator in kinds]
         ranked = sorted(enumerate(terms), key=lambda item: (keys[item[0]], item[0]))
         return [term for _, term in ranked]
 
@@ -399,12 +405,9 @@ def _reduce(polynomial, symbols):
 
 # -- one root of a ratio ----------------------------------------------------------------------------------------
 def _number_at(expr, values):
-    """``expr`` at the parameters' values to 30 digits (the doubles taken as exact binary fractions, so that two
-    equal forms agree to all 30), or None where it is not a real number."""
-    exact = {k: sp.Rational(float(v)) if isinstance(v, (int, float)) or getattr(v, "is_Float", False) else v
-             for k, v in values.items()}
+    """``expr`` at the parameters' values to 30 digits, or None where it is not a real number."""
     try:
-        value = sp.N(sp.S(expr).subs(exact), 30)
+        value = sp.N(sp.S(expr).subs(exact_values(values)), 30)
     except (TypeError, ValueError):
         return None
     return value if value.is_number and value.is_real else None
@@ -425,7 +428,7 @@ def one_root(expr, values):
     """A product of square roots and powers as one root of a ratio of sums normalised to their dominant terms:
     L sqrt(-(2M - R)/(L - R))/(sqrt(R) sqrt(L + R)) -> sqrt((1 - 2M/R)/(1 - R^2/L^2)).  Exact where ``expr`` is
     real (it is sign(expr) sqrt(expr^2)); accepted only if it agrees with ``expr`` at 30 digits at the spec's
-    parameter values (``values``), else None.  Sums of several terms are left alone (None)."""
+    parameter values (``values``; geometry.checks.vanishes), else None.  Sums of several terms are left alone (None)."""
     if not isinstance(expr, sp.Mul) or not values or not any(_is_radical(f) for f in sp.Mul.make_args(expr)):
         return None
     here = _number_at(expr, values)
@@ -450,7 +453,4 @@ def one_root(expr, values):
     root = sp.Pow(ratio, sp.Rational(1, 2), evaluate=False) if ratio != 1 else sp.S(1)
     prefactor = sp.sign(here) * sp.sqrt(sp.cancel(m_num / m_den))
     form = root if prefactor == 1 else (-root if prefactor == -1 else sp.Mul(prefactor, root, evaluate=False))
-    check = _number_at(form, values)
-    if check is None or abs(check - here) > sp.Float(10) ** -25 * abs(here):
-        return None
-    return form
+    return form if vanishes(form - expr, values, simplify=False) else None

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 import math
+from functools import partial
 
 import sympy as sp
 
@@ -22,11 +23,7 @@ def matrix_text(matrix: sp.Matrix, variables=()) -> list[list[str]]:
 
 def geometry_json(geo) -> dict:
     """The geometry of one region (keys documented in README.md)."""
-    def _tx(expr):
-        return expr_text(expr, geo.coordinates)
-
-    def _mx(matrix):
-        return matrix_text(matrix, geo.coordinates)
+    _tx, _mx = partial(expr_text, variables=geo.coordinates), partial(matrix_text, variables=geo.coordinates)
 
     names = [c.name for c in geo.coordinates]
     stress = geo.stress_energy
@@ -84,11 +81,7 @@ def _textify(value):
 
 def junction_json(shell) -> dict:
     """One interface (keys documented in README.md)."""
-    def _tx(expr):
-        return expr_text(expr, shell.coordinates)
-
-    def _mx(matrix):
-        return matrix_text(matrix, shell.coordinates)
+    _tx, _mx = partial(expr_text, variables=shell.coordinates), partial(matrix_text, variables=shell.coordinates)
 
     k = shell.extrinsic_curvature
     return {
@@ -112,11 +105,8 @@ def junction_json(shell) -> dict:
 
 def field_json(problem, l_value=None) -> dict:
     """The radial problem of every region and the transfer matrix of every interface."""
-    def _tx(expr):
-        return expr_text(expr, problem.spacetime.coordinates)
-
-    def _mx(matrix):
-        return matrix_text(matrix, problem.spacetime.coordinates)
+    coordinates = problem.spacetime.coordinates
+    _tx, _mx = partial(expr_text, variables=coordinates), partial(matrix_text, variables=coordinates)
 
     from derive.fields.radial import L_SYMBOL
 

@@ -254,9 +254,8 @@ def _outer_solution(problem, l, omegas, far):
 
 
 def _d_value(problem, l, omegas, steps, layout):
-    """The sign-carrying mismatch D(omega) at unit scale (its sign is what bisection needs)."""
-    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-        return _march(problem, l, omegas, steps, layout)[0][0]
+    """The sign-carrying mismatch D(omega) at unit scale (its sign is what a scan for brackets needs)."""
+    return _d_scaled(problem, l, omegas, steps, layout)[0]
 
 
 def _levels(problem, l, steps, count, r0, brackets=None):

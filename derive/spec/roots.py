@@ -38,7 +38,7 @@ def _number(expr, values) -> mpmath.mpf | None:
     return mpmath.mpf(str(value))
 
 
-def _exact_values(values: dict) -> dict:
+def exact_values(values: dict) -> dict:
     """The parameters' double values as exact rationals, so that 40 digits mean 40 digits."""
     return {k: sp.Rational(repr(float(v))) for k, v in values.items()}
 
@@ -49,7 +49,7 @@ def real_roots(expr, r, values) -> list[mpmath.mpf] | None:
     if split is None:
         return None
     poly, _ = split
-    exact = _exact_values(values)
+    exact = exact_values(values)
     coefficients = []
     for c in poly.all_coeffs():
         number = _number(c, exact)
@@ -83,7 +83,7 @@ def horizon_bounds(f, r, values, lower, upper):
                              "at the parameters' values")
         positive = sorted(z for z in roots if z > 0)
         edges = [mpmath.mpf(0)] + positive + [mpmath.inf]
-        exact = _exact_values(values)
+        exact = exact_values(values)
 
         def f_at(x):
             return _number(sp.S(f).subs(exact).subs(r, sp.Float(x, DIGITS)), {})
