@@ -445,7 +445,7 @@ def correlations(spacetime, tolerance: float | None = None, progress=None, refer
     from derive.detector.study import detector_response
     from derive.solve.problem import NumericDetector
     from derive.results import Correlations
-    from derive.solve.centre import Unsupported
+    from derive.solve.centre import Divergent, Unsupported
     from derive.spec.positions import cos_angle, parse_position
 
     if len(spacetime.detectors) < 2:
@@ -456,24 +456,30 @@ def correlations(spacetime, tolerance: float | None = None, progress=None, refer
     shared = spacetime.detector
     state = shared.state if shared is not None else "vacuum"
     coupling = shared.coupling if shared is not None and shared.coupling is not None else 1.0
-    from derive.codegen.problem import numeric_switchings
+    from derive.codegen.problem import _switching_profile, numeric_switchings
     from derive.detector.response import round_trip
+    from derive.detector.switching import switching_from_spec
     from derive.detector.study import _sqrt_f
 
-    probes, points = [], []
+    probes, points, numbers = [], [], []
     for i, (entry, switching) in enumerate(zip(spacetime.detectors, numeric_switchings(spacetime))):
         key = f"detectors[{i}]"
         point = parse_position(spacetime, entry.at, key=f"{key}.at")
         _check_radius(spacetime, problem, point.radius, f"{key}.at")
-        if switching["shape"] != "gaussian":
-            raise InputError(f"correlations are computed for gaussian switchings so far (their transforms make the "
-                             f"time-ordered term one frequency integral); this one is {switching['shape']!r}",
-                             file=spacetime.path, key=f"{key}.switching.shape")
-        width, centre = switching.get("width", 1.0), switching["centre"]
-        if not width > 0:
-            raise InputError("expected a positive width (proper time)", file=spacetime.path,
-                             key=f"{key}.switching.width")
-        probes.append(Probe(entry.name, point.radius, _sqrt_f(problem, point.radius), entry.gap, width, centre))
+        shape, centre = switching["shape"], switching["centre"]
+        values = {k: v for k, v in switching.items() if k not in ("shape", "centre")}
+        values.setdefault("tail", 1e-12)
+        profile = None
+        if shape == "expression":
+            profile = _switching_profile(spacetime, entry.switching["expression"])
+        try:
+            chi = switching_from_spec({"shape": shape}, values, profile)
+        except InputError as exc:   # the switching's own key, under this detector's
+            raise InputError(exc.problem, file=spacetime.path,
+                             key=exc.key.replace("detector.", f"{key}.", 1) if exc.key else key) from None
+        probes.append(Probe(entry.name, point.radius, _sqrt_f(problem, point.radius), entry.gap,
+                            chi.width if shape == "gaussian" else None, centre, chi))
+        numbers.append((shape, values, profile))
         points.append(point)
 
     def spectrum_between(i, j):
@@ -496,17 +502,24 @@ def correlations(spacetime, tolerance: float | None = None, progress=None, refer
     try:
         for i, probe in enumerate(probes):
             # L_ii is the single detector's response, through the same code as derive response
-            single = NumericDetector(probe.radius, "gaussian", {"width": probe.sigma, "tail": 1e-12}, (probe.gap,),
-                                     state, coupling, None, 3.0)
-            answer = detector_response(problem, single, tolerance, progress=progress, shortfalls=[])[0]
+            shape, values, profile = numbers[i]
+            single = NumericDetector(probe.radius, shape, values, (probe.gap,), state, coupling, None, 3.0, profile)
+            try:
+                answer = detector_response(problem, single, tolerance, progress=progress, shortfalls=[])[0]
+            except Divergent as exc:
+                raise InputError(f"this detector's switching cannot be used: {exc}", file=spacetime.path,
+                                 key=f"detectors[{i}].switching.shape") from None
             value, error = float(answer.response[0]), float(answer.error[0])
             duration = 2 * probe.half_duration * probe.alpha
             trip = round_trip(problem, probe.alpha, probe.radius)
             detectors[probe.name] = {"probability": coupling ** 2 * value, "error": coupling ** 2 * error,
-                                     "at": points[i].to_json(), "gap": probe.gap, "width": probe.sigma,
+                                     "at": points[i].to_json(), "gap": probe.gap,
+                                     "switching": {"shape": numbers[i][0], **numbers[i][1]},
                                      "centre": probe.centre, "redshift_factor": probe.alpha,
                                      "locality": {"duration": duration, "round_trip": trip,
-                                                  "local": bool(duration < trip), "tail": 1e-12}}
+                                                  "local": bool(duration < trip), "tail": numbers[i][1]["tail"]}}
+            if probe.gaussian:
+                detectors[probe.name]["width"] = probe.sigma
             if error > tolerance * abs(value):
                 shortfalls.append(f"{probe.name}: probability error {error / abs(value):.1e} (relative)")
         pairs = []
@@ -514,7 +527,7 @@ def correlations(spacetime, tolerance: float | None = None, progress=None, refer
             for j in range(i + 1, len(probes)):
                 A, B = probes[i], probes[j]
                 light, light_error = light_time(problem, points[i], points[j])
-                terms = pair_terms(A, B, spectrum_between(i, j), light, tolerance)
+                terms = pair_terms(A, B, spectrum_between(i, j), light, tolerance, problem.dimension)
                 L_AA, L_BB = (detectors[p.name]["probability"] for p in (A, B))
                 e_AA, e_BB = (detectors[p.name]["error"] for p in (A, B))
                 lam2 = coupling ** 2
@@ -596,8 +609,9 @@ def correlations(spacetime, tolerance: float | None = None, progress=None, refer
 def _on_one_sphere(probes) -> bool:
     """An array on a sphere: every detector at the same radius r0 > 0 with the same gap, width and peak time."""
     first = probes[0]
-    return first.radius > 0 and all((p.radius, p.gap, p.sigma, p.centre) == (first.radius, first.gap, first.sigma,
-                                                                              first.centre) for p in probes)
+    return first.radius > 0 and all((p.radius, p.gap, p.switching, p.centre) == (first.radius, first.gap,
+                                                                                  first.switching, first.centre)
+                                    for p in probes)
 
 
 def _correlations_reference(spacetime, with_, probes, points, coupling, tolerance, multipoles=False) -> dict:
@@ -607,7 +621,8 @@ def _correlations_reference(spacetime, with_, probes, points, coupling, toleranc
     import dataclasses
 
     from derive.detector.correlations import Probe, pair_record, pair_terms
-    from derive.detector.study import minkowski_gaussian_response
+    from derive.detector.response import response
+    from derive.detector.study import flat_density, minkowski_gaussian_response
 
     if with_ != "minkowski":
         from derive import load
@@ -622,7 +637,7 @@ def _correlations_reference(spacetime, with_, probes, points, coupling, toleranc
     if field.dimension != 4 or field.mass != 0:
         raise InputError("the Minkowski comparison of several detectors is built for a massless field in 3+1; "
                          "compare with the path of a flat spec instead", file=spacetime.path, key="compare.with")
-    flat = [Probe(p.name, p.radius, 1.0, p.gap, p.sigma, p.alpha * p.centre) for p in probes]
+    flat = [Probe(p.name, p.radius, 1.0, p.gap, p.sigma, p.alpha * p.centre, p.switching) for p in probes]
     position = [point.radius * point.unit_vector() for point in points]
 
     def spectrum(i, j):
@@ -636,8 +651,15 @@ def _correlations_reference(spacetime, with_, probes, points, coupling, toleranc
     lam2 = coupling ** 2
     detectors = {}
     for probe in flat:   # the flat single-detector response in closed form (30 digits; rounding to double)
-        value = lam2 * float(minkowski_gaussian_response([probe.gap], probe.sigma)[0])
-        detectors[probe.name] = {"probability": value, "error": 1e-15 * value}
+        if probe.gaussian:
+            value = lam2 * float(minkowski_gaussian_response([probe.gap], probe.sigma)[0])
+            detectors[probe.name] = {"probability": value, "error": 1e-15 * value}
+            continue
+        # other switchings: the response's quadrature with the exact flat density
+        flat_response = response(np.array([probe.gap]), probe.switching, flat_density(4, 0.0), threshold=0.0,
+                                 dimension=4)
+        detectors[probe.name] = {"probability": lam2 * float(flat_response.response[0]),
+                                 "error": lam2 * float(flat_response.error[0])}
     pairs = []
     for i in range(len(flat)):
         for j in range(i + 1, len(flat)):

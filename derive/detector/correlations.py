@@ -28,7 +28,10 @@ is closed form (an erf of complex argument, through the Faddeeva function) and M
 
 The omega-integrals use Gauss-Legendre panels, doubled until two successive rules agree to the tolerance; the
 error of each result adds that difference, the spectral function's own errors carried through the weights, and
-rounding.  Only Gaussian switchings are handled (their transforms are what makes M one integral).
+rounding.  Other switchings (compact shapes, a user expression) take the same frequency integrals with their
+transforms, M's time integrals numerically (``TimeOrdered``: the cross-correlation of the two switchings against
+the smoothed sign); a switching whose transform falls only algebraically leaves a tail beyond its reach, bounded
+through the single detectors' tail bounds (``pair_terms``).
 """
 
 from __future__ import annotations
@@ -36,8 +39,9 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.special import wofz
+from scipy.special import erf, wofz
 
+from derive.detector.switching import Switching, gauss_panels
 from derive.solve.centre import Unsupported
 
 NODES = 16               # Gauss-Legendre nodes per panel
@@ -49,26 +53,34 @@ SMOOTHING = 6.0          # epsilon = light time / SMOOTHING
 
 @dataclass(frozen=True)
 class Probe:
-    """One detector as numbers: its name, radius, redshift factor, gap, proper width and peak time (of t)."""
+    """One detector as numbers: its name, radius, redshift factor, gap, proper width (a Gaussian's; None for
+    another shape) and peak time (of t), and its switching (by default the Gaussian of that width)."""
 
     name: str
     radius: float
     alpha: float
     gap: float
-    sigma: float
+    sigma: float | None
     centre: float
+    switching: Switching | None = None
+
+    def __post_init__(self):
+        if self.switching is None:
+            object.__setattr__(self, "switching", Switching("gaussian", float(self.sigma), 1e-12))
+
+    @property
+    def gaussian(self) -> bool:
+        return self.switching.shape == "gaussian"
 
     @property
     def half_duration(self) -> float:
-        """Half the effective duration in t: all but 1e-12 of chi^2 (the Gaussian's, as for one detector)."""
-        from derive.detector.switching import switching_from_spec
-
-        return switching_from_spec({"shape": "gaussian"}, {"width": self.sigma, "tail": 1e-12}).duration / (
-            2 * self.alpha)
+        """Half the effective duration in t: all but the switching's tail (1e-12 by default) of chi^2."""
+        return self.switching.duration / (2 * self.alpha)
 
 
 def chi_hat(probe: Probe, k):
-    return np.sqrt(2 * np.pi) * probe.sigma * np.exp(-(probe.sigma * k) ** 2 / 2)
+    """chi_hat(k) = int chi(tau) e^{-i k tau} dtau (closed form for the Gaussian, quadrature otherwise)."""
+    return probe.switching.transform(k)
 
 
 def _scaled_erf(base_log, z):
@@ -80,11 +92,10 @@ def _scaled_erf(base_log, z):
 
 
 def m_kernels(A: Probe, B: Probe, omegas, light_time: float):
-    """(prefactor, J_+, J_-, E_+, E_-) at the frequencies: M = -lambda^2 prefactor int domega (1/2) [(S_+ + conj S_-)
-    J_+ + (S_- + conj S_+) J_- + (S_+ - conj S_-) E_+ + (S_- - conj S_+) E_-] (module docstring)."""
-    if not light_time > 0:
-        raise Unsupported("two detectors at the same point: their commutator is not separated from the "
-                          "anticommutator by a light time (place them apart)")
+    """(prefactor, J_+, J_-, E_+, E_-) at the frequencies for two Gaussian switchings, in closed form: M = -lambda^2
+    prefactor int domega (1/2) [(S_+ + conj S_-) J_+ + (S_- + conj S_+) J_- + (S_+ - conj S_-) E_+
+    + (S_- - conj S_+) E_-] (module docstring)."""
+    _separated(light_time)
     a, b = (A.sigma / A.alpha) ** 2, (B.sigma / B.alpha) ** 2
     c = a + b
     wa, wb = A.alpha * A.gap, B.alpha * B.gap
@@ -104,15 +115,118 @@ def m_kernels(A: Probe, B: Probe, omegas, light_time: float):
     return prefactor, J_plus, J_minus, E_plus, E_minus
 
 
+def _separated(light_time: float) -> None:
+    if not light_time > 0:
+        raise Unsupported("two detectors at the same point: their commutator is not separated from the "
+                          "anticommutator by a light time (place them apart)")
+
+
+class TimeOrdered:
+    """The kernels of M for any two switchings: with f_i(t) = chi_i(alpha_i (t - T_i)) e^{i w_i (t - T_i)},
+    w_i = alpha_i Omega_i, M = -lambda^2 alpha_A alpha_B int dv K(v) G_F(v) with K(v) = int dt f_A(t + v) f_B(t)
+    the switchings' cross-correlation, so that (in the form of ``m_kernels``, prefactor alpha_A alpha_B)
+
+        J_+(omega) = int dv K(v) e^{-i omega v} = e^{-i omega D} chi_hat_A(omega/alpha_A - Omega_A)
+                     chi_hat_B(-omega/alpha_B - Omega_B)/(alpha_A alpha_B),   J_-(omega) = J_+(-omega),
+        E_+-(omega) = int dv K(v) erf(v/epsilon) e^{-+ i omega v}.
+
+    J comes from the transforms; E by composite Gauss-Legendre in v and, for each v, in t, on panels that end at
+    every breakpoint of the switchings (their ends and ramps) and resolve the phases, the switchings and the
+    smoothed sign; at two resolutions, whose difference is E's error."""
+
+    def __init__(self, A: Probe, B: Probe, light_time: float, top: float):
+        _separated(light_time)
+        self.A, self.B = A, B
+        self.epsilon = light_time / SMOOTHING
+        self.cuts = [p.centre + p.switching.breakpoints / p.alpha for p in (A, B)]
+        wa, wb = A.alpha * A.gap, B.alpha * B.gap
+        h_t = min([_resolution(A), _resolution(B)] + ([10.0 / abs(wa + wb)] if wa + wb else []))
+        h_v = min(self.epsilon, 10.0 / (top + abs(wa)), h_t)
+        v_cuts = np.unique((self.cuts[0][:, None] - self.cuts[1][None, :]).ravel())
+        if v_cuts[0] < 0 < v_cuts[-1]:     # where the smoothed sign turns
+            v_cuts = np.unique(np.concatenate([v_cuts, [0.0]]))
+        self.grids = []
+        for m in (1, 2):
+            v, weight = _panels(v_cuts, h_v / m)
+            K = self._cross(v, h_t / m)
+            self.grids.append((v, weight * K * erf(v / self.epsilon)))
+
+    def _f(self, p: Probe, t):
+        u = t - p.centre
+        return p.switching.chi(p.alpha * u) * np.exp(1j * p.alpha * p.gap * u)
+
+    def _cross(self, v_nodes, h_t):
+        (a0, a1), (b0, b1) = (c[[0, -1]] for c in self.cuts)
+        out = np.zeros(len(v_nodes), dtype=complex)
+        for i, v in enumerate(v_nodes):
+            lo, hi = max(a0 - v, b0), min(a1 - v, b1)
+            if hi <= lo:
+                continue
+            cuts = np.concatenate([[lo, hi], self.cuts[0] - v, self.cuts[1]])
+            t, weight = _panels(np.unique(cuts[(cuts >= lo) & (cuts <= hi)]), h_t)
+            out[i] = np.sum(weight * self._f(self.A, t + v) * self._f(self.B, t))
+        return out
+
+    def __call__(self, omegas):
+        """(prefactor, J_+, J_-, E_+, E_-, error of J_+-, error of E_+, error of E_-) at the frequencies."""
+        A, B = self.A, self.B
+        D = A.centre - B.centre
+        scale = A.alpha * B.alpha
+        ka, kb = omegas / A.alpha, omegas / B.alpha
+        hat_a_plus, hat_a_minus = chi_hat(A, ka - A.gap), chi_hat(A, -ka - A.gap)
+        hat_b_plus, hat_b_minus = chi_hat(B, -kb - B.gap), chi_hat(B, kb - B.gap)
+        J_plus = np.exp(-1j * omegas * D) * hat_a_plus * hat_b_plus / scale
+        J_minus = np.exp(1j * omegas * D) * hat_a_minus * hat_b_minus / scale
+        da, db = A.switching.transform_error, B.switching.transform_error
+        J_error = (da * (np.abs(hat_b_plus) + np.abs(hat_b_minus)) + db * (np.abs(hat_a_plus) + np.abs(hat_a_minus))
+                   + 2 * da * db) / scale
+        E = []
+        for v, g in self.grids:
+            plus, minus = np.empty(len(omegas), dtype=complex), np.empty(len(omegas), dtype=complex)
+            for start in range(0, len(omegas), 256):
+                phase = np.exp(-1j * np.outer(omegas[start:start + 256], v))
+                both = phase @ np.stack([g, np.conj(g)], axis=1)
+                plus[start:start + 256], minus[start:start + 256] = both[:, 0], np.conj(both[:, 1])
+            E.append((plus, minus))
+        (_, _), (E_plus, E_minus) = E
+        return (scale, J_plus, J_minus, E_plus, E_minus, J_error, np.abs(E_plus - E[0][0]),
+                np.abs(E_minus - E[0][1]))
+
+
+def _resolution(p: Probe) -> float:
+    """A panel width in t that resolves the switching between its breakpoints: a 64th of its support (a
+    Gaussian: half its width); the second resolution of ``TimeOrdered`` checks it."""
+    s = p.switching
+    width = s.width / 2 if p.gaussian else s.support_length / 64
+    return width / p.alpha
+
+
+def _panels(cuts, h):
+    """Composite 16-point Gauss-Legendre on every interval between consecutive ``cuts``, panels at most h wide."""
+    nodes, weights = [], []
+    for a, b in zip(cuts[:-1], cuts[1:]):
+        if b > a:
+            x, w = gauss_panels(a, b, max(1, int(np.ceil((b - a) / h))))
+            nodes.append(x)
+            weights.append(w)
+    if not nodes:
+        return np.zeros(0), np.zeros(0)
+    return np.concatenate(nodes), np.concatenate(weights)
+
+
 def frequency_reach(A: Probe, B: Probe, light_time: float | None) -> float:
-    """Where every factor of the integrands is below e^{-REACH^2/2}: the switchings' transforms, and for M the
-    Gaussian of width 1/sqrt(c) and the smoothed sign's e^{-c p^2 epsilon^2/(2 (epsilon^2 + 2c))}."""
-    top = max(p.alpha * (abs(p.gap) + REACH / p.sigma) for p in (A, B))
+    """Where every factor of the integrands is below e^{-REACH^2/2} (an algebraic switching: where its tail bound
+    is reached, the rest counted in the error): the switchings' transforms, and for M the Gaussian of width
+    1/sqrt(c) and the smoothed sign's e^{-c p^2 epsilon^2/(2 (epsilon^2 + 2c))}; for other switchings the
+    smoothed sign's e^{-omega^2 epsilon^2/4} beyond their own reach."""
+    top = max(p.alpha * (abs(p.gap) + (REACH / p.sigma if p.gaussian else p.switching.reach)) for p in (A, B))
     if light_time is not None:
+        epsilon = light_time / SMOOTHING
+        if not (A.gaussian and B.gaussian):
+            return top + np.sqrt(2.0) * REACH / epsilon
         a, b = (A.sigma / A.alpha) ** 2, (B.sigma / B.alpha) ** 2
         c = a + b
         kappa = (A.alpha * A.gap * a - B.alpha * B.gap * b) / c
-        epsilon = light_time / SMOOTHING
         top = max(top, abs(kappa) + REACH * np.sqrt((epsilon ** 2 + 2 * c) / (c * epsilon ** 2)))
     return top
 
@@ -127,9 +241,10 @@ def _rule(top: float, panels: int):
 
 
 def _integrals(spectrum, integrands, top, tolerance):
-    """Each integrand(omega, S_+, S_-) -> (values, |factor of S_+|, |factor of S_-|) integrated over [0, top] on
-    doubled panel rules until two successive ones agree (to the tolerance, or within the spectral errors carried
-    through); returns (value, error, scale) each.  ``spectrum(omegas)`` -> (S_+, e_+, S_-, e_-)."""
+    """Each integrand(omega, S_+, S_-) -> (values, |factor of S_+|, |factor of S_-|[, absolute error of values])
+    integrated over [0, top] on doubled panel rules until two successive ones agree (to the tolerance, or within
+    the spectral errors carried through); returns (value, error, scale) each.  ``spectrum(omegas)`` -> (S_+, e_+,
+    S_-, e_-)."""
     previous = None
     panels = FIRST_PANELS
     while True:
@@ -137,9 +252,10 @@ def _integrals(spectrum, integrands, top, tolerance):
         s_plus, e_plus, s_minus, e_minus = spectrum(nodes)
         results = []
         for integrand in integrands:
-            values, plus_factor, minus_factor = integrand(nodes, s_plus, s_minus)
+            values, plus_factor, minus_factor, *own = integrand(nodes, s_plus, s_minus)
             value = np.sum(weights * values)
-            carried = np.sum(weights * (np.abs(plus_factor) * e_plus + np.abs(minus_factor) * e_minus))
+            carried = np.sum(weights * (np.abs(plus_factor) * e_plus + np.abs(minus_factor) * e_minus
+                                        + (own[0] if own else 0.0)))
             scale = np.sum(weights * (np.abs(plus_factor) * np.abs(s_plus) + np.abs(minus_factor) * np.abs(s_minus)))
             results.append((value, carried, scale))
         if previous is not None:
@@ -170,49 +286,69 @@ class PairResult:
     M_scale: float = 0.0
 
 
-def pair_terms(A: Probe, B: Probe, spectrum, light_time: float, tolerance: float) -> PairResult:
+def pair_terms(A: Probe, B: Probe, spectrum, light_time: float, tolerance: float, dimension: int = 4) -> PairResult:
     """L_AB and M (each per lambda^2) between two detectors, with errors; ``spectrum(omegas)`` gives
-    (S_+, e_+, S_-, e_-) between A's point and B's in the state."""
+    (S_+, e_+, S_-, e_-) between A's point and B's in the state.  Gaussian switchings use the closed-form kernels
+    of M, others ``TimeOrdered``; the part of the frequency integrals beyond the reach of an algebraically decaying
+    switching is bounded by Cauchy-Schwarz in the (positive) spectral measure, sqrt(tail_A tail_B) with each
+    single detector's tail bound, and added to the errors (for E, whose large-frequency part comes from the same
+    breakpoints of K where the smoothed sign is at most 1, the same bound is taken as an estimate)."""
     D = A.centre - B.centre
+    da, db = A.switching.transform_error, B.switching.transform_error
 
     def l_integrand(w, s_plus, s_minus):
-        plus = np.exp(-1j * w * D) * chi_hat(A, A.gap + w / A.alpha) * chi_hat(B, B.gap + w / B.alpha)
-        minus = np.exp(1j * w * D) * chi_hat(A, A.gap - w / A.alpha) * chi_hat(B, B.gap - w / B.alpha)
-        return s_plus * plus + s_minus * minus, plus, minus
+        hats = [(chi_hat(A, A.gap + sign * w / A.alpha), chi_hat(B, B.gap + sign * w / B.alpha)) for sign in (1, -1)]
+        plus = np.exp(-1j * w * D) * hats[0][0] * np.conj(hats[0][1])
+        minus = np.exp(1j * w * D) * hats[1][0] * np.conj(hats[1][1])
+        own = sum((da * np.abs(b) + db * np.abs(a) + da * db) * np.abs(s) for (a, b), s in zip(hats, (s_plus, s_minus)))
+        return s_plus * plus + s_minus * minus, plus, minus, own
 
+    top = frequency_reach(A, B, light_time)
+    if A.gaussian and B.gaussian:
+        def kernels_at(w):
+            zero = np.zeros(len(w))
+            return (*m_kernels(A, B, w, light_time), zero, zero, zero)
+    else:
+        kernels_at = TimeOrdered(A, B, light_time, top)
     kernels = {}
 
     def m_parts(w):
         key = w.tobytes()
         if key not in kernels:
             kernels.clear()
-            kernels[key] = m_kernels(A, B, w, light_time)
+            kernels[key] = kernels_at(w)
         return kernels[key]
 
     def anticommutator(w, s_plus, s_minus):
-        pre, J_plus, J_minus, _, _ = m_parts(w)
-        value = 0.5 * ((s_plus + np.conj(s_minus)) * J_plus + (s_minus + np.conj(s_plus)) * J_minus)
+        pre, J_plus, J_minus, _, _, J_error, _, _ = m_parts(w)
+        first, second = s_plus + np.conj(s_minus), s_minus + np.conj(s_plus)
+        value = 0.5 * (first * J_plus + second * J_minus)
         size_plus = 0.5 * (np.abs(J_plus) + np.abs(J_minus))
-        return -pre * value, pre * size_plus, pre * size_plus
+        own = 0.5 * pre * J_error * (np.abs(first) + np.abs(second))
+        return -pre * value, pre * size_plus, pre * size_plus, own
 
     def commutator(w, s_plus, s_minus):
-        pre, _, _, E_plus, E_minus = m_parts(w)
-        value = 0.5 * ((s_plus - np.conj(s_minus)) * E_plus + (s_minus - np.conj(s_plus)) * E_minus)
+        pre, _, _, E_plus, E_minus, _, E_plus_error, E_minus_error = m_parts(w)
+        first, second = s_plus - np.conj(s_minus), s_minus - np.conj(s_plus)
+        value = 0.5 * (first * E_plus + second * E_minus)
         size = 0.5 * (np.abs(E_plus) + np.abs(E_minus))
-        return -pre * value, pre * size, pre * size
+        own = 0.5 * pre * (E_plus_error * np.abs(first) + E_minus_error * np.abs(second))
+        return -pre * value, pre * size, pre * size, own
 
-    top = frequency_reach(A, B, light_time)
     (L, L_error, L_scale), (anti, anti_error, anti_scale), (comm, comm_error, comm_scale) = _integrals(
         spectrum, [l_integrand, anticommutator, commutator], top, tolerance)
-    return PairResult(complex(L), float(L_error), complex(anti + comm), float(anti_error + comm_error),
-                      complex(comm), float(comm_error), float(L_scale), float(anti_scale + comm_scale))
+    tails = [p.switching.tail_error([p.gap], dimension)[0] for p in (A, B)]
+    L_tail = float(np.sqrt(tails[0] * tails[1]))
+    return PairResult(complex(L), float(L_error) + L_tail, complex(anti + comm),
+                      float(anti_error + comm_error) + 2 * L_tail, complex(comm), float(comm_error) + L_tail,
+                      float(L_scale), float(anti_scale + comm_scale))
 
 
 def probability(A: Probe, spectrum, tolerance: float) -> tuple[float, float]:
     """L_AA (per lambda^2): the single detector's excitation probability, with its error."""
     def integrand(w, s_plus, s_minus):
-        plus = chi_hat(A, A.gap + w / A.alpha) ** 2
-        minus = chi_hat(A, A.gap - w / A.alpha) ** 2
+        plus = np.abs(chi_hat(A, A.gap + w / A.alpha)) ** 2
+        minus = np.abs(chi_hat(A, A.gap - w / A.alpha)) ** 2
         return s_plus * plus + s_minus * minus, plus, minus
 
     ((value, error, _),) = _integrals(spectrum, [integrand], frequency_reach(A, A, None), tolerance)
@@ -340,7 +476,6 @@ def multipole_weights(problem, probe: Probe, tolerance: float, density=None):
     ``density(omegas, l)`` -> (S_l, error) per unit omega of t, by default the engine's (a regular centre).
     Returns (weights, errors)."""
     from derive.detector.response import response
-    from derive.detector.switching import switching_from_spec
     from derive.solve.centre import continuum_threshold
 
     if density is None:
@@ -349,7 +484,7 @@ def multipole_weights(problem, probe: Probe, tolerance: float, density=None):
         def density(omegas, l):
             result = multipole_density(problem, omegas, probe.radius, l, tolerance)
             return result.density, result.error
-    switching = switching_from_spec({"shape": "gaussian"}, {"width": probe.sigma, "tail": 1e-12})
+    switching = probe.switching
     threshold = continuum_threshold(problem) / probe.alpha if problem is not None else 0.0
     dimension = problem.dimension if problem is not None else 4
     weights, errors, quiet = [], [], 0

@@ -80,6 +80,19 @@ class Switching:
     def tail_error(self, gaps, dimension: int = 4) -> np.ndarray:
         return np.zeros(len(np.atleast_1d(gaps)))
 
+    def transform(self, k):
+        """chi_hat(k) (complex): sqrt(2 pi) width e^{-width^2 k^2/2}."""
+        sigma = self.width
+        return (np.sqrt(2 * np.pi) * sigma * np.exp(-(sigma * np.asarray(k, dtype=float)) ** 2 / 2)).astype(complex)
+
+    transform_error = 0.0    # absolute error bound on chi_hat
+
+    @property
+    def breakpoints(self) -> np.ndarray:
+        """Where chi or a derivative may jump, ends included (tau): the Gaussian is cut at 10 widths (chi below
+        e^-50 beyond)."""
+        return np.array([-10.0, 10.0]) * self.width
+
 
 def gauss_panels(a: float, b: float, panels: int):
     """Nodes and weights of composite 16-point Gauss-Legendre on ``panels`` equal panels of [a, b]."""
@@ -147,6 +160,20 @@ class CompactSwitching(Switching):
             chunk = flat[start:start + 256]
             out[start:start + 256] = np.exp(-1j * chunk[:, None] * tau[None, :]) @ weight
         return out.reshape(k.shape)
+
+    def transform(self, k):
+        return self._transform(k, self.panels)
+
+    @property
+    def transform_error(self) -> float:
+        return _transform_error(self)
+
+    @property
+    def breakpoints(self) -> np.ndarray:
+        half = self.support_length / 2
+        if self.shape in ("cos2", "sin4"):   # the plateau's ends, where the ramps meet it
+            return np.array([-half, self.ramp - half, half - self.ramp, half])
+        return np.array([-half, half])
 
     def power(self, k):
         if self.shape == "sharp":
@@ -218,6 +245,14 @@ def _power_error(s: CompactSwitching) -> float:
     return _CACHE[key]
 
 
+def _transform_error(s: CompactSwitching) -> float:
+    key = ("transform error", s)
+    if key not in _CACHE:
+        k = np.linspace(-(s.reach + 20 / s.support_length), s.reach + 20 / s.support_length, 800)
+        _CACHE[key] = float(np.max(np.abs(s._transform(k, 2 * s.panels) - s._transform(k, s.panels))))
+    return _CACHE[key]
+
+
 def _envelope(s: CompactSwitching, K: float) -> float:
     """A = max over [K/2, 2K] of |chi_hat(k)|^2 k^p (the algebraic tail's constant)."""
     k = np.linspace(K / 2, 2 * K, 800)
@@ -277,7 +312,9 @@ def switching_from_spec(spec: dict, values: dict, profile: Callable | None = Non
     if shape == "expression" and profile is None:
         raise _bad("a switching of shape 'expression' needs its expression", "expression")
     algebraic = {"sharp": 2, "cos2": 6, "sin4": 10, "bump": None, "expression": None}[shape]
-    panels = max(64, int(np.ceil(duration / max(ramp, duration / 64) * 8)))
+    # 16 Gauss nodes on each of 64 panels resolve the bump to rounding (its transform's two resolutions agree to
+    # 1e-16); the ramps of cos2 and sin4 get 8 panels each; a user expression gets 512
+    panels = 64 if shape == "bump" else max(64, int(np.ceil(duration / max(ramp, duration / 64) * 8)))
     if shape == "expression":
         values_at = np.asarray(profile(np.linspace(-duration / 2, duration / 2, 257)), dtype=float)
         if not np.all(np.isfinite(values_at)):
