@@ -299,6 +299,43 @@ def _two_point_parts(problem, omegas, r1, r2, c, tolerance, progress=None):
     return result, states, default, extra
 
 
+def _multipole_parts(problem, r0, state, tolerance):
+    """The l-th term of the density at r0 in the state, for the multipoles of an array on the sphere of radius r0:
+    (density(omegas, l) -> (S_+, its error, S_-, its error), thermal, temperature of t or None).  Chooses between
+    the regular-centre and the horizon computations as :func:`_two_point_parts` does."""
+    from derive.solve.bound import is_ads
+    from derive.solve.centre import Unsupported, bound_states_possible
+
+    if is_ads(problem) and problem.regions[0].lower_kind != "horizon":
+        raise Unsupported("the multipoles with a reflecting AdS boundary (normal modes) are not built")
+    if problem.regions[0].lower_kind == "horizon":
+        from derive.solve.exterior import exterior_multipole
+
+        if problem.mass != 0.0:
+            raise Unsupported("a massive field's multipoles outside a horizon (quasi-bound resonances below the "
+                              "mass) are not built")
+        first = exterior_multipole(problem, np.array([1.0]), r0, 0, tolerance)
+        if state not in first.states:
+            raise Unsupported(f"state {state!r} outside a horizon: one of {', '.join(first.states)}")
+        hottest = max(t for t in (first.temperature, first.outer_temperature) if t is not None)
+        return (lambda omegas, l: exterior_multipole(problem, omegas, r0, l, tolerance).state(state)), True, hottest
+    if bound_states_possible(problem):
+        raise Unsupported("the bound states' part of the multipoles is not built")
+    from derive.solve.offcentre import multipole_density
+
+    temperature = cosmological_temperature(problem)
+    thermal = state == "bunch-davies" and temperature is not None
+
+    def density(omegas, l):
+        result = multipole_density(problem, omegas, r0, l, tolerance)
+        if not thermal:
+            return result.density, result.error
+        with np.errstate(over="ignore"):
+            n = 1.0 / np.expm1(np.asarray(omegas, dtype=float) / temperature)
+        return (1 + n) * result.density, (1 + n) * result.error, n * result.density, n * result.error
+    return density, thermal, temperature if thermal else None
+
+
 def _complex(values) -> dict:
     values = np.asarray(values)
     return {"re": _floats(values.real), "im": _floats(np.imag(values))}
@@ -558,12 +595,13 @@ def correlations(spacetime, tolerance: float | None = None, progress=None, refer
         matrix[j, i] = np.conj(matrix[i, j])
     L_matrix = {"names": names, "re": matrix.real.tolist(), "im": matrix.imag.tolist()}
     multipoles = None
-    if _on_one_sphere(probes) and problem.regions[0].lower_kind == "regular centre" and state == "vacuum":
+    if _on_one_sphere(probes):
         from derive.detector.correlations import multipole_weights
         from derive.solve.offcentre import angular_factor
 
         try:
-            weights, errors = multipole_weights(problem, probes[0], tolerance)
+            density, thermal, temperature = _multipole_parts(problem, probes[0].radius, state, tolerance)
+            weights, errors = multipole_weights(problem, probes[0], tolerance, density, thermal, temperature)
         except Unsupported as exc:
             raise _unsupported(spacetime, "compute the array's multipoles", exc, key="detectors") from None
         n = problem.dimension - 2

@@ -157,18 +157,14 @@ coupling = "0"
     return path
 
 
-TWO = """
-[[detectors]]
-name = "A"
-at = "r = 0"
-gap = 1.0
-switching = { shape = "gaussian", width = "0.5" }
-[[detectors]]
-name = "B"
-at = "r = d"
-gap = 1.0
-switching = { shape = "gaussian", width = "0.5" }
-"""
+def detectors_toml(*entries):
+    """[[detectors]] tables from (name, at, gap, switching) tuples."""
+    return "".join(f'\n[[detectors]]\nname = "{name}"\nat = "{at}"\ngap = {gap}\nswitching = {switching}'
+                   for name, at, gap, switching in entries) + "\n"
+
+
+GAUSSIAN = '{ shape = "gaussian", width = "0.5" }'
+TWO = detectors_toml(("A", "r = 0", 1.0, GAUSSIAN), ("B", "r = d", 1.0, GAUSSIAN))
 
 
 @pytest.mark.slow
@@ -398,3 +394,29 @@ def test_multipoles_of_the_density_in_flat_space(tmp_path):
                          0, 60, epsabs=0, epsrel=1e-13, limit=200)[0]
         assert weights[l] == pytest.approx(reference, rel=1e-11)
     assert weights.sum() == pytest.approx(minkowski_gaussian_response([1.0], 0.5)[0], rel=1e-10)
+
+
+@pytest.mark.slow
+def test_an_array_outside_a_black_hole_decomposes_into_multipoles(tmp_path, capsys):
+    # Two detectors on the sphere r = 6M of Schwarzschild, a quarter turn apart, in the Hartle-Hawking state: the
+    # multipole weights w_l (each l-term of the in and up densities, thermal, integrated against the switching)
+    # against two computations that do not use them (a consistency check of derive's own, not an outside value):
+    # their sum is the single detector's response (the full l-sum of the density), and sum_l w_l P_l(cos gamma) is
+    # the pair's L_AB (the l-sum of the two-point function between the points).
+    text = open(os.path.join(os.path.dirname(__file__), "..", "worked", "schwarzschild", "spec.toml")).read()
+    wide = '{ shape = "gaussian", width = "3" }'
+    text = text[:text.index("[detector]")] + '[detector]\nstate = "hartle-hawking"\ncoupling = 0.01' + detectors_toml(
+        ("A", "r = 6*M, theta = pi/2, phi = 0", 0.25, wide), ("B", "r = 6*M, theta = pi/2, phi = pi/2", 0.25, wide))
+    path = tmp_path / "array.toml"
+    path.write_text(text)
+    assert main(["correlations", str(path), "--json", "--tolerance", "1e-6"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    multipoles = data["multipoles"]
+    weights, errors = np.array(multipoles["weight"]), np.array(multipoles["error"])
+    single = data["detectors"]["A"]
+    assert abs(weights.sum() - single["probability"]) <= errors.sum() + single["error"] + 1e-9 * single["probability"]
+    (pair,) = data["pairs"]
+    assert multipoles["largest_mismatch"] < 1e-6
+    legendre = np.polynomial.legendre.legval(0.0, np.diag(np.ones(len(weights)))) @ weights
+    assert legendre == pytest.approx(pair["L"][0], rel=1e-6)
+    assert np.all(weights[:4] > 0)       # each l-term of a density is positive

@@ -468,13 +468,15 @@ def light_time(problem, first, second) -> tuple[float, float]:
 MAX_MULTIPOLE = 400
 
 
-def multipole_weights(problem, probe: Probe, tolerance: float, density=None):
-    """w_l = int dnu S_l(nu) |chi_hat(Omega + nu)|^2 (per lambda^2; nu proper frequency) for a detector like
-    ``probe`` on the sphere of radius probe.radius, S_l the l-th term of the density there: two such detectors an
-    angle gamma apart have L_AB = lambda^2 sum_l w_l G_l(cos gamma) (G_l the normalised Gegenbauer polynomial,
-    Legendre's P_l in 3+1).  Summed until three weights in a row fall below the tolerance of the running sum.
-    ``density(omegas, l)`` -> (S_l, error) per unit omega of t, by default the engine's (a regular centre).
-    Returns (weights, errors)."""
+def multipole_weights(problem, probe: Probe, tolerance: float, density=None, thermal: bool = False,
+                      temperature: float | None = None):
+    """w_l = int dnu S_l(nu) |chi_hat(Omega + nu)|^2 (per lambda^2; nu proper frequency; in a thermal state also
+    the part at -nu) for a detector like ``probe`` on the sphere of radius probe.radius, S_l the l-th term of the
+    density there: two such detectors an angle gamma apart have L_AB = lambda^2 sum_l w_l G_l(cos gamma) (G_l the
+    normalised Gegenbauer polynomial, Legendre's P_l in 3+1).  Summed until three weights in a row fall below the
+    tolerance of the running sum.  ``density(omegas, l)`` -> (S_l, error) per unit omega of t, or (S_l, error,
+    S_l at -omega, error) with ``thermal`` (``temperature``: the state's, of t); by default the engine's at a
+    regular centre, in the vacuum.  Returns (weights, errors)."""
     from derive.detector.response import response
     from derive.solve.centre import continuum_threshold
 
@@ -487,12 +489,14 @@ def multipole_weights(problem, probe: Probe, tolerance: float, density=None):
     switching = probe.switching
     threshold = continuum_threshold(problem) / probe.alpha if problem is not None else 0.0
     dimension = problem.dimension if problem is not None else 4
+    local = None if temperature is None else temperature / probe.alpha
     weights, errors, quiet = [], [], 0
     for l in range(MAX_MULTIPOLE):
         def density_at(nu, l=l):
-            value, error = density(probe.alpha * np.asarray(nu, dtype=float), l)
-            return probe.alpha * np.asarray(value), probe.alpha * np.asarray(error)
-        result = response(np.array([probe.gap]), switching, density_at, False, threshold, dimension, tolerance)
+            return tuple(probe.alpha * np.asarray(part) for part in density(probe.alpha * np.asarray(nu, dtype=float),
+                                                                            l))
+        result = response(np.array([probe.gap]), switching, density_at, thermal, threshold, dimension, tolerance,
+                          local)
         weights.append(float(result.response[0]))
         errors.append(float(result.error[0]))
         quiet = quiet + 1 if abs(weights[-1]) <= tolerance * abs(sum(weights)) else 0

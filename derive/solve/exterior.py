@@ -235,15 +235,7 @@ def _summed(problem, omegas, pair, cos_gamma, tolerance, progress):
                     for b in ("dirichlet", "neumann")]
             merged = tuple((a + b) / 2 for a, b in zip(both[0][0], both[1][0]))
             return merged, max(both[0][1], both[1][1]), both[0][2]
-    first, last = problem.regions[0], problem.regions[-1]
-    for r in pair:
-        if not r > first.lower:
-            raise Unsupported(f"the point r = {r:g} must lie outside the horizon r = {first.lower:g}")
-        if last.upper_kind == "horizon" and not r < last.upper:
-            raise Unsupported(f"the point r = {r:g} must lie inside the cosmological horizon r = {last.upper:g}")
-    omegas = np.asarray(omegas, dtype=float)
-    if omegas.ndim != 1 or np.any(~np.isfinite(omegas)) or np.any(omegas <= 0):
-        raise ValueError("frequencies must be positive and finite")
+    omegas = _checked(problem, pair, omegas)
     far = max(pair)
     f0 = float(np.asarray(region_at(problem, far).metric_f(np.array([far]))).reshape(-1)[0])
     reach = omegas * far / np.sqrt(f0)
@@ -256,6 +248,43 @@ def _summed(problem, omegas, pair, cos_gamma, tolerance, progress):
             whole[index] = piece
     kappa = problem.regions[0].surface_gravity
     return merged, max(part[6] for _, part in parts), float(kappa) / (2 * np.pi)
+
+
+def _checked(problem, pair, omegas) -> np.ndarray:
+    """The frequencies as an array, after checking them (positive, finite) and the points (between the horizons)."""
+    first, last = problem.regions[0], problem.regions[-1]
+    for r in pair:
+        if not r > first.lower:
+            raise Unsupported(f"the point r = {r:g} must lie outside the horizon r = {first.lower:g}")
+        if last.upper_kind == "horizon" and not r < last.upper:
+            raise Unsupported(f"the point r = {r:g} must lie inside the cosmological horizon r = {last.upper:g}")
+    omegas = np.asarray(omegas, dtype=float)
+    if omegas.ndim != 1 or np.any(~np.isfinite(omegas)) or np.any(omegas <= 0):
+        raise ValueError("frequencies must be positive and finite")
+    return omegas
+
+
+def exterior_multipole(problem, omegas, r0: float, l: int, tolerance: float = 1e-10) -> ExteriorTwoPoint:
+    """The l-th terms of the in and up densities at radius r0 outside the horizon (per unit omega, with the
+    harmonics' weight): two points at r0 an angle gamma apart have in and up parts sum_l of these times
+    G_l(cos gamma) (derive.solve.offcentre.angular_factor).  Refined to the tolerance relative to the term; with
+    ``.state(name)`` each state's l-th term.  At an AdS boundary with the 'transparent' condition, the average of
+    the Dirichlet and Neumann terms (as for the whole sum)."""
+    check_supported(problem)
+    from derive.solve.bound import check_boundary, is_ads
+
+    if is_ads(problem):
+        check_boundary(problem, problem.boundary)
+        if problem.boundary == "transparent":
+            both = [exterior_multipole(replace(problem, boundary=b), omegas, r0, l, tolerance)
+                    for b in ("dirichlet", "neumann")]
+            fields = ("inward", "outward", "size_in", "size_up", "inward_error", "outward_error")
+            return replace(both[0], **{k: (getattr(both[0], k) + getattr(both[1], k)) / 2 for k in fields})
+    omegas = _checked(problem, (r0, r0), omegas)
+    t_in, t_up, s_in, s_up, e_in, e_up = mode_term(problem, l, omegas, (r0, r0), 1.0, tolerance)
+    temperature = float(problem.regions[0].surface_gravity) / (2 * np.pi)
+    return ExteriorTwoPoint(omegas, (r0, r0), 1.0, t_in.real, t_up.real, s_in, s_up, e_in, e_up, temperature,
+                            tolerance, l, cosmological_temperature(problem))
 
 
 def states_of(problem) -> tuple:
