@@ -305,9 +305,26 @@ def cmd_two_point(args) -> int:
 
 
 def cmd_design(args) -> int:
-    from derive.report.tables import write_design_files
+    from derive.report.tables import write_design_files, write_pair_design_files
 
     spacetime, result, data = _computed(args, lambda st, tolerance, progress: st.design(tolerance, progress))
+    if "pair" in data:
+        def placed(label, p):
+            singles = ", ".join(f"{name} alone {runs:.3e}" for name, runs in p["single_runs"].items())
+            return (f"  {label:<9} second detector at r = {p['radius']:.5g}, delay {p['delay']:.5g}: "
+                    f"{p['runs']:.4e} +- {p['runs_error']:.1e} runs (counting both {p['counting_runs']:.4e}; "
+                    f"{singles}; {'local' if p['local'] else 'NOT local'})")
+        pair = data["pair"]
+        rows = [placed("best", pair["best"]), placed("spec's", pair["default"]),
+                f"scan over the radius (best delay at each; delays searched {pair['delays'][0]:.4g} .. "
+                f"{pair['delays'][1]:.4g}):"]
+        rows += [f"  r = {r['radius']:9.5g}  delay {r['delay']:9.4g}  {r['runs']:12.4e} +- {r['runs_error']:.1e}  "
+                 f"counting {r['counting_runs']:.4e}  {'local' if r['local'] else 'not local'}"
+                 for r in pair["scan"]]
+        rows += [f"note: {note}" for note in data["notes"]]
+        title = (f"{spacetime.title}: where to put the second detector to tell it from {data['compare']}, "
+                 f"coupling {data['coupling']:g}, {data['sigmas']:g} sigma")
+        return _deliver(args, result, write_pair_design_files, title, rows)
 
     def line(label, p):
         s = p["switching"]

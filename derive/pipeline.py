@@ -470,33 +470,14 @@ CORRELATIONS_CONVENTION = (
     "(state-independent: communication rather than harvesting)")
 
 
-def correlations(spacetime, tolerance: float | None = None, progress=None, reference: bool = True):
-    """Several static detectors ([[detectors]] in the spec): each one's excitation probability and, for every
-    pair, L_AB, M, the concurrence, negativity and mutual information of their joint state at second order,
-    and what can signal between them (see ``CORRELATIONS_CONVENTION``).
-
-    Returns a :class:`~derive.results.Correlations`: ``.detectors`` {name: {"probability", "error", "at", "gap",
-    ...}}, ``.pairs`` (every pair once, in the order the spec lists them), ``.convention``, ``.coupling``,
-    ``.state``; ``.to_dataframe()`` is the table of pairs."""
-    from derive.detector.correlations import Probe, light_time, pair_record, pair_terms
-    from derive.detector.study import detector_response
-    from derive.solve.problem import NumericDetector
-    from derive.results import Correlations
-    from derive.solve.centre import Divergent, Unsupported
-    from derive.spec.positions import cos_angle, parse_position
-
-    if len(spacetime.detectors) < 2:
-        raise InputError("correlations need two or more detectors: add [[detectors]] entries (name, at, gap, "
-                         "switching)", file=spacetime.path, key="detectors")
-    tolerance = tolerance_of(spacetime, tolerance)
-    problem = spacetime.numeric_problem
-    shared = spacetime.detector
-    state = shared.state if shared is not None else "vacuum"
-    coupling = shared.coupling if shared is not None and shared.coupling is not None else 1.0
+def _array_probes(spacetime, problem):
+    """The [[detectors]] as numbers: (probes, positions, (shape, switching values, profile) per detector), exit 2
+    naming the key where one cannot be formed."""
     from derive.codegen.problem import _switching_profile, numeric_switchings
-    from derive.detector.response import round_trip
-    from derive.detector.switching import switching_from_spec
+    from derive.detector.correlations import Probe
     from derive.detector.study import _sqrt_f
+    from derive.detector.switching import switching_from_spec
+    from derive.spec.positions import parse_position
 
     probes, points, numbers = [], [], []
     for i, (entry, switching) in enumerate(zip(spacetime.detectors, numeric_switchings(spacetime))):
@@ -518,35 +499,80 @@ def correlations(spacetime, tolerance: float | None = None, progress=None, refer
                             chi.width if shape == "gaussian" else None, centre, chi))
         numbers.append((shape, values, profile))
         points.append(point)
+    return probes, points, numbers
+
+
+def _spectrum_between(problem, first, second, state, tolerance, progress=None):
+    """spectrum(omegas) -> (S_+, its error, S_-, its error) between two positions in the named state."""
+    from derive.solve.centre import Unsupported
+    from derive.spec.positions import cos_angle
+
+    c = cos_angle(first, second)
+
+    def spectrum(omegas):
+        result, states, default, _ = _two_point_parts(problem, omegas, first.radius, second.radius, c, tolerance,
+                                                      progress)
+        if state in states:
+            return states[state]
+        if state != default and not (default == "vacuum" and state == "boulware"):
+            names = ", ".join([default] + list(states))
+            raise Unsupported(f"state {state!r}: here the states are {names}")
+        value = np.asarray(result.value, dtype=complex)
+        zero = np.zeros(len(omegas))
+        return value, np.asarray(result.error, dtype=float), zero.astype(complex), zero
+    return spectrum
+
+
+def _single_probability(spacetime, problem, probe, numbers, state, tolerance, progress, key):
+    """(F, its error) per lambda^2 of one of the [[detectors]] alone, through derive response's own code."""
+    from derive.detector.study import detector_response
+    from derive.solve.centre import Divergent
+    from derive.solve.problem import NumericDetector
+
+    shape, values, profile = numbers
+    single = NumericDetector(probe.radius, shape, values, (probe.gap,), state, None, None, 3.0, profile)
+    try:
+        answer = detector_response(problem, single, tolerance, progress=progress, shortfalls=[])[0]
+    except Divergent as exc:
+        raise InputError(f"this detector's switching cannot be used: {exc}", file=spacetime.path,
+                         key=f"{key}.switching.shape") from None
+    return float(answer.response[0]), float(answer.error[0])
+
+
+def correlations(spacetime, tolerance: float | None = None, progress=None, reference: bool = True):
+    """Several static detectors ([[detectors]] in the spec): each one's excitation probability and, for every
+    pair, L_AB, M, the concurrence, negativity and mutual information of their joint state at second order,
+    and what can signal between them (see ``CORRELATIONS_CONVENTION``).
+
+    Returns a :class:`~derive.results.Correlations`: ``.detectors`` {name: {"probability", "error", "at", "gap",
+    ...}}, ``.pairs`` (every pair once, in the order the spec lists them), ``.convention``, ``.coupling``,
+    ``.state``; ``.to_dataframe()`` is the table of pairs."""
+    from derive.detector.correlations import light_time, pair_record, pair_terms
+    from derive.results import Correlations
+    from derive.solve.centre import Unsupported
+    from derive.spec.positions import cos_angle
+
+    if len(spacetime.detectors) < 2:
+        raise InputError("correlations need two or more detectors: add [[detectors]] entries (name, at, gap, "
+                         "switching)", file=spacetime.path, key="detectors")
+    tolerance = tolerance_of(spacetime, tolerance)
+    problem = spacetime.numeric_problem
+    shared = spacetime.detector
+    state = shared.state if shared is not None else "vacuum"
+    coupling = shared.coupling if shared is not None and shared.coupling is not None else 1.0
+    from derive.detector.response import round_trip
+
+    probes, points, numbers = _array_probes(spacetime, problem)
 
     def spectrum_between(i, j):
-        c = cos_angle(points[i], points[j])
-
-        def spectrum(omegas):
-            result, states, default, _ = _two_point_parts(problem, omegas, points[i].radius, points[j].radius, c,
-                                                          tolerance, progress)
-            if state in states:
-                return states[state]
-            if state != default and not (default == "vacuum" and state == "boulware"):
-                names = ", ".join([default] + list(states))
-                raise Unsupported(f"state {state!r}: here the states are {names}")
-            value = np.asarray(result.value, dtype=complex)
-            zero = np.zeros(len(omegas))
-            return value, np.asarray(result.error, dtype=float), zero.astype(complex), zero
-        return spectrum
+        return _spectrum_between(problem, points[i], points[j], state, tolerance, progress)
 
     detectors, shortfalls = {}, []
     try:
         for i, probe in enumerate(probes):
             # L_ii is the single detector's response, through the same code as derive response
-            shape, values, profile = numbers[i]
-            single = NumericDetector(probe.radius, shape, values, (probe.gap,), state, coupling, None, 3.0, profile)
-            try:
-                answer = detector_response(problem, single, tolerance, progress=progress, shortfalls=[])[0]
-            except Divergent as exc:
-                raise InputError(f"this detector's switching cannot be used: {exc}", file=spacetime.path,
-                                 key=f"detectors[{i}].switching.shape") from None
-            value, error = float(answer.response[0]), float(answer.error[0])
+            value, error = _single_probability(spacetime, problem, probe, numbers[i], state, tolerance, progress,
+                                               f"detectors[{i}]")
             duration = 2 * probe.half_duration * probe.alpha
             trip = round_trip(problem, probe.alpha, probe.radius)
             detectors[probe.name] = {"probability": coupling ** 2 * value, "error": coupling ** 2 * error,
@@ -824,8 +850,11 @@ def design(spacetime, tolerance: float | None = None, progress=None):
     from derive.results import Design
     from derive.solve.centre import Unsupported
 
+    if (spacetime.detector is None or spacetime.detector.coordinate is None) and len(spacetime.detectors) == 2:
+        return pair_design(spacetime, tolerance, progress)
     if spacetime.detector is None or spacetime.detector.coordinate is None:
-        raise InputError("derive design searches for one detector: give [detector] with at, gaps and coupling",
+        raise InputError("derive design searches for one detector (give [detector] with at, gaps and coupling) "
+                         "or places the second of two [[detectors]]",
                          file=spacetime.path, key="detector")
     if spacetime.compare is None:
         raise InputError("derive design needs what to tell the spacetime from: give [compare] with = "
@@ -900,3 +929,277 @@ def design(spacetime, tolerance: float | None = None, progress=None):
             "compare": detector.compare_with, "tolerance": tolerance, "convention": DESIGN_CONVENTION}
     message = "; ".join(m for m, _ in shortfalls)
     return Design(plain(data), spacetime, not shortfalls, message, tolerance)
+
+
+PAIR_DESIGN_CONVENTION = (
+    "two detectors in their ground states, the first ([[detectors]] entry 1) as the spec places it, the second moved "
+    "along its direction (its angles kept) over the radii searched, its switching's peak at the first's plus the "
+    "delay (spec's time coordinate); in a flat reference the same positions read as flat polar coordinates and the "
+    "peaks at each detector's proper time. Runs at z = sigmas standard deviations: N = 4 z^2 / I, I the Fisher "
+    "information per run along the straight path between the two spacetimes' joint states, at its midpoint: 'runs' "
+    "the quantum (SLD) information of the joint state at leading order in lambda (the population of |gg> and the "
+    "one-excitation block [[L_BB, L_AB*], [L_AB, L_AA]]; the coherence M enters only at lambda^4), attained by "
+    "measuring in the block's eigenbasis; 'counting_runs' counting both detectors' excitations (sees L_AA and L_BB "
+    "only); 'single_runs' each detector alone, counted. A detector is local when its switching's effective duration "
+    "is at most `locality` times its light round trip; the best pair is chosen among local ones.")
+
+
+class _PairSide:
+    """One spacetime of the pair design: its detectors' probabilities and their L_AB at any radius and delay of
+    the second detector (the spectra between the points kept per radius, shared by every delay)."""
+
+    def __init__(self, spacetime, problem, probes, points, numbers, state, tolerance, progress, lam2):
+        self.spacetime, self.problem, self.lam2 = spacetime, problem, lam2   # problem None: Minkowski
+        self.base, self.points, self.numbers = probes, points, numbers
+        self.state, self.tolerance, self.progress = state, tolerance, progress
+        self.singles, self.spectra = {}, {}
+
+    def probe(self, index: int, radius: float, peak: float):
+        """Detector ``index`` at ``radius`` with its switching peaked at ``peak`` (spec's time)."""
+        from derive.detector.correlations import Probe
+        from derive.detector.study import _sqrt_f
+
+        base = self.base[index]
+        if self.problem is None:
+            alpha = _sqrt_f(self.spacetime.numeric_problem, radius)   # the peak at the detector's proper time
+            return Probe(base.name, radius, 1.0, base.gap, base.sigma, alpha * peak, base.switching)
+        return Probe(base.name, radius, _sqrt_f(self.problem, radius), base.gap, base.sigma, peak, base.switching)
+
+    def point(self, index: int, radius: float):
+        point = self.points[index]
+        return replace(point, radius=float(radius), text=f"r = {radius:.6g}" if radius != point.radius
+                       else point.text)
+
+    def single(self, index: int, radius: float) -> tuple[float, float]:
+        key = (index, float(radius))
+        if key not in self.singles:
+            probe = self.probe(index, radius, 0.0)
+            if self.problem is None:
+                self.singles[key] = _flat_probability(probe)
+            else:
+                self.singles[key] = _single_probability(self.spacetime, self.problem, probe, self.numbers[index],
+                                                        self.state, self.tolerance, self.progress,
+                                                        f"detectors[{index}]")
+        return self.singles[key]
+
+    def spectrum(self, radius: float):
+        key = float(radius)
+        if key not in self.spectra:
+            first, second = self.point(0, self.base[0].radius), self.point(1, radius)
+            if self.problem is None:
+                d = float(np.linalg.norm(first.radius * first.unit_vector() - second.radius * second.unit_vector()))
+
+                def compute(w, d=d):
+                    zero = np.zeros_like(w)
+                    s_plus = (np.sin(w * d) / (4 * np.pi ** 2 * d) if d > 0 else w / (4 * np.pi ** 2))
+                    return s_plus.astype(complex), 1e-16 * np.abs(s_plus), zero.astype(complex), zero
+            else:
+                compute = _spectrum_between(self.problem, first, second, self.state, self.tolerance, self.progress)
+            memo = {}
+
+            def remembered(w):
+                token = w.tobytes()
+                if token not in memo:
+                    memo[token] = compute(w)
+                return memo[token]
+            self.spectra[key] = remembered
+        return self.spectra[key]
+
+    def joint(self, radius: float, delay: float):
+        from derive.detector.correlations import pair_terms
+        from derive.detector.pair_design import JointState
+
+        A = self.probe(0, self.base[0].radius, self.base[0].centre)
+        B = self.probe(1, radius, self.base[0].centre + delay)
+        dimension = 4 if self.problem is None else self.problem.dimension
+        terms = pair_terms(A, B, self.spectrum(radius), None, self.tolerance, dimension, time_ordered=False)
+        (L_AA, e_AA), (L_BB, e_BB) = self.single(0, self.base[0].radius), self.single(1, radius)
+        lam2 = self.lam2      # the state's numbers at the spec's coupling
+        return JointState(lam2 * L_AA, lam2 * L_BB, lam2 * terms.L, (lam2 * e_AA, lam2 * e_BB, lam2 * terms.L_error))
+
+
+def _flat_probability(probe) -> tuple[float, float]:
+    """(F, its error) per lambda^2 in Minkowski (3+1, massless): the Gaussian's closed form, else the response's
+    quadrature with the exact flat density."""
+    from derive.detector.response import response
+    from derive.detector.study import flat_density, minkowski_gaussian_response
+
+    if probe.gaussian:
+        value = float(minkowski_gaussian_response([probe.gap], probe.sigma)[0])
+        return value, 1e-15 * value
+    flat = response(np.array([probe.gap]), probe.switching, flat_density(4, 0.0), threshold=0.0, dimension=4)
+    return float(flat.response[0]), float(flat.error[0])
+
+
+def pair_design(spacetime, tolerance: float | None = None, progress=None):
+    """Where to put the second of two detectors, and when to switch it, so that their joint state tells the
+    spacetime from its [compare] reference in the fewest runs (see ``PAIR_DESIGN_CONVENTION`` and
+    derive.detector.pair_design): a grid over the radii searched ([design] radii or region, ``positions`` of
+    them) refined by bounded scalar minimisation, and at each radius the delay likewise ([design] delays).
+
+    Returns a :class:`~derive.results.PairDesign`: ``.pair`` with ``best`` and ``default`` (the spec's own
+    placement): radius, delay, runs with their errors, counting_runs, single_runs, local; ``scan`` (one row per
+    radius evaluated, at its best delay)."""
+    from scipy.optimize import minimize_scalar
+
+    from derive.detector.pair_design import compare_pairs
+    from derive.detector.response import round_trip
+    from derive.results import PairDesign
+    from derive.solve.centre import Unsupported
+    from derive.spec.model import DesignSpec
+
+    if len(spacetime.detectors) != 2:
+        raise InputError("a pair design needs exactly two [[detectors]] (the first stays, the second is moved)",
+                         file=spacetime.path, key="detectors")
+    if spacetime.compare is None:
+        raise InputError("derive design needs what to tell the spacetime from: give [compare] with = "
+                         "\"minkowski\" or another spec", file=spacetime.path, key="compare")
+    shared = spacetime.detector
+    if shared is None or shared.coupling is None:
+        raise InputError("the runs need the coupling: give [detector] coupling = lambda", file=spacetime.path,
+                         key="detector.coupling")
+    tolerance = tolerance_of(spacetime, tolerance)
+    problem = spacetime.numeric_problem
+    probes, points, numbers = _array_probes(spacetime, problem)
+    design = spacetime.design_settings or DesignSpec()
+    radii = _region_radii(spacetime, design.region) if design.region is not None else design.radii
+    if radii is None:
+        raise InputError("the radii to move the second detector over: give [design] radii = [low, high] or "
+                         "region = \"name\"", file=spacetime.path, key="design.radii")
+    for radius in radii:
+        _check_radius(spacetime, problem, radius, "design.radii")
+    compare = spacetime.compare
+    lam2 = shared.coupling ** 2
+    if compare.with_ == "minkowski":
+        if problem.dimension != 4 or problem.mass != 0:
+            raise InputError("the Minkowski comparison of a pair is built for a massless field in 3+1; compare "
+                             "with the path of a flat spec instead", file=spacetime.path, key="compare.with")
+        theirs = _PairSide(spacetime, None, probes, points, numbers, shared.state, tolerance, progress, lam2)
+    else:
+        from derive import load
+
+        other = load(compare.with_)
+        other_problem = other.numeric_problem
+        theirs = _PairSide(other, other_problem, probes, points, numbers, shared.state, tolerance, progress, lam2)
+    ours = _PairSide(spacetime, problem, probes, points, numbers, shared.state, tolerance, progress, lam2)
+    A, B = probes
+    trips = {}
+
+    def local(index, radius):
+        alpha = ours.probe(index, radius, 0.0).alpha
+        if (index, radius) not in trips:
+            trips[(index, radius)] = round_trip(problem, alpha, radius)
+        duration = ours.base[index].switching.duration
+        return duration <= design.locality * trips[(index, radius)], duration, trips[(index, radius)]
+
+    from derive.solve.centre import tortoise_distance
+
+    # without an interface or a reflecting boundary (no round trip): the switchings' overlap and a light crossing
+    window = A.half_duration + B.half_duration + 2 * tortoise_distance(problem, min(A.radius, radii[0]),
+                                                                       max(A.radius, radii[1]))
+    alpha_A = ours.probe(0, A.radius, 0.0).alpha
+
+    def delay_range(radius):
+        """The delays searched with the second detector at ``radius``: [design] delays as given, else those
+        that keep the pair's span (first switching on to last off) within the locality budget of both round
+        trips, so that no echo from an interface is read; (0, 0) when even simultaneous switchings do not fit."""
+        if design.delays is not None:
+            return design.delays
+        _, first_duration, first_trip = local(0, A.radius)
+        _, duration, trip = local(1, radius)
+        room = (design.locality * min(first_trip, trip) - (first_duration + duration) / 2) / alpha_A
+        room = min(room, window)
+        return (-room, room) if room > 0 else (0.0, 0.0)
+    sigmas = compare.sigmas
+    evaluated = []
+
+    def evaluate(radius, delay):
+        record = compare_pairs(ours.joint(radius, delay), theirs.joint(radius, delay), sigmas)
+        record.update(radius=float(radius), delay=float(delay))
+        evaluated.append(record)
+        return record
+
+    def log_runs(record):
+        return float(np.log(record["runs"])) if np.isfinite(record["runs"]) and record["runs"] > 0 else 1e3
+
+    def best_delay(radius):
+        delays = delay_range(radius)
+        if delays[1] <= delays[0]:
+            return dict(evaluate(radius, delays[0]), delays=list(delays))
+        grid = np.linspace(delays[0], delays[1], 13)
+        records = [evaluate(radius, d) for d in grid]
+        k = int(np.argmin([log_runs(r) for r in records]))
+        lo, hi = grid[max(k - 1, 0)], grid[min(k + 1, len(grid) - 1)]
+        found = minimize_scalar(lambda d: log_runs(evaluate(radius, d)), bounds=(lo, hi), method="bounded",
+                                options={"xatol": 1e-3 * (delays[1] - delays[0]), "maxiter": 20})
+        return dict(min(records + [evaluate(radius, float(found.x))], key=log_runs), delays=list(delays))
+
+    try:
+        default = compare_pairs(ours.joint(B.radius, B.centre - A.centre), theirs.joint(B.radius, B.centre - A.centre),
+                                sigmas)
+        default.update(radius=B.radius, delay=B.centre - A.centre)
+        scan = []
+
+        def at_radius(radius):
+            record = best_delay(float(radius))
+            record["local"] = bool(local(1, float(radius))[0])
+            scan.append(record)
+            return log_runs(record) if record["local"] else 1e3 + float(radius)
+        grid = np.linspace(radii[0], radii[1], design.positions)
+        values = [at_radius(r) for r in grid]
+        k = int(np.argmin(values))
+        lo, hi = grid[max(k - 1, 0)], grid[min(k + 1, len(grid) - 1)]
+        minimize_scalar(at_radius, bounds=(lo, hi), method="bounded",
+                        options={"xatol": 1e-3 * (radii[1] - radii[0]), "maxiter": 10})
+    except Unsupported as exc:
+        raise _unsupported(spacetime, "design a pair of probes here", exc, key="detectors") from None
+    candidates = [r for r in scan if r["local"]] or scan
+    best = dict(min(candidates, key=log_runs))
+
+    def described(record):
+        out = dict(record)
+        radius = record["radius"]
+        ok, duration, trip = local(1, radius)
+        first_ok, first_duration, first_trip = local(0, A.radius)
+        out["at"] = ours.point(1, radius).to_json()
+        out["local"] = bool(ok and first_ok)
+        out["durations"] = [first_duration, duration]
+        out["round_trips"] = [first_trip, trip]
+        # the time the pair's measurement spans (first switching on to last off, in the first detector's proper
+        # time): a delay near the light round trip reads an echo, which a single local switching cannot
+        span = abs(record["delay"]) * alpha_A + (first_duration + duration) / 2
+        out["span"] = float(span)
+        out["span_within_round_trip"] = bool(span <= design.locality * first_trip)
+        for side, name in ((ours, "L"), (theirs, "reference_L")):
+            state = side.joint(radius, record["delay"])
+            out[name] = {"AA": state.L_AA, "BB": state.L_BB, "AB": [state.L_AB.real, state.L_AB.imag],
+                         "errors": list(state.errors)}
+        # each detector alone, counted (the same runs formula with one outcome)
+        out["single_runs"] = {}
+        for index, probe in enumerate((A, B)):
+            r = A.radius if index == 0 else radius
+            p, q = lam2 * ours.single(index, r)[0], lam2 * theirs.single(index, r)[0]
+            mean = (p + q) / 2
+            out["single_runs"][probe.name] = (4 * sigmas ** 2 * mean * (1 - mean) / (p - q) ** 2 if p != q
+                                              else float("inf"))
+        return out
+
+    best, default = described(best), described(default)
+    scan = sorted(scan, key=lambda r: r["radius"])
+    shortfalls = []
+    if not best["resolved"]:
+        shortfalls.append("the best pair's difference from the reference is not resolved (its information is not "
+                          "above twice its error): its runs are not a number derive stands behind")
+    notes = []
+    if not best["local"]:
+        notes.append("no radius searched keeps both detectors local: the best of all is reported")
+    if min(abs(best["radius"] - radii[0]), abs(best["radius"] - radii[1])) <= 1e-6 * (radii[1] - radii[0]):
+        notes.append(f"the best radius {best['radius']:.6g} lies at the edge of the range searched")
+    searched = [delay_range(r) for r in (A.radius, radii[0], radii[1])]
+    data = {"pair": {"detectors": [A.name, B.name], "best": best, "default": default, "scan": scan,
+                     "radii": list(radii), "delays": [min(d[0] for d in searched), max(d[1] for d in searched)],
+                     "delays_from": "spec" if design.delays is not None else "locality"},
+            "convention": PAIR_DESIGN_CONVENTION, "compare": compare.with_, "coupling": shared.coupling,
+            "sigmas": sigmas, "state": shared.state, "tolerance": tolerance, "notes": notes}
+    ok = not shortfalls
+    return PairDesign(data, spacetime, ok, "" if ok else "; ".join(shortfalls), tolerance)

@@ -217,6 +217,20 @@ class TwoPoint(Result):
                 f"{data['state']} state, largest error / scale {worst:.1e}")
 
 
+class PairDesign(Result):
+    """Where and when to switch the second of two detectors so that their joint state tells the spacetime from
+    its reference fastest: the best and the spec's placements, and the scan over the radius."""
+
+    kind = "design"
+    _tables = ("pair_design_table", "pair_design_figure")
+
+    def _summary(self) -> str:
+        best, default = self._data["pair"]["best"], self._data["pair"]["default"]
+        return (f"best pair: second detector at r = {best['radius']:.4g}, delay {best['delay']:.4g}, "
+                f"{best['runs']:.3g} runs (counting {best['counting_runs']:.3g}; the spec's placement "
+                f"{default['runs']:.3g})")
+
+
 class Design(Result):
     """The probe that tells the spacetime from its reference fastest while local, the trade-off of runs against
     the switching's duration, and the quantum limit."""

@@ -286,13 +286,15 @@ class PairResult:
     M_scale: float = 0.0
 
 
-def pair_terms(A: Probe, B: Probe, spectrum, light_time: float, tolerance: float, dimension: int = 4) -> PairResult:
+def pair_terms(A: Probe, B: Probe, spectrum, light_time: float | None, tolerance: float, dimension: int = 4,
+               time_ordered: bool = True) -> PairResult:
     """L_AB and M (each per lambda^2) between two detectors, with errors; ``spectrum(omegas)`` gives
     (S_+, e_+, S_-, e_-) between A's point and B's in the state.  Gaussian switchings use the closed-form kernels
     of M, others ``TimeOrdered``; the part of the frequency integrals beyond the reach of an algebraically decaying
     switching is bounded by Cauchy-Schwarz in the (positive) spectral measure, sqrt(tail_A tail_B) with each
     single detector's tail bound, and added to the errors (for E, whose large-frequency part comes from the same
-    breakpoints of K where the smoothed sign is at most 1, the same bound is taken as an estimate)."""
+    breakpoints of K where the smoothed sign is at most 1, the same bound is taken as an estimate).  Without
+    ``time_ordered`` only L_AB (M and its parts zero; no light time needed)."""
     D = A.centre - B.centre
     da, db = A.switching.transform_error, B.switching.transform_error
 
@@ -303,6 +305,11 @@ def pair_terms(A: Probe, B: Probe, spectrum, light_time: float, tolerance: float
         own = sum((da * np.abs(b) + db * np.abs(a) + da * db) * np.abs(s) for (a, b), s in zip(hats, (s_plus, s_minus)))
         return s_plus * plus + s_minus * minus, plus, minus, own
 
+    tails = [p.switching.tail_error([p.gap], dimension)[0] for p in (A, B)]
+    L_tail = float(np.sqrt(tails[0] * tails[1]))
+    if not time_ordered:
+        ((L, L_error, L_scale),) = _integrals(spectrum, [l_integrand], frequency_reach(A, B, None), tolerance)
+        return PairResult(complex(L), float(L_error) + L_tail, 0j, 0.0, 0j, 0.0, float(L_scale), 0.0)
     top = frequency_reach(A, B, light_time)
     if A.gaussian and B.gaussian:
         def kernels_at(w):
@@ -337,8 +344,6 @@ def pair_terms(A: Probe, B: Probe, spectrum, light_time: float, tolerance: float
 
     (L, L_error, L_scale), (anti, anti_error, anti_scale), (comm, comm_error, comm_scale) = _integrals(
         spectrum, [l_integrand, anticommutator, commutator], top, tolerance)
-    tails = [p.switching.tail_error([p.gap], dimension)[0] for p in (A, B)]
-    L_tail = float(np.sqrt(tails[0] * tails[1]))
     return PairResult(complex(L), float(L_error) + L_tail, complex(anti + comm),
                       float(anti_error + comm_error) + 2 * L_tail, complex(comm), float(comm_error) + L_tail,
                       float(L_scale), float(anti_scale + comm_scale))

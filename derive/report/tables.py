@@ -368,12 +368,7 @@ def design_figure(data: dict, title: str):
     axis.xaxis.set_major_locator(LogLocator(subs=(1.0, 2.0, 5.0)))
     axis.xaxis.set_major_formatter(ScalarFormatter())
     axis.xaxis.set_minor_formatter(NullFormatter())
-    axis.set_xlabel("switching duration (detector's proper time)")
-    axis.set_ylabel(f"runs to tell apart at {data['sigmas']:g} sigma")
-    axis.set_title(f"{title}: against {data['compare']}, coupling {data['coupling']:g}", fontsize=9)
-    axis.legend(fontsize=7, loc="best")
-    figure.tight_layout()
-    return figure
+    return _runs_axes(figure, axis, data, title, "switching duration (detector's proper time)")
 
 
 def write_design_files(out: str, data: dict, title: str, pdf: bool = False) -> list[str]:
@@ -385,6 +380,53 @@ def write_design_files(out: str, data: dict, title: str, pdf: bool = False) -> l
                                                                 for s in sites]))
         paths.append(path)
     return paths
+
+
+def pair_design_table(data: dict) -> tuple[list[str], list[list]]:
+    """One row per radius of the second detector evaluated, at its best delay."""
+    rows = data["pair"]["scan"]
+    header = ["radius", "delay", "runs", "runs_error", "counting_runs", "counting_runs_error", "local", "resolved"]
+    columns = [[r[k] for r in rows] for k in header]
+    return header, columns
+
+
+def pair_design_figure(data: dict, title: str):
+    """Runs against the second detector's radius (each at its best delay): the joint state's best measurement
+    and counting both detectors, the best and the spec's own placements."""
+    plt = _pyplot()
+    figure, axis = plt.subplots(figsize=(6.6, 4.4))
+    rows = data["pair"]["scan"]
+    radius = [r["radius"] for r in rows]
+    axis.errorbar(radius, [r["runs"] for r in rows], yerr=[r["runs_error"] for r in rows], fmt="o-", capsize=2,
+                  color="C0", label="best joint measurement (joint state)")
+    axis.errorbar(radius, [r["counting_runs"] for r in rows], yerr=[r["counting_runs_error"] for r in rows],
+                  fmt="s--", capsize=2, color="C2", mfc="none", label="counting both detectors")
+    far = [r["radius"] for r in rows if not r["local"]]
+    if far:   # from the last local radius evaluated (the limit lies between) to the farthest
+        near = [r["radius"] for r in rows if r["local"] and r["radius"] < min(far)]
+        axis.axvspan(max(near, default=min(far)), max(far), color="0.9", label="second detector not local")
+    best, default = data["pair"]["best"], data["pair"]["default"]
+    axis.plot([best["radius"]], [best["runs"]], "*", ms=13, color="C3",
+              label=f"best: r = {best['radius']:.3g}, delay {best['delay']:.3g}, {best['runs']:.2g} runs")
+    axis.plot([default["radius"]], [default["runs"]], "D", ms=7, color="C1",
+              label=f"spec's placement: {default['runs']:.2g} runs")
+    axis.set_yscale("log")
+    return _runs_axes(figure, axis, data, title, "radius of the second detector")
+
+
+def _runs_axes(figure, axis, data, title, xlabel):
+    """The labels, title and legend of a design figure (runs against what was searched)."""
+    axis.set_xlabel(xlabel)
+    axis.set_ylabel(f"runs to tell apart at {data['sigmas']:g} sigma")
+    axis.set_title(f"{title}: against {data['compare']}, coupling {data['coupling']:g}", fontsize=9)
+    axis.legend(fontsize=7, loc="best")
+    figure.tight_layout()
+    return figure
+
+
+def write_pair_design_files(out: str, data: dict, title: str, pdf: bool = False) -> list[str]:
+    return _write_table_and_figure(out, "pair_design", pair_design_table(data), pair_design_figure(data, title),
+                                   pdf)
 
 
 # -- files ---------------------------------------------------------------------------------------------------

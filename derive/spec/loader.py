@@ -40,7 +40,7 @@ UNKNOWNS_HINT = ("; or, if a junction condition fixes it, list it in this region
                  "unknowns = [\"{name}\"]")
 COMPARE_KEYS = ("with", "sigmas")
 NUMERICS_KEYS = ("tolerance",)
-DESIGN_KEYS = ("gaps", "shapes", "locality", "shortest", "longest", "radii", "region", "positions")
+DESIGN_KEYS = ("gaps", "shapes", "locality", "shortest", "longest", "radii", "region", "positions", "delays")
 DESIGN_SHAPES = ("gaussian", "bump", "cos2", "sin4")   # the shapes derive design can scale to a duration
 CHOSEN_BY_DERIVE = ("l_max", "omega_max", "outer_radius")   # read by no solver: refused with the reason
 SWITCHING_SHAPES = ("gaussian", "sharp", "bump", "cos2", "sin4", "expression")
@@ -810,7 +810,7 @@ def _design(reader, table, region_names):
     if isinstance(positions, bool) or not isinstance(positions, int) or not 2 <= positions <= 50:
         reader.fail(f"expected a whole number of positions from 2 to 50, got {positions!r}", "design.positions")
     return DesignSpec(pair("gaps"), tuple(dict.fromkeys(shapes)), locality, shortest, longest,
-                      pair("radii", positive=True), positions, region)
+                      pair("radii", positive=True), positions, region, pair("delays"))
 
 
 def _detector(reader, parser, table, coordinates, definitions):

@@ -126,6 +126,7 @@ class DesignSpec:
     radii: tuple[float, float] | None = None
     positions: int = 5
     region: str | None = None          # search the radius over this region (instead of radii)
+    delays: tuple[float, float] | None = None   # a pair's search: the second detector's peak minus the first's
 
 
 @dataclass(frozen=True)
