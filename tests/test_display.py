@@ -202,3 +202,26 @@ def test_pdf_figures_embed_truetype_fonts(tmp_path):
     pdf = next(p for p in paths if p.endswith(".pdf"))
     raw = open(pdf, "rb").read()
     assert b"/Type3" not in raw and (b"/TrueType" in raw or b"/Type0" in raw)
+
+
+def test_pdf_figures_fit_one_journal_column(tmp_path):
+    """The vector figure is laid out for one column of a two-column journal page (Physical Review: 8.6 cm =
+    3.4 in; common practice), with no text below 5.5 pt; the screen PNG keeps its size and title."""
+    import re
+
+    from matplotlib.text import Text
+
+    from derive.report import tables
+
+    data = {"gaps": [-1.0, 0.0, 1.0], "response": [0.2, 0.08, 0.007], "error": [1e-12, 1e-12, 1e-13],
+            "switching": {"shape": "gaussian", "width": 0.5}, "state": "vacuum", "at": 0.0,
+            "locality": {"duration": 5.0, "round_trip": 2.0, "local": False}}
+    paths = tables.write_response_files(str(tmp_path), data, "test", pdf=True)
+    raw = open(next(p for p in paths if p.endswith(".pdf")), "rb").read()
+    width = float(re.search(rb"/MediaBox \[\s*0 0 ([0-9.]+) ([0-9.]+)", raw).group(1))
+    assert 0.8 * 3.4 * 72 <= width <= 3.4 * 72 + 2
+    figure = tables.response_figure(data, "test")
+    assert figure.get_size_inches()[0] > 6       # the screen version
+    tables.for_column(figure)
+    sizes = [t.get_fontsize() for t in figure.findobj(Text) if t.get_text()]
+    assert min(sizes) >= tables.SMALLEST_FONT and all(not axis.get_title() for axis in figure.axes)

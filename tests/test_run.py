@@ -36,7 +36,7 @@ def test_run_writes_everything(tmp_path, capsys):
     from derive.report.results_tex import with_error
     for value, error in zip(response["response"], response["error"]):
         assert with_error(value, error) in tex
-    assert r"\includegraphics[width=0.8\linewidth]{response.pdf}" in tex
+    assert r"\includegraphics{response.pdf}" in tex   # at its natural size: one journal column
 
 
 def test_a_failing_run_leaves_the_earlier_folder(tmp_path, monkeypatch):

@@ -1,7 +1,8 @@
 """The results section of `derive run`'s derivation: the numbers with their errors, and the figures.
 
 Built from the run's summary (the same JSON as summary.json), so the document and the files agree.  Figures are
-the PDF files the run wrote beside the document (``\\includegraphics`` by file name).
+the PDF files the run wrote beside the document (``\\includegraphics`` by file name, at their natural size: one
+journal column).
 """
 
 from __future__ import annotations
@@ -70,7 +71,7 @@ def results_section(derivation: Derivation, summary: dict, figures: list[str]) -
     shown = Section("Figures") if figures else None
     for name, stem in FIGURES:
         if name in figures:
-            shown.text += ("\n\\begin{figure}[h]\\centering\\includegraphics[width=0.8\\linewidth]{" + name + "}"
+            shown.text += ("\n\\begin{figure}[h]\\centering\\includegraphics{" + name + "}"
                          f"\\caption{{The {stem}, as written to {escape(stem)}.csv.}}\\end{{figure}}\n")
     if shown is not None:
         sec.subsections.append(shown)

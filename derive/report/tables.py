@@ -26,19 +26,50 @@ def _png(figure) -> bytes:
     return buffer.getvalue()
 
 
+COLUMN_WIDTH = 3.4    # inches: one column of a two-column journal page (Physical Review's 8.6 cm)
+PAGE_WIDTH = 7.0      # the full width of such a page (17.8 cm), for figures with panels side by side
+SMALLEST_FONT = 5.5   # points: the smallest text a journal accepts after reduction (common practice: 5-6 pt)
+
+
 def _save(figure, out: str, stem: str, pdf: bool) -> list[str]:
+    """The figure as PNG (screen size, with its title) and, with ``pdf``, as a vector PDF laid out for a journal
+    column (:func:`for_column`)."""
     paths = [os.path.join(out, stem + ".png")]
     write_atomic(paths[0], _png(figure))
     if pdf:
         import matplotlib
 
+        for_column(figure)
         buffer = io.BytesIO()
         # TrueType (Type 42) fonts embedded: journals' production systems refuse Type 3 bitmap fonts
         with matplotlib.rc_context({"pdf.fonttype": 42}):
-            figure.savefig(buffer, format="pdf", bbox_inches="tight")
+            figure.savefig(buffer, format="pdf", bbox_inches="tight", pad_inches=0.02)
         paths.append(os.path.join(out, stem + ".pdf"))
         write_atomic(paths[1], buffer.getvalue())
     return paths
+
+
+def for_column(figure) -> None:
+    """Lay a screen figure out for a paper, in place: one column wide (the full page width when its panels stand
+    side by side), the height in proportion, text scaled to the width but never below SMALLEST_FONT, lines and
+    markers thinner, and the axes' titles dropped (a paper's caption says what they said)."""
+    from matplotlib.lines import Line2D
+    from matplotlib.text import Text
+
+    width, height = figure.get_size_inches()
+    target = PAGE_WIDTH if width > 8.0 else COLUMN_WIDTH
+    figure.set_size_inches(target, height * target / width)
+    for axis in figure.axes:
+        axis.set_title("")
+        axis.tick_params(labelsize=max(SMALLEST_FONT, 7.0), length=2.5, width=0.6, pad=2)
+    shrink = 0.75
+    for text in figure.findobj(Text):
+        if text.get_text():
+            text.set_fontsize(max(SMALLEST_FONT, min(8.0, text.get_fontsize() * shrink)))
+    for line in figure.findobj(Line2D):
+        line.set_linewidth(line.get_linewidth() * 0.7)
+        line.set_markersize(line.get_markersize() * 0.6)
+    figure.tight_layout(pad=0.3)
 
 
 def _pyplot():
