@@ -225,3 +225,28 @@ def test_pdf_figures_fit_one_journal_column(tmp_path):
     tables.for_column(figure)
     sizes = [t.get_fontsize() for t in figure.findobj(Text) if t.get_text()]
     assert min(sizes) >= tables.SMALLEST_FONT and all(not axis.get_title() for axis in figure.axes)
+
+
+def test_tortoise_through_the_horizon_radii():
+    # Reissner-Nordstrom written with M and Q: r_* = r + r_+^2/(r_+ - r_-) ln(r - r_+) - r_-^2/(r_+ - r_-) ln(r - r_-)
+    # with r_+- = M +- sqrt(M^2 - Q^2) (the textbook form; from memory: Chandrasekhar, The Mathematical Theory of
+    # Black Holes (1983), ch. 5); the document writes it so, with the radii defined beneath.
+    import derive
+    from derive.report.latex import field_sections
+
+    st = derive.load(os.path.join(WORKED, "reissner_nordstrom", "spec.toml"))
+    region = st.field_problem.regions["outside"]
+    form, roots, polynomial = region.tortoise_through_roots
+    rp, rm = sp.Symbol("r_+", real=True), sp.Symbol("r_-", real=True)
+    x = region.r
+    textbook = x + rp ** 2 / (rp - rm) * sp.log(x - rp) - rm ** 2 / (rp - rm) * sp.log(x - rm)
+    assert sp.simplify(form - textbook) == 0
+    values = st.parameter_values
+    mass, charge = (next(k for k in values if str(k) == name) for name in ("M", "Q"))
+    for symbol, sign in ((rp, 1), (rm, -1)):
+        closed = mass + sign * sp.sqrt(mass ** 2 - charge ** 2)
+        assert float(roots[symbol].subs(values)) == pytest.approx(float(closed.subs(values)), rel=1e-15)
+    derivation = Derivation("t", (x,), values)
+    field_sections(derivation, st)
+    body = derivation.body_latex()
+    assert r"r_{+} &= M + \sqrt{M^{2} - Q^{2}}" in body and r"\log{\left(r - r_{+} \right)}" in body

@@ -86,6 +86,67 @@ def rational_antiderivative(integrand, r, inside: float, values: dict):
     return result
 
 
+def antiderivative_through_roots(integrand, r, inside: float, values: dict):
+    """The antiderivative of :func:`rational_antiderivative` written through named roots of the denominator, as a
+    paper writes it: Res(rho_i) = P(rho_i)/(c prod_{j != i}(rho_i - rho_j)) for integrand P/Q, Q = c prod (r - rho_j)
+    (r_* = r + r_+^2/(r_+ - r_-) log(r - r_+) - r_-^2/(r_+ - r_-) log(r - r_-) for Reissner-Nordstrom).  Returns
+    (expression, {name: root}, Q) with the names r_+ > r_- (two real roots) or r_1, r_2, ... (by their real parts
+    at ``values``, largest first), or None when the roots are plain numbers or symbols (nothing to name) or the
+    form is not that of a rational integrand with simple poles.  The caller checks it against the explicit one."""
+    if not integrand.is_rational_function(r):
+        return None
+    numer, denom = sp.fraction(sp.cancel(integrand))
+    denom_poly = sp.Poly(denom, r)
+    quotient, remainder = sp.div(sp.Poly(numer, r), denom_poly)
+    if remainder.is_zero:
+        return None
+    roots = sp.roots(denom_poly)
+    if sum(roots.values()) != denom_poly.degree() or any(m != 1 for m in roots.values()) or len(roots) < 2:
+        return None
+    radical = any(isinstance(node, sp.Pow) and not node.exp.is_integer
+                  for root in roots for node in sp.preorder_traversal(root))
+    if not radical:
+        return None       # no radical in any root: the explicit form is as short
+    try:
+        located = sorted(roots, key=lambda root: -float(sp.re(sp.N(root.subs(values), 20))))
+    except (TypeError, ValueError):
+        return None
+    real = all(abs(float(sp.im(sp.N(root.subs(values), 20)))) < 1e-12 for root in located)
+    if len(located) == 2 and real:
+        names = [sp.Symbol(f"r_{s}", real=True) for s in ("+", "-")]
+    else:
+        names = [sp.Symbol(f"r_{k}") for k in range(1, len(located) + 1)]
+    lead = denom_poly.LC()
+    result = sp.integrate(quotient.as_expr(), r)
+    for i, (name, root) in enumerate(zip(names, located)):
+        # every difference as the earlier name minus the later (positive for real roots), the sign in front
+        others = sp.Mul(*[names[min(i, j)] - names[max(i, j)] for j in range(len(names)) if j != i])
+        residue = (-1) ** i * numer.subs(r, name) / (lead * others)
+        try:
+            sign = float(sp.re(sp.N((r - root).subs(values).subs(r, inside))))
+        except (TypeError, ValueError):
+            sign = 1.0
+        result += residue * sp.log(r - name if sign >= 0 else name - r)
+    return result, dict(zip(names, located)), denom
+
+
+def _same_values(first, second, r, region, values) -> bool:
+    """first == second at 30 digits (to 1e-20 of their size) at three radii inside the region."""
+    import mpmath
+
+    from derive.geometry.checks import exact_values
+    from derive.geometry.matter import sample_points
+
+    exact = exact_values(values)
+    with mpmath.workdps(30):
+        for point in sample_points(region, [r], values, count=3)[0]:
+            at = {**exact, r: sp.Rational(repr(float(point)))}
+            a, b = sp.N(first.subs(at), 30), sp.N(second.subs(at), 30)
+            if not (a.is_number and b.is_number) or abs(a - b) > 1e-20 * (abs(a) + abs(b) + 1e-30):
+                return False
+    return True
+
+
 def derivative_matches(antiderivative, integrand, r, region, values) -> bool:
     """d(antiderivative)/dr == integrand: exactly when cancel shows it, else at 30 digits at five radii."""
     import mpmath
@@ -215,6 +276,22 @@ class RegionField:
         if not derivative_matches(result, 1 / self.F, self.r, self.region, self.values):
             return None
         return result
+
+    @cached_property
+    def tortoise_through_roots(self):
+        """r*(r) written through the named roots of 1/F's denominator (the horizons among them), with their
+        definitions: (expression, {symbol: root}, the polynomial whose roots they are), or None.  Accepted only
+        when, with the roots put back, its derivative is 1/F (as :attr:`tortoise` is checked)."""
+        if self.tortoise is None:
+            return None
+        named = antiderivative_through_roots(sp.cancel(1 / self.F), self.r,
+                                             sample_radius(self.region, self.r, self.values), self.values)
+        if named is None:
+            return None
+        form, roots, polynomial = named
+        if not _same_values(form.subs(roots), self.tortoise, self.r, self.region, self.values):
+            return None
+        return form, roots, polynomial
 
     @cached_property
     def ends(self) -> dict:

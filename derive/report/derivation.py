@@ -48,10 +48,12 @@ class Equation:
     where: list[tuple[str, list[str]]] = field(default_factory=list)   # named quantities shown beside it
     omitted: str = ""  # why the right-hand side is not displayed (too long to read), if it is not
     entries: list["Equation"] = field(default_factory=list)   # a matrix too wide for a line, entry by entry
+    note: str = ""     # LaTeX text set after it (what its symbols are, when they are not written as equations)
 
     @property
     def one_line(self) -> bool:
-        return not self.omitted and not self.where and not self.entries and len(self.lines) <= 1
+        return (not self.omitted and not self.where and not self.entries and not self.note
+                and len(self.lines) <= 1)
 
 
 @dataclass
@@ -212,6 +214,8 @@ def _display(eq: Equation) -> list[str]:
         return out
     if eq.omitted:
         return [rf"\noindent The right-hand side of ${eq.lhs}$ is {escape(eq.omitted)}.", ""]
+    if eq.note:
+        return _display(Equation(eq.lhs, eq.rhs, eq.label, eq.relation, eq.lines, eq.where)) + [eq.note, ""]
     if len(eq.lines) <= 1 and not eq.where:
         return [r"\begin{equation}", f"{eq.lhs} {eq.relation} {eq.rhs}", rf"\label{{{eq.label}}}",
                 r"\end{equation}"]

@@ -454,3 +454,21 @@ def one_root(expr, values):
     prefactor = sp.sign(here) * sp.sqrt(sp.cancel(m_num / m_den))
     form = root if prefactor == 1 else (-root if prefactor == -1 else sp.Mul(prefactor, root, evaluate=False))
     return form if vanishes(form - expr, values, simplify=False) else None
+
+
+def merged_roots(expr, values):
+    """Every product of square roots in ``expr`` as one root of the expanded product: M + sqrt(M - Q) sqrt(M + Q)
+    -> M + sqrt(M^2 - Q^2).  Accepted only where it agrees with ``expr`` at 30 digits at the spec's values (the
+    roots of negative numbers would not), else ``expr`` unchanged."""
+    def merge(node):
+        if not isinstance(node, sp.Mul):
+            return node
+        roots = [f for f in node.args if isinstance(f, sp.Pow) and f.exp == sp.Rational(1, 2)]
+        if len(roots) < 2:
+            return node
+        rest = sp.Mul(*[f for f in node.args if f not in roots])
+        return rest * sp.sqrt(sp.expand(sp.Mul(*[f.base for f in roots])))
+    form = expr.replace(lambda node: isinstance(node, sp.Mul), merge)
+    if form == expr or not values:
+        return expr
+    return form if vanishes(form - expr, values, simplify=False) else expr

@@ -132,6 +132,11 @@ def field_json(problem, l_value=None) -> dict:
             "potential": _tx(at_l(region.potential)),
             "ends": _textify(deep(region.ends)),
         }
+        named = region.tortoise_through_roots
+        if named is not None:    # r_* through the named roots of its denominator, with their definitions
+            regions[name]["tortoise_through_roots"] = {
+                "expression": _tx(named[0]), "definitions": {str(k): _tx(v) for k, v in named[1].items()},
+                "roots_of": _tx(named[2])}
     interfaces = [{"between": list(m.between), "at": m.shell.interface.text,
                    "transfer_matrix": _mx(m.transfer_matrix.applyfunc(at_l)),
                    "transfer_matrix_named": _mx(m.named_transfer_matrix[0]),

@@ -220,6 +220,29 @@ def junction_sections(derivation: Derivation, spacetime) -> None:
         sec.subsections.append(second_sec)
 
 
+def _tortoise_through_roots(derivation: Derivation, named, name, region):
+    """r_* through the named roots of 1/F's denominator (the horizons among them): the roots written out where
+    each fits a line, else as the roots of their polynomial with their values at the spec's parameters."""
+    from derive.report import display
+
+    form, roots, polynomial = named
+    eq = derivation.equation(r"r_*", form, "field", name, "tortoise")
+    shown = {symbol: display.merged_roots(root, derivation.values) for symbol, root in roots.items()}
+    lines = {symbol: display.display_lines(value, 40.0, derivation.variables) for symbol, value in shown.items()}
+    if all(len(v) == 1 and display.width(v[0]) <= display.LINE_WIDTH_PT / 2 for v in lines.values()):
+        eq.where = [(latex_of(symbol), lines[symbol]) for symbol in roots]
+    else:
+        symbols = list(roots)
+        ordered = " > ".join(latex_of(s) for s in symbols) if all(
+            abs(complex(sp.N(v.subs(derivation.values))).imag) < 1e-12 for v in roots.values()) else ", ".join(
+            latex_of(s) for s in symbols)
+        approx = ", ".join(f"{latex_of(s)} \\approx {complex(sp.N(v.subs(derivation.values), 15)).real:.10g}"
+                           for s, v in roots.items())
+        eq.note = (rf"\noindent where ${ordered}$ are the roots of ${latex_of(polynomial, derivation.variables)} = 0$ "
+                   rf"(at the spec's values ${approx}$); derive field --json gives them in closed form.")
+    return eq
+
+
 def field_sections(derivation: Derivation, spacetime) -> None:
     """The field: separation, radial equation, potential, tortoise coordinate, ends, matching."""
     problem = spacetime.field_problem
@@ -238,7 +261,10 @@ def field_sections(derivation: Derivation, spacetime) -> None:
         sub.equations.append(derivation.equation(r"\lambda", region.eigenvalue, "field", name, "lambda"))
         sub.equations.append(derivation.equation("0", region.radial_equation, "field", name, "radial"))
         sub.equations.append(derivation.equation(r"\frac{dr_*}{dr}", region.dtortoise_dr, "field", name, "dtortoise"))
-        if region.tortoise is not None:
+        named = region.tortoise_through_roots
+        if named is not None:
+            sub.equations.append(_tortoise_through_roots(derivation, named, name, region))
+        elif region.tortoise is not None:
             sub.equations.append(derivation.equation(r"r_*", region.tortoise, "field", name, "tortoise"))
         else:
             sub.text += r"$r_*$ has no closed form here; it is computed by quadrature. "
