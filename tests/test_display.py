@@ -250,3 +250,31 @@ def test_tortoise_through_the_horizon_radii():
     field_sections(derivation, st)
     body = derivation.body_latex()
     assert r"r_{+} &= M + \sqrt{M^{2} - Q^{2}}" in body and r"\log{\left(r - r_{+} \right)}" in body
+
+
+def test_series_through_the_recursion_where_too_long():
+    # The Frobenius recursion a_k = -sum_j a_{k-j} [P_j (s + k - j) + Q_j] / [(s + k)(s + k - 1) + P_0 (s + k) + Q_0]
+    # (the standard one for u'' + p u' + q u = 0 with x p = sum P_j x^j, x^2 q = sum Q_j x^j: common practice, e.g.
+    # Bender & Orszag (1978) section 3.3, from memory) with the P_j, Q_j the document shows reproduces the series
+    # derive computes in its field of rational functions; the RN document gives a_2 through it.
+    import derive
+    from derive.report.latex import field_sections
+
+    st = derive.load(os.path.join(WORKED, "reissner_nordstrom", "spec.toml"))
+    end = st.field_problem.regions["outside"].ends["lower"]
+    P, Q = end["recursion"]["P"], end["recursion"]["Q"]
+    s = end["exponents"][0]
+    a = [sp.Integer(1)]
+    for k in (1, 2):
+        total = sum(a[k - j] * (P[j] * (s + k - j) + Q[j]) for j in range(1, k + 1))
+        a.append(-total / ((s + k) * (s + k - 1) + P[0] * (s + k) + Q[0]))
+    values = {**st.parameter_values, sp.Symbol("omega", positive=True): sp.Rational(7, 10),
+              sp.Symbol("l", nonnegative=True): 2}
+    values.update({h.symbol: h.value for h in st.field_problem.regions["outside"].horizons})
+    for k in (1, 2):
+        mine, theirs = complex(sp.N(a[k].subs(values), 20)), complex(sp.N(end["series_ingoing"][k].subs(values), 20))
+        assert mine == pytest.approx(theirs, rel=1e-14)
+    derivation = Derivation("t", (st.field_problem.regions["outside"].r,), st.parameter_values)
+    field_sections(derivation, st)
+    body = derivation.body_latex()
+    assert "gives $a_2$" in body and "Q_2 &=" in body and "The right-hand side of $a_2$" not in body

@@ -71,6 +71,29 @@ def frobenius(p, q, r, r0, exponent, order: int = SERIES_ORDER, upper: bool = Fa
     return coefficients
 
 
+def recursion_coefficients(p, q, r, r0, order: int = SERIES_ORDER, upper: bool = False) -> dict:
+    """The Taylor coefficients P_j, Q_j (j = 0..order) of x p and x^2 q at x = 0 (x = r - r0, or r0 - r when
+    ``upper``), through which the Frobenius coefficients follow from
+    a_k = -sum_{j=1}^{k} a_{k-j} [P_j (s + k - j) + Q_j] / [(s + k)(s + k - 1) + P_0 (s + k) + Q_0]:
+    {"P": [...], "Q": [...]}, each factored (with radicals in the symbols: cancelled, as the series is)."""
+    x = sp.Symbol("x", positive=True)
+    if upper:
+        p, shift = -p, r0 - x
+    else:
+        shift = r0 + x
+    P = (x * p).subs(r, shift)
+    Q = (x ** 2 * q).subs(r, shift)
+    try:
+        symbols = sorted((P.free_symbols | Q.free_symbols) - {x}, key=str)
+        field, *_ = sp.field([x] + symbols, sp.QQ)
+        return {"P": [_factored(c) for c in _field_taylor(field.from_expr(P), field, order + 1)],
+                "Q": [_factored(c) for c in _field_taylor(field.from_expr(Q), field, order + 1)]}
+    except (sp.PolynomialError, sp.CoercionFailed, ValueError, TypeError):
+        pass
+    return {"P": [_tidy(c) for c in _taylor(sp.cancel(P), x, order + 1)],
+            "Q": [_tidy(c) for c in _taylor(sp.cancel(Q), x, order + 1)]}
+
+
 def _frobenius_in_field(p, q, r, shift, exponent, order, x, exact: bool = False, factored: bool = True) -> list:
     """``exact``: the exponent is put into the field itself (it must be rational in the symbols), so that a
     resonance (an exponent k above this one is also a root) is seen: where the recursion's right side vanishes
@@ -189,6 +212,9 @@ def _horizon_end(field, horizon, side) -> dict:
     F2 = sp.cancel(f * h)
     p = sp.cancel(sp.diff(F2, r) / (2 * F2))
     q = sp.cancel((OMEGA ** 2 - twin.potential) / F2)
+    recursion = recursion_coefficients(p, q, r, rho, upper=side != "lower")
+    if recursion is not None:     # the series' coefficients through the equation's own (shown when shorter)
+        end["recursion"] = recursion
     if side == "lower":
         end["series_ingoing"] = frobenius(p, q, r, rho, ingoing)
     else:
@@ -236,9 +262,13 @@ def _finite_end(field, r0, interfaces, p, q, F2, side) -> dict:
             roots = sp.solve(sp.expand(s * (s - 1) + P0 * s + Q0), s)
             roots = sorted(roots, key=lambda e: -float(e.subs(L_SYMBOL, 1)))
             regular = _tidy(roots[0])
-            return {"kind": "regular centre", "at": 0, "exponents": [_tidy(e) for e in roots],
-                    "regular_exponent": regular, "series": frobenius(p, q, r, 0, regular),
-                    "behaviour": "u ~ r^(l + n/2) (1 + a_1 r + ...)"}
+            end = {"kind": "regular centre", "at": 0, "exponents": [_tidy(e) for e in roots],
+                   "regular_exponent": regular, "series": frobenius(p, q, r, 0, regular),
+                   "behaviour": "u ~ r^(l + n/2) (1 + a_1 r + ...)"}
+            recursion = recursion_coefficients(p, q, r, 0)
+            if recursion is not None:
+                end["recursion"] = recursion
+            return end
         return {"kind": "singular", "at": 0}
     return {"kind": "boundary", "at": r0}
 

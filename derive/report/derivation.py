@@ -80,6 +80,14 @@ class Derivation:
         self._allowance = display.SIMPLIFY_SECONDS
         self._radicals: dict = {}   # square roots named in this document: base -> symbol
 
+    def named_radicals(self) -> dict:
+        """The square roots named so far (a copy): give it back to :meth:`forget_radicals_since` when equations
+        built after it are not shown, so that the names stay without gaps."""
+        return dict(self._radicals)
+
+    def forget_radicals_since(self, snapshot: dict) -> None:
+        self._radicals = dict(snapshot)
+
     def label(self, *parts) -> str:
         base = "eq:" + "-".join(re.sub(r"[^A-Za-z0-9]+", "", str(p)) or "x" for p in parts)
         label, k = base, 2

@@ -243,6 +243,33 @@ def _tortoise_through_roots(derivation: Derivation, named, name, region):
     return eq
 
 
+RECURSION_LINES = 6   # the longest P_j or Q_j for which the recursion is shown instead of a long a_k
+
+
+def _recursion(derivation: Derivation, end, name, side, missing) -> list | None:
+    """The series' coefficients through the recursion and the Taylor coefficients of the radial equation, for
+    the a_k too long to show as one expression: a paper's way of giving them."""
+    names = derivation.named_radicals()    # restored if the recursion is not shown (no gaps in the names)
+    variable = "r" if end["kind"] == "regular centre" else (r"r_{h} - r" if side == "upper" else r"r - r_{h}")
+    which = ", ".join(f"$a_{k}$" for k in missing)
+    recursion = derivation.equation(
+        "a_k", r"-\frac{\sum_{j=1}^{k} a_{k-j} \left[P_j (s + k - j) + Q_j\right]}"
+               r"{(s + k)(s + k - 1) + P_0 (s + k) + Q_0}", "field", name, side, "recursion")
+    recursion.note = (rf"\noindent gives {which} (too long to show as one expression), with $x = {variable}$, "
+                      r"$u = x^s \sum_k a_k x^k$, $a_0 = 1$, and $x\,p = \sum_j P_j x^j$, "
+                      r"$x^2 q = \sum_j Q_j x^j$ the Taylor coefficients of the radial equation "
+                      r"$u'' + p\,u' + q\,u = 0$ in $r$ ($p = (F^2)'/(2F^2)$, $q = (\omega^2 - V)/F^2$):")
+    out = [recursion]
+    for letter in ("P", "Q"):
+        for j, value in enumerate(end["recursion"][letter]):
+            out.append(derivation.equation(f"{letter}_{j}", value, "field", name, side, letter, j))
+    # worth it only when every coefficient reads in a few lines (else the omission note stands)
+    if any(eq.omitted or len(eq.lines) + sum(len(w) for _, w in eq.where) > RECURSION_LINES for eq in out[1:]):
+        derivation.forget_radicals_since(names)
+        return None
+    return out
+
+
 def field_sections(derivation: Derivation, spacetime) -> None:
     """The field: separation, radial equation, potential, tortoise coordinate, ends, matching."""
     problem = spacetime.field_problem
@@ -287,10 +314,16 @@ def field_sections(derivation: Derivation, spacetime) -> None:
                     "field", name, side, "exponents"))
             if "surface_gravity" in end:
                 sub.equations.append(derivation.equation(r"\kappa", end["surface_gravity"], "field", name, "kappa"))
-            series = end.get("series") or end.get("series_ingoing")
+            series = end.get("series") or end.get("series_ingoing") or end.get("series_outgoing")
             if series:
-                for k, coefficient in enumerate(series[1:], start=1):
-                    sub.equations.append(derivation.equation(f"a_{k}", coefficient, "field", name, side, "a", k))
+                shown = [derivation.equation(f"a_{k}", coefficient, "field", name, side, "a", k)
+                         for k, coefficient in enumerate(series[1:], start=1)]
+                missing = [k for k, eq in enumerate(shown, start=1) if eq.omitted]
+                through = _recursion(derivation, end, name, side, missing) if missing and end.get("recursion") else None
+                if through is not None:
+                    sub.equations += [eq for eq in shown if not eq.omitted] + through
+                else:
+                    sub.equations += shown
             if end.get("tail") and end["tail"] not in ("AdS-like", "growing", "unknown"):
                 radius = region.r
                 leading = sp.S(end["V_infinity"]) + sp.S(end["coulomb"]) / radius + sp.S(end["centrifugal"]) / radius**2
