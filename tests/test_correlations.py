@@ -327,15 +327,15 @@ def test_the_pair_order_conjugates_L_and_keeps_M():
 def test_spacelike_switchings_carry_no_commutator(tmp_path, capsys):
     # Switchings whose effective durations (all but 1e-12 of chi^2) fit inside the light time cannot signal: the
     # commutator part of M is then of the size of the Gaussians' tails at the light cone,
-    # sigma e^{-sigma^2 Omega^2 - d^2/(4 sigma^2)}/(4 sqrt(pi) d) (the closed form above), here e^{-57}.
+    # sigma e^{-sigma^2 Omega^2 - d^2/(4 sigma^2)}/(4 sqrt(pi) d) (the closed form above), here e^{-30}.
     narrow = TWO.replace('width = "0.5"', 'width = "0.2"')
     path = spec_file(str(tmp_path), narrow)
-    assert main(["correlations", path, "--json", "--set", "d=3"]) == 0
+    assert main(["correlations", path, "--json", "--set", "d=2.2", "--tolerance", "1e-8"]) == 0
     data = json.loads(capsys.readouterr().out)
     (pair,) = data["pairs"]
     assert pair["signalling"]["overlap"] is False
-    assert pair["signalling"]["light_time"] == pytest.approx(3.0, rel=1e-10)
-    tail = 0.01 * 0.2 * np.exp(-0.04 - 9 / 0.16) / (4 * np.sqrt(np.pi) * 3)
+    assert pair["signalling"]["light_time"] == pytest.approx(2.2, rel=1e-10)
+    tail = 0.01 * 0.2 * np.exp(-0.04 - 2.2 ** 2 / 0.16) / (4 * np.sqrt(np.pi) * 2.2)
     assert abs(complex(*pair["signalling"]["commutator_part"])) <= tail + pair["signalling"]["commutator_part_error"]
     assert abs(complex(*pair["M"])) > 1e6 * tail       # the anticommutator (harvested) part is not small
 
