@@ -299,6 +299,26 @@ def _two_point_parts(problem, omegas, r1, r2, c, tolerance, progress=None):
     return result, states, default, extra
 
 
+def _normal_mode_multipoles(problem, probe, tolerance, progress=None):
+    """w_l for an array on a sphere with a reflecting AdS boundary: each l's normal modes at the sphere's radius
+    against the switching, sum_n w_nl |chi_hat(Omega + omega_nl/alpha)|^2 (the discrete form of
+    derive.detector.correlations.multipole_weights), with the errors of the single detector's sum."""
+    from derive.solve.bound import normal_modes_below
+
+    switching = probe.switching
+    cutoff = (max(0.0, -probe.gap) + switching.reach) * probe.alpha
+    modes = normal_modes_below(problem, cutoff, tolerance, probe.radius, progress=progress)
+    count = int(np.max(modes.l)) + 1 if len(modes.l) else 1
+    weights, errors = np.zeros(count), np.zeros(count)
+    power = switching.power(probe.gap + modes.omega / probe.alpha)
+    np.add.at(weights, modes.l, power * modes.weight)
+    np.add.at(errors, modes.l, power * modes.weight_error + getattr(switching, "power_error", 0.0) * np.abs(
+        modes.weight))
+    for l, (omega, weight) in enumerate(modes.beyond[:count]):
+        errors[l] += 10 * abs(weight) * float(switching.power(np.array([probe.gap + omega / probe.alpha]))[0])
+    return weights, errors
+
+
 def _multipole_parts(problem, r0, state, tolerance):
     """The l-th term of the density at r0 in the state, for the multipoles of an array on the sphere of radius r0:
     (density(omegas, l) -> (S_+, its error, S_-, its error), thermal, temperature of t or None).  Chooses between
@@ -567,6 +587,11 @@ def correlations(spacetime, tolerance: float | None = None, progress=None, refer
     def spectrum_between(i, j):
         return _spectrum_between(problem, points[i], points[j], state, tolerance, progress)
 
+    from derive.detector.correlations import frequency_reach, pair_terms_discrete
+    from derive.solve.bound import is_ads, normal_modes_below
+
+    normal_modes = is_ads(problem) and problem.regions[0].lower_kind != "horizon"
+
     detectors, shortfalls = {}, []
     try:
         for i, probe in enumerate(probes):
@@ -590,7 +615,12 @@ def correlations(spacetime, tolerance: float | None = None, progress=None, refer
             for j in range(i + 1, len(probes)):
                 A, B = probes[i], probes[j]
                 light, light_error = light_time(problem, points[i], points[j])
-                terms = pair_terms(A, B, spectrum_between(i, j), light, tolerance, problem.dimension)
+                if normal_modes:   # a discrete spectrum: the integrals are sums over the modes
+                    modes = normal_modes_below(problem, frequency_reach(A, B, light), tolerance, A.radius,
+                                               B.radius, cos_angle(points[i], points[j]), progress)
+                    terms = pair_terms_discrete(A, B, modes, light, problem.dimension)
+                else:
+                    terms = pair_terms(A, B, spectrum_between(i, j), light, tolerance, problem.dimension)
                 L_AA, L_BB = (detectors[p.name]["probability"] for p in (A, B))
                 e_AA, e_BB = (detectors[p.name]["error"] for p in (A, B))
                 lam2 = coupling ** 2
@@ -626,8 +656,11 @@ def correlations(spacetime, tolerance: float | None = None, progress=None, refer
         from derive.solve.offcentre import angular_factor
 
         try:
-            density, thermal, temperature = _multipole_parts(problem, probes[0].radius, state, tolerance)
-            weights, errors = multipole_weights(problem, probes[0], tolerance, density, thermal, temperature)
+            if normal_modes:
+                weights, errors = _normal_mode_multipoles(problem, probes[0], tolerance, progress)
+            else:
+                density, thermal, temperature = _multipole_parts(problem, probes[0].radius, state, tolerance)
+                weights, errors = multipole_weights(problem, probes[0], tolerance, density, thermal, temperature)
         except Unsupported as exc:
             raise _unsupported(spacetime, "compute the array's multipoles", exc, key="detectors") from None
         n = problem.dimension - 2

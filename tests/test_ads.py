@@ -157,3 +157,52 @@ def test_an_off_centre_detector_in_ads_against_the_closed_form_wightman_function
         exact = float(mp.re(mp.quad(integrand, [-mp.inf, -5, 0, 5, mp.inf])))
         assert abs(value - exact) <= error, (gap, value, exact, error)
         assert error < 1e-9 * value
+
+
+@pytest.mark.slow
+def test_two_detectors_in_ads_against_the_closed_form_wightman_function(tmp_path, capsys):
+    # Two static detectors in AdS4 (the centre and r = 3/2), conformally coupled massless field with the reflecting
+    # (Dirichlet) condition: L_AB and M through derive's normal-mode sums (every mode below the reach, with the
+    # weights between the two points) against the Avis-Isham-Storey Wightman function of the test above, now
+    # between two points, Z = [sqrt((L^2 + r_A^2)(L^2 + r_B^2)) cos(v/L) - r_A r_B cos gamma]/L^2 (derived here
+    # from the embedding X.X'), reduced over t_A + t_B as in tests/test_correlations.py and integrated by mpmath:
+    # for L below every singularity (all on the real axis), for M (Feynman) below those at v > 0 and above those at
+    # v < 0.
+    import mpmath as mp
+
+    # the two detectors as top-level inline tables (the same as [[detectors]] entries), before the spec's tables
+    text = """detectors = [
+  { name = "A", at = "r = 0", gap = 1.0, switching = { shape = "gaussian", width = "0.5" } },
+  { name = "B", at = "r = 3/2", gap = 2.0, switching = { shape = "gaussian", width = "0.6", centre = "0.3" } }]
+""" + ADS.format(L=L, mass="0", coupling="1/6", width="1").split("[detector]")[0] + """[detector]
+state = "vacuum"
+coupling = 0.1
+"""
+    path = tmp_path / "ads_pair.toml"
+    path.write_text(text)
+    assert main(["correlations", str(path), "--json", "--tolerance", "1e-6"]) == 0
+    (pair,) = json.loads(capsys.readouterr().out)["pairs"]
+    mp.mp.dps = 25
+    rA, rB = mp.mpf(0), mp.mpf("1.5")
+    aA, aB = mp.sqrt(1 + rA ** 2 / L ** 2), mp.sqrt(1 + rB ** 2 / L ** 2)
+
+    def W(v):
+        Z = (mp.sqrt((L ** 2 + rA ** 2) * (L ** 2 + rB ** 2)) * mp.cos(v / L) - rA * rB) / L ** 2
+        return (1 / (Z - 1) - 1 / (Z + 1)) / (8 * mp.pi ** 2 * L ** 2)
+
+    a, b = (mp.mpf("0.5") / aA) ** 2, (mp.mpf("0.6") / aB) ** 2
+    c, wA, wB, D = a + b, aA * 1, aB * 2, -mp.mpf("0.3")
+    light = L * mp.acos(L ** 2 / mp.sqrt((L ** 2 + rA ** 2) * (L ** 2 + rB ** 2)))
+    h = light / 2
+
+    def reduced(kappa, spread, sign):
+        pre = aA * aB * mp.sqrt(2 * mp.pi * a * b / c) * mp.exp(-spread ** 2 * a * b / (2 * c))
+        return lambda v: sign * pre * mp.exp(-(v - D) ** 2 / (2 * c) + 1j * kappa * (v - D)) * W(v)
+
+    f_L = reduced((-wA * a - wB * b) / c, wB - wA, 1)
+    f_M = reduced((wA * a - wB * b) / c, wA + wB, -1)
+    L_ref = 0.01 * complex(mp.quad(lambda u: f_L(u - 1j * h), [-mp.inf, -5, 0, 5, mp.inf]))
+    M_ref = 0.01 * complex(mp.quad(f_M, [-12 + 1j * h, -h + 1j * h, 0, h - 1j * h, 12 - 1j * h]))
+    assert abs(complex(*pair["L"]) - L_ref) <= pair["error"]["L"] and pair["error"]["L"] < 1e-9 * abs(L_ref)
+    assert abs(complex(*pair["M"]) - M_ref) <= pair["error"]["M"] and pair["error"]["M"] < 1e-9 * abs(M_ref)
+    assert pair["signalling"]["light_time"] == pytest.approx(float(light), rel=1e-10)

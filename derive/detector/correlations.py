@@ -286,15 +286,10 @@ class PairResult:
     M_scale: float = 0.0
 
 
-def pair_terms(A: Probe, B: Probe, spectrum, light_time: float | None, tolerance: float, dimension: int = 4,
-               time_ordered: bool = True) -> PairResult:
-    """L_AB and M (each per lambda^2) between two detectors, with errors; ``spectrum(omegas)`` gives
-    (S_+, e_+, S_-, e_-) between A's point and B's in the state.  Gaussian switchings use the closed-form kernels
-    of M, others ``TimeOrdered``; the part of the frequency integrals beyond the reach of an algebraically decaying
-    switching is bounded by Cauchy-Schwarz in the (positive) spectral measure, sqrt(tail_A tail_B) with each
-    single detector's tail bound, and added to the errors (for E, whose large-frequency part comes from the same
-    breakpoints of K where the smoothed sign is at most 1, the same bound is taken as an estimate).  Without
-    ``time_ordered`` only L_AB (M and its parts zero; no light time needed)."""
+def _pair_integrands(A: Probe, B: Probe, light_time: float | None, dimension: int, time_ordered: bool = True):
+    """The integrands of L_AB and of M's anticommutator and commutator parts, each (omega, S_+, S_-) -> (values,
+    |factor of S_+|, |factor of S_-|, own absolute error); the frequency up to which they matter; and the bound on
+    what lies beyond it for an algebraically decaying switching (see :func:`pair_terms`)."""
     D = A.centre - B.centre
     da, db = A.switching.transform_error, B.switching.transform_error
 
@@ -306,10 +301,9 @@ def pair_terms(A: Probe, B: Probe, spectrum, light_time: float | None, tolerance
         return s_plus * plus + s_minus * minus, plus, minus, own
 
     tails = [p.switching.tail_error([p.gap], dimension)[0] for p in (A, B)]
-    L_tail = float(np.sqrt(tails[0] * tails[1]))
+    tail = float(np.sqrt(tails[0] * tails[1]))
     if not time_ordered:
-        ((L, L_error, L_scale),) = _integrals(spectrum, [l_integrand], frequency_reach(A, B, None), tolerance)
-        return PairResult(complex(L), float(L_error) + L_tail, 0j, 0.0, 0j, 0.0, float(L_scale), 0.0)
+        return [l_integrand], frequency_reach(A, B, None), tail
     top = frequency_reach(A, B, light_time)
     if A.gaussian and B.gaussian:
         def kernels_at(w):
@@ -342,11 +336,63 @@ def pair_terms(A: Probe, B: Probe, spectrum, light_time: float | None, tolerance
         own = 0.5 * pre * (E_plus_error * np.abs(first) + E_minus_error * np.abs(second))
         return -pre * value, pre * size, pre * size, own
 
-    (L, L_error, L_scale), (anti, anti_error, anti_scale), (comm, comm_error, comm_scale) = _integrals(
-        spectrum, [l_integrand, anticommutator, commutator], top, tolerance)
-    return PairResult(complex(L), float(L_error) + L_tail, complex(anti + comm),
-                      float(anti_error + comm_error) + 2 * L_tail, complex(comm), float(comm_error) + L_tail,
+    return [l_integrand, anticommutator, commutator], top, tail
+
+
+def _pair_result(parts, tail) -> PairResult:
+    """PairResult from the (value, error, scale) of L and, when computed, of M's two parts."""
+    (L, L_error, L_scale), *rest = parts
+    if not rest:
+        return PairResult(complex(L), float(L_error) + tail, 0j, 0.0, 0j, 0.0, float(L_scale), 0.0)
+    (anti, anti_error, anti_scale), (comm, comm_error, comm_scale) = rest
+    return PairResult(complex(L), float(L_error) + tail, complex(anti + comm),
+                      float(anti_error + comm_error) + 2 * tail, complex(comm), float(comm_error) + tail,
                       float(L_scale), float(anti_scale + comm_scale))
+
+
+def pair_terms(A: Probe, B: Probe, spectrum, light_time: float | None, tolerance: float, dimension: int = 4,
+               time_ordered: bool = True) -> PairResult:
+    """L_AB and M (each per lambda^2) between two detectors, with errors; ``spectrum(omegas)`` gives
+    (S_+, e_+, S_-, e_-) between A's point and B's in the state.  Gaussian switchings use the closed-form kernels
+    of M, others ``TimeOrdered``; the part of the frequency integrals beyond the reach of an algebraically decaying
+    switching is bounded by Cauchy-Schwarz in the (positive) spectral measure, sqrt(tail_A tail_B) with each
+    single detector's tail bound, and added to the errors (for E, whose large-frequency part comes from the same
+    breakpoints of K where the smoothed sign is at most 1, the same bound is taken as an estimate).  Without
+    ``time_ordered`` only L_AB (M and its parts zero; no light time needed)."""
+    integrands, top, tail = _pair_integrands(A, B, light_time, dimension, time_ordered)
+    return _pair_result(_integrals(spectrum, integrands, top, tolerance), tail)
+
+
+def pair_terms_discrete(A: Probe, B: Probe, modes, light_time: float, dimension: int = 4) -> PairResult:
+    """L_AB and M for a discrete spectrum (normal modes, derive.solve.bound.ModeList between the two points, the
+    angular factor in the weights, up to :func:`frequency_reach`): the frequency integrals become sums over the
+    modes (a vacuum: S_+ = the weights, S_- = 0).  Errors: the weights' errors through the factors, each mode's
+    frequency error through a central difference of its term, the integrands' own errors, and ten times the
+    first mode left out of every l (as for one detector)."""
+    integrands, _, tail = _pair_integrands(A, B, light_time, dimension)
+    omegas = np.asarray(modes.omega, dtype=float)
+    weights = np.asarray(modes.weight, dtype=float).astype(complex)
+    zero = np.zeros(len(omegas), dtype=complex)
+    beyond_omega = np.array([w for w, _ in modes.beyond], dtype=float)
+    beyond_weight = np.array([v for _, v in modes.beyond], dtype=float).astype(complex)
+    step = 1e-6 * max(float(np.max(omegas)) if len(omegas) else 1.0, 1.0)
+    parts = []
+    for integrand in integrands:
+        if len(omegas):
+            values, plus, minus, own = integrand(omegas, weights, zero)
+            up = integrand(omegas + step, weights, zero)[0]
+            down = integrand(omegas - step, weights, zero)[0]
+            value = np.sum(values)
+            error = (np.sum(np.abs(plus) * modes.weight_error) + np.sum(own)
+                     + np.sum(np.abs(up - down) / (2 * step) * modes.omega_error))
+            scale = np.sum(np.abs(plus) * np.abs(weights))
+        else:
+            value, error, scale = 0j, 0.0, 0.0
+        if len(beyond_omega):
+            error += 10 * np.sum(np.abs(integrand(beyond_omega, beyond_weight, np.zeros(len(beyond_omega)))[0]))
+        error += 64 * np.finfo(float).eps * scale
+        parts.append((value, float(error), float(scale)))
+    return _pair_result(parts, tail)
 
 
 def probability(A: Probe, spectrum, tolerance: float) -> tuple[float, float]:

@@ -209,43 +209,20 @@ def normal_mode_response(problem, gaps, switching: Switching, sqrt_f0: float, to
     none there (the centrifugal barrier only raises the modes with l).  Modes beyond the reach contribute below
     e^-100 of the peak and are left out, with the first of them (times 10, for the rest of its slowly growing
     weights) counted in the error, for every l summed and for the first l left out."""
-    from derive.errors import AccuracyError
-    from derive.solve.bound import bound_states, tortoise_extent
+    from derive.solve.bound import normal_modes_below
 
     gaps = np.asarray(gaps, dtype=float)
     cutoff = (max(0.0, -float(np.min(gaps))) + switching.reach) * sqrt_f0     # in omega
-    count = int(np.ceil(cutoff * tortoise_extent(problem) / np.pi)) + 2          # modes are ~pi/r*_b apart
-    total, error = np.zeros(len(gaps)), np.zeros(len(gaps))
-    l = 0
-    while True:
-        modes = bound_states(problem, l, r0, tolerance, count=count)
-        if not modes.ok:
-            raise AccuracyError("the normal modes did not reach their tolerance: " + modes.message(),
-                                {"tolerance": tolerance})
-        nu = modes.omega / sqrt_f0
-        inside = modes.omega <= cutoff
-        if np.any(inside) and np.all(inside):   # the list must reach past the cutoff: nothing below it missed
-            raise AccuracyError(f"fewer normal modes of l = {l} than needed below omega = {cutoff:.6g} were "
-                                "found", {})
-        if len(modes.omega):
-            first_out = np.nonzero(~inside)[0][0]
-            error += 10 * np.abs(modes.weight[first_out]) * switching.power(gaps + nu[first_out])
-        if not np.any(inside) and r0 != 0.0:     # this l and every higher one lie beyond the reach
-            break
-        # the next l's modes lie above this l's (the centrifugal barrier): as many below the reach at most
-        count = int(np.sum(inside)) + 2
-        k = gaps[:, None] + nu[None, inside]
-        power = switching.power(k)
-        # a mode's frequency error moves it along |chi_hat|^2: its slope (a central difference) times the error
-        step = 1e-6 * cutoff / sqrt_f0
-        slope = np.abs(switching.power(k + step) - switching.power(k - step)) / (2 * step)
-        total += power @ modes.weight[inside]
-        error += (power @ modes.weight_error[inside]
-                  + slope @ (np.abs(modes.weight[inside]) * modes.omega_error[inside] / sqrt_f0)
-                  + getattr(switching, "power_error", 0.0) * np.sum(np.abs(modes.weight[inside])))
-        if progress is not None:
-            progress({"stage": "normal modes", "l": l, "modes": int(np.sum(inside))})
-        if r0 == 0.0:
-            break
-        l += 1
+    modes = normal_modes_below(problem, cutoff, tolerance, r0, progress=progress)
+    error = np.zeros(len(gaps))
+    for omega, weight in modes.beyond:   # the first mode left out, times 10 for the rest of its growing weights
+        error += 10 * np.abs(weight) * switching.power(gaps + omega / sqrt_f0)
+    k = gaps[:, None] + modes.omega[None, :] / sqrt_f0
+    power = switching.power(k)
+    # a mode's frequency error moves it along |chi_hat|^2: its slope (a central difference) times the error
+    step = 1e-6 * cutoff / sqrt_f0
+    slope = np.abs(switching.power(k + step) - switching.power(k - step)) / (2 * step)
+    total = power @ modes.weight
+    error += (power @ modes.weight_error + slope @ (np.abs(modes.weight) * modes.omega_error / sqrt_f0)
+              + getattr(switching, "power_error", 0.0) * np.sum(np.abs(modes.weight)))
     return Response(gaps, total, error, np.zeros(len(gaps)), error)

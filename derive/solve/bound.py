@@ -54,20 +54,29 @@ class BoundStates:
     weight_error: np.ndarray
     truncated: bool           # more levels exist (a Coulomb-like tail: infinitely many)
     tolerance: float
+    scale: np.ndarray | None = None   # between two points: the mean of the two diagonal weights (the tolerance's)
+
+    @property
+    def size(self) -> np.ndarray:
+        """What each weight's tolerance refers to: the weight (between two points, the mean diagonal weight), at
+        least 1e-8 of the largest (a mode with a node at the point has a weight of zero, known to rounding)."""
+        size = np.abs(self.weight) if self.scale is None else self.scale
+        return np.maximum(size, 1e-8 * float(np.max(size))) if len(size) else size
 
     @property
     def ok(self) -> bool:
         return bool(np.all(self.omega_error <= self.tolerance * self.omega)
-                    and np.all(self.weight_error <= self.tolerance * np.abs(self.weight)))
+                    and np.all(self.weight_error <= self.tolerance * self.size))
 
     def message(self) -> str:
         if self.ok:
             return "ok"
+        size = self.size
         worst = int(np.argmax(np.maximum(self.omega_error / self.omega,
-                                         self.weight_error / np.maximum(np.abs(self.weight), 1e-300))))
+                                         self.weight_error / np.maximum(size, 1e-300))))
         return (f"bound state l = {self.l}, omega = {self.omega[worst]:.12g}: relative errors "
                 f"{self.omega_error[worst] / self.omega[worst]:.1e} (omega), "
-                f"{self.weight_error[worst] / max(abs(self.weight[worst]), 1e-300):.1e} (weight) miss the "
+                f"{self.weight_error[worst] / max(size[worst], 1e-300):.1e} (weight) miss the "
                 f"tolerance {self.tolerance:.0e}")
 
 
@@ -367,46 +376,72 @@ def _zeros(evaluate, low, high):
     return estimate
 
 
-def _weights(problem, l, omegas, steps, r0):
-    """w_n at r0 for each eigenfrequency: u_n(r0)^2 / (2 omega_n int u_n^2 dr*) times the harmonics' weight over
-    r0^(D-2), with 2 omega_n int u_n^2 = b D'(omega_n) and b = u_reg/u_dec read at the bottom of the well r_m;
-    u_n = u_reg inside r_m (marched outward: stable there) and b u_dec outside it (marched inward)."""
-    out = np.zeros(len(omegas))
+WEIGHT_FLOOR = 1e-11    # relative accuracy floor of a mode's weight (see bound_states)
+
+
+def _amplitudes(problem, l, omegas, steps, radii):
+    """For each eigenfrequency, the normalised mode at each of ``radii`` (signed), and the sign of its norm:
+    (A of shape (len(omegas), len(radii)), sign), so that the weight between radii i and j is
+    sign h_l A_i A_j.  The norm is 2 omega_n int u_n^2 dr* = b D'(omega_n), b = u_reg/u_dec read at the bottom of
+    the well r_m; u_n = u_reg inside r_m (marched outward: stable there) and b u_dec outside it (marched inward);
+    A = u_n(r)/(r^(n/2) sqrt|b D'|) off the centre and (dr*/dr) du_n/dr*/sqrt|b D'| at it (l = 0 only)."""
+    out = np.zeros((len(omegas), len(radii)))
+    signs = np.ones(len(omegas))
     dimension = problem.dimension - 2
     for i, omega in enumerate(omegas):
         r_m = _well_bottom(problem, l, omega)
-        layout = _layout(problem, l, omega * (1 + 1e-6), (r0, r_m))
-        h = 1e-5 * (omega if is_ads(problem) else continuum_threshold(problem) - omega)
+        layout = _layout(problem, l, omega * (1 + 1e-6), tuple(radii) + (r_m,))
+        # the stencil's step: D varies on the scale of the level spacing (pi over the well's tortoise extent in
+        # AdS), and 1e-3 of it balances rounding (eps/h) against truncation (h^4) near 1e-13; below a mass
+        # threshold the levels crowd towards it, and the distance to it sets the scale
+        h = (1e-3 * min(omega, np.pi / tortoise_extent(problem)) if is_ads(problem)
+             else 1e-5 * (continuum_threshold(problem) - omega))
         stencil = omega + h * np.array([-2.0, -1.0, 0.0, 1.0, 2.0])
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
             (D, log_D), regular, decaying = _march(problem, l, stencil, steps, layout)
         values = D * np.exp(log_D - log_D[2])
         derivative = (values[0] - 8 * values[1] + 8 * values[3] - values[4]) / (12 * h)   # of D e^-log_D[2]
-        (reg_0, reg_0_log), (reg_m, reg_m_log) = regular
-        (dec_0, dec_0_log), (dec_m, dec_m_log) = decaying
+        reg_m, reg_m_log = regular[-1]
+        dec_m, dec_m_log = decaying[-1]
         j = int(np.argmax(np.abs(dec_m[2])))          # b from u (or from u' where u vanishes)
         log_b_ratio = reg_m_log[2] - dec_m_log[2]
         b = reg_m[2, j] / dec_m[2, j]                 # times e^(log_b_ratio)
-        component = 1 if r0 == 0.0 else 0
-        if r0 <= r_m:
-            # u_reg(r0)^2 / (b D'), everything in units of e^(log_D) for u_reg
-            value = reg_0[2, component] ** 2 / (b * derivative) * np.exp(2 * reg_0_log[2] - log_b_ratio - log_D[2])
-        else:
-            value = b * dec_0[2, component] ** 2 / derivative * np.exp(log_b_ratio + 2 * dec_0_log[2] - log_D[2])
-        if r0 == 0.0:
-            if l != 0:
-                continue
-            # psi(0) = du/dr at the centre = (dr*/dr) du/dr*;  |Y_00|^2 = 1/(4 pi)
-            centre = float(np.asarray(problem.regions[0].dtortoise_dr(np.array([0.0]))).reshape(-1)[0])
-            out[i] = centre ** 2 * value / (4 * np.pi)
-        else:
-            out[i] = harmonic_weight(l, dimension) * value / r0 ** dimension
-    return out
+        norm = b * derivative                        # times e^(log_b_ratio + log_D[2])
+        signs[i] = np.sign(norm)
+        for k, r0 in enumerate(radii):
+            (reg, reg_log), (dec, dec_log) = regular[k], decaying[k]
+            if r0 == 0.0:
+                if l != 0:
+                    continue
+                # psi(0) = du/dr at the centre = (dr*/dr) du/dr*
+                factor = float(np.asarray(problem.regions[0].dtortoise_dr(np.array([0.0]))).reshape(-1)[0])
+                value, log = reg[2, 1], reg_log[2]
+            elif r0 <= r_m:
+                factor, value, log = r0 ** (-dimension / 2), reg[2, 0], reg_log[2]
+            else:
+                factor, value, log = r0 ** (-dimension / 2), b * dec[2, 0], dec_log[2] + log_b_ratio
+            out[i, k] = factor * value * np.exp(log - (log_b_ratio + log_D[2]) / 2) / np.sqrt(abs(norm))
+    return out, signs
+
+
+def _weights(problem, l, omegas, steps, r0, r1=None):
+    """w_n at r0 for each eigenfrequency: h_l u_n(r0)^2 / (2 omega_n int u_n^2 dr* r0^(D-2)) (with r1, the weight
+    between r0 and r1, h_l psi_n(r0) psi_n(r1)/(2 omega_n int u_n^2 dr*), and the mean of the two diagonal weights
+    as its scale: (weights, scales))."""
+    radii = (r0,) if r1 is None else (r0, r1)
+    amplitudes, signs = _amplitudes(problem, l, omegas, steps, radii)
+    h = 1 / (4 * np.pi) if 0.0 in radii else harmonic_weight(l, problem.dimension - 2)
+    if r1 is None:
+        return signs * h * amplitudes[:, 0] ** 2
+    return (signs * h * amplitudes[:, 0] * amplitudes[:, 1],
+            h * (amplitudes[:, 0] ** 2 + amplitudes[:, 1] ** 2) / 2)
 
 
 def bound_states(problem, l: int = 0, r0: float = 0.0, tolerance: float = 1e-10, count: int = 6,
-                 steps: int = 64, max_steps: int = 16384) -> BoundStates:
-    """The lowest ``count`` bound states of angular label l, with weights at r0 (see the module docstring)."""
+                 steps: int = 64, max_steps: int = 16384, r1: float | None = None) -> BoundStates:
+    """The lowest ``count`` bound states of angular label l, with weights at r0 (see the module docstring); with
+    ``r1``, the weights between r0 and r1 (signed; times G_l(cos gamma) they are the modes' share of the
+    two-point function between points at r0 and r1 an angle gamma apart), ``scale`` the mean diagonal weight."""
     if not is_ads(problem):
         check_supported(problem, any_dimension=True)
     elif problem.regions[0].lower_kind != "regular centre":
@@ -415,7 +450,7 @@ def bound_states(problem, l: int = 0, r0: float = 0.0, tolerance: float = 1e-10,
         check_boundary(problem, problem.boundary)
         if problem.boundary == "transparent":
             # the average of the two two-point functions: both sets of normal modes, each with half its weight
-            both = [bound_states(replace(problem, boundary=b), l, r0, tolerance, count, steps, max_steps)
+            both = [bound_states(replace(problem, boundary=b), l, r0, tolerance, count, steps, max_steps, r1)
                     for b in ("dirichlet", "neumann")]
             # every level up to the lower of the two lists' tops (each list is complete up to its own)
             top = min(float(np.max(b.omega)) if len(b.omega) else np.inf for b in both)
@@ -423,25 +458,89 @@ def bound_states(problem, l: int = 0, r0: float = 0.0, tolerance: float = 1e-10,
             order = np.argsort(omegas)[:max(count, int(np.sum(omegas <= top)))]
             merged = [np.concatenate([getattr(b, key) for b in both])[order] * factor
                       for key, factor in (("omega", 1), ("omega_error", 1), ("weight", 0.5), ("weight_error", 0.5))]
-            return BoundStates(l, r0, *merged, any(b.truncated for b in both), tolerance)
-    if r0 == 0.0 and problem.dimension != 4:
+            scale = None if r1 is None else 0.5 * np.concatenate([b.scale for b in both])[order]
+            return BoundStates(l, r0, *merged, any(b.truncated for b in both), tolerance, scale)
+    if 0.0 in (r0, r1) and problem.dimension != 4:
         raise Unsupported("bound-state weights at the centre are implemented in 3+1; give a radius r0 > 0")
     if not is_ads(problem) and continuum_threshold(problem) == 0.0:
         return BoundStates(l, r0, *(np.zeros(0) for _ in range(4)), False, tolerance)
     region_at(problem, r0)
+    if r1 is not None:
+        region_at(problem, r1)
     omegas, truncated, brackets = _levels(problem, l, steps, count, r0)
+    empty = None if r1 is None else np.zeros(0)
     if not len(omegas):
-        return BoundStates(l, r0, *(np.zeros(0) for _ in range(4)), truncated, tolerance)
-    weights = _weights(problem, l, omegas, steps, r0)
+        return BoundStates(l, r0, *(np.zeros(0) for _ in range(4)), truncated, tolerance, empty)
+
+    def weighed(frequencies, steps):
+        if r1 is None:
+            return _weights(problem, l, frequencies, steps, r0), None
+        return _weights(problem, l, frequencies, steps, r0, r1)
+    weights, scale = weighed(omegas, steps)
     while True:
         # each level re-bracketed around its last value (the scan's bracket may sit beside the converged level:
         # the coarse grid's error moved it in)
         brackets = [(w - (high - low) / 2, w + (high - low) / 2) for w, (low, high) in zip(omegas, brackets)]
         finer, _, _ = _levels(problem, l, 2 * steps, count, r0, brackets)
-        finer_weights = _weights(problem, l, finer, 2 * steps, r0)
+        finer_weights, scale = weighed(finer, 2 * steps)
         omega_error = np.abs(finer - omegas) + 16 * steps * np.finfo(float).eps * finer   # rounding in D's zero
-        weight_error = np.abs(finer_weights - weights) + 1e-12 * np.abs(finer_weights)
+        size = np.abs(finer_weights) if scale is None else scale
+        # the floor: AdS weights against their closed forms (the conformal field's, tests/test_ads.py) show a
+        # systematic 3e-12 that refining the march does not move
+        weight_error = np.abs(finer_weights - weights) + WEIGHT_FLOOR * size
         omegas, weights, steps = finer, finer_weights, 2 * steps
-        result = BoundStates(l, r0, omegas, omega_error, weights, weight_error, truncated, tolerance)
+        result = BoundStates(l, r0, omegas, omega_error, weights, weight_error, truncated, tolerance, scale)
         if result.ok or steps >= max_steps or not np.all(np.isfinite(omegas)):
             return result
+
+
+@dataclass
+class ModeList:
+    """The normal modes of every l below a frequency, with their weights at a point or between two (times
+    G_l(cos gamma)), each with its error; ``beyond``: (omega, weight) of each l's first mode above it (what is
+    left out is bounded through them)."""
+
+    omega: np.ndarray
+    omega_error: np.ndarray
+    weight: np.ndarray
+    weight_error: np.ndarray
+    l: np.ndarray
+    beyond: tuple
+
+
+def normal_modes_below(problem, cutoff: float, tolerance: float, r0: float, r1: float | None = None,
+                       cos_gamma: float = 1.0, progress=None) -> ModeList:
+    """Every normal mode with omega <= cutoff, l = 0, 1, ... until an l has none there (the centrifugal barrier
+    only raises the modes with l); only l = 0 reaches a point at the centre.  Each l's list must reach past the
+    cutoff (else nothing below it is known to be missing) and meet the tolerance, or AccuracyError."""
+    from derive.errors import AccuracyError
+    from derive.solve.offcentre import angular_factor
+
+    count = int(np.ceil(cutoff * tortoise_extent(problem) / np.pi)) + 2          # modes are ~pi/r*_b apart
+    centre = r0 == 0.0 or r1 == 0.0
+    parts, beyond, l = [], [], 0
+    while True:
+        modes = bound_states(problem, l, r0, tolerance, count=count, r1=r1)
+        if not modes.ok:
+            raise AccuracyError("the normal modes did not reach their tolerance: " + modes.message(),
+                                {"tolerance": tolerance})
+        inside = modes.omega <= cutoff
+        if np.any(inside) and np.all(inside):   # the list must reach past the cutoff: nothing below it missed
+            raise AccuracyError(f"fewer normal modes of l = {l} than needed below omega = {cutoff:.6g} were "
+                                "found", {})
+        angular = angular_factor(l, problem.dimension - 2, cos_gamma)
+        if len(modes.omega):
+            first_out = np.nonzero(~inside)[0][0]
+            beyond.append((modes.omega[first_out], angular * modes.weight[first_out]))
+        if not np.any(inside) and not centre:     # this l and every higher one lie beyond the cutoff
+            break
+        count = int(np.sum(inside)) + 2     # the next l's modes lie above this l's: as many below at most
+        parts.append((modes.omega[inside], modes.omega_error[inside], angular * modes.weight[inside],
+                      abs(angular) * modes.weight_error[inside], np.full(int(np.sum(inside)), l)))
+        if progress is not None:
+            progress({"stage": "normal modes", "l": l, "modes": int(np.sum(inside))})
+        if centre:
+            break
+        l += 1
+    joined = [np.concatenate([part[k] for part in parts]) if parts else np.zeros(0) for k in range(5)]
+    return ModeList(*joined, tuple(beyond))
