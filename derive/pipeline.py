@@ -1073,9 +1073,7 @@ def pair_design(spacetime, tolerance: float | None = None, progress=None):
     Returns a :class:`~derive.results.PairDesign`: ``.pair`` with ``best`` and ``default`` (the spec's own
     placement): radius, delay, runs with their errors, counting_runs, single_runs, local; ``scan`` (one row per
     radius evaluated, at its best delay)."""
-    from scipy.optimize import minimize_scalar
-
-    from derive.detector.pair_design import compare_pairs
+    from derive.detector.pair_design import compare_pairs, log_runs, search, single_runs
     from derive.detector.response import round_trip
     from derive.results import PairDesign
     from derive.solve.centre import Unsupported
@@ -1144,46 +1142,15 @@ def pair_design(spacetime, tolerance: float | None = None, progress=None):
         room = min(room, window)
         return (-room, room) if room > 0 else (0.0, 0.0)
     sigmas = compare.sigmas
-    evaluated = []
 
     def evaluate(radius, delay):
         record = compare_pairs(ours.joint(radius, delay), theirs.joint(radius, delay), sigmas)
         record.update(radius=float(radius), delay=float(delay))
-        evaluated.append(record)
         return record
 
-    def log_runs(record):
-        return float(np.log(record["runs"])) if np.isfinite(record["runs"]) and record["runs"] > 0 else 1e3
-
-    def best_delay(radius):
-        delays = delay_range(radius)
-        if delays[1] <= delays[0]:
-            return dict(evaluate(radius, delays[0]), delays=list(delays))
-        grid = np.linspace(delays[0], delays[1], 13)
-        records = [evaluate(radius, d) for d in grid]
-        k = int(np.argmin([log_runs(r) for r in records]))
-        lo, hi = grid[max(k - 1, 0)], grid[min(k + 1, len(grid) - 1)]
-        found = minimize_scalar(lambda d: log_runs(evaluate(radius, d)), bounds=(lo, hi), method="bounded",
-                                options={"xatol": 1e-3 * (delays[1] - delays[0]), "maxiter": 20})
-        return dict(min(records + [evaluate(radius, float(found.x))], key=log_runs), delays=list(delays))
-
     try:
-        default = compare_pairs(ours.joint(B.radius, B.centre - A.centre), theirs.joint(B.radius, B.centre - A.centre),
-                                sigmas)
-        default.update(radius=B.radius, delay=B.centre - A.centre)
-        scan = []
-
-        def at_radius(radius):
-            record = best_delay(float(radius))
-            record["local"] = bool(local(1, float(radius))[0])
-            scan.append(record)
-            return log_runs(record) if record["local"] else 1e3 + float(radius)
-        grid = np.linspace(radii[0], radii[1], design.positions)
-        values = [at_radius(r) for r in grid]
-        k = int(np.argmin(values))
-        lo, hi = grid[max(k - 1, 0)], grid[min(k + 1, len(grid) - 1)]
-        minimize_scalar(at_radius, bounds=(lo, hi), method="bounded",
-                        options={"xatol": 1e-3 * (radii[1] - radii[0]), "maxiter": 10})
+        default = evaluate(B.radius, B.centre - A.centre)
+        scan = search(evaluate, radii, design.positions, delay_range, lambda radius: local(1, radius)[0])
     except Unsupported as exc:
         raise _unsupported(spacetime, "design a pair of probes here", exc, key="detectors") from None
     candidates = [r for r in scan if r["local"]] or scan
@@ -1207,14 +1174,10 @@ def pair_design(spacetime, tolerance: float | None = None, progress=None):
             state = side.joint(radius, record["delay"])
             out[name] = {"AA": state.L_AA, "BB": state.L_BB, "AB": [state.L_AB.real, state.L_AB.imag],
                          "errors": list(state.errors)}
-        # each detector alone, counted (the same runs formula with one outcome)
-        out["single_runs"] = {}
-        for index, probe in enumerate((A, B)):
-            r = A.radius if index == 0 else radius
-            p, q = lam2 * ours.single(index, r)[0], lam2 * theirs.single(index, r)[0]
-            mean = (p + q) / 2
-            out["single_runs"][probe.name] = (4 * sigmas ** 2 * mean * (1 - mean) / (p - q) ** 2 if p != q
-                                              else float("inf"))
+        # each detector alone, counted
+        out["single_runs"] = {probe.name: single_runs(lam2 * ours.single(index, r)[0],
+                                                      lam2 * theirs.single(index, r)[0], sigmas)
+                              for index, (probe, r) in enumerate(((A, A.radius), (B, radius)))}
         return out
 
     best, default = described(best), described(default)
