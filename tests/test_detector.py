@@ -358,3 +358,27 @@ def test_short_switching_in_a_cavity_resolves_the_density_ripple():
     plain, _, _ = detector_response(problem, detector, 1e-10, [-8.0, 1.6], switching=switching)
     fine, _, _ = detector_response(problem, detector, 1e-10, [-8.0, 1.6], switching=switching, panel=0.3)
     assert np.all(np.abs(plain.response - fine.response) <= plain.error + fine.error)
+
+
+def test_flat_bump_response_to_the_tolerance(tmp_path, capsys):
+    # A bump switching's transform falls only like e^{-sqrt(k T)}: its reach and the tail it leaves must still let
+    # the response meet 1e-10.  F = int_0^inf dnu nu/(4 pi^2) |chi_hat(Omega + nu)|^2 (the Minkowski density,
+    # Birrell & Davies 1982, ch. 3) with chi_hat(k) = 2 int_0^{T/2} chi cos(k tau) dtau, both by scipy's QUADPACK
+    # (the inner integral by its Fourier-weighted rule QAWO), independently of derive's panels and tables; out to
+    # k T = 500, where |chi_hat|^2 is 1e-16 of its peak.
+    T = 2.0
+    text = FLAT + DETECTOR.format(width=1, gaps="-1.0, 0.0, 1.0").replace(
+        'switching = { shape = "gaussian", width = "1" }', f'switching = {{ shape = "bump", duration = "{T}" }}')
+    path = tmp_path / "bump.toml"
+    path.write_text(text)
+    assert main(["response", str(path), "--json", "--tolerance", "1e-10"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    chi = switching_from_spec({"shape": "bump"}, {"duration": T}).chi
+
+    def hat(k):
+        return 2 * quad(lambda t: float(chi(np.array([t]))[0]), 0, T / 2, weight="cos", wvar=k, limit=200)[0]
+    for gap, ours, error in zip(data["gaps"], data["response"], data["error"]):
+        reference = quad(lambda nu, gap=gap: nu / (4 * np.pi ** 2) * hat(gap + nu) ** 2, 0, 250, epsabs=1e-16, epsrel=1e-12,
+                         limit=2000, points=[max(0.0, -gap)])[0]
+        assert abs(ours - reference) <= max(error, 1e-10 * reference)
+        assert error < 1e-9 * ours

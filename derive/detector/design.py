@@ -35,7 +35,7 @@ from scipy.special import erfcinv
 
 from derive.detector.quantum import SecondOrder, ordered_kernel
 from derive.detector.response import round_trip, trials_to_distinguish
-from derive.detector.switching import CompactSwitching, Switching, gauss_panels, switching_from_spec
+from derive.detector.switching import SMOOTH_CAP, CompactSwitching, Switching, gauss_panels, switching_from_spec
 from derive.detector.study import detector_response, reference_response
 
 DESIGN_SHAPES = ("gaussian", "bump", "cos2", "sin4")
@@ -334,10 +334,12 @@ class Site:
         self.top = (2.0 if cheap else 1.5) * self.longest
         self.tables = {}
         for shape in family.shapes:
-            if shape != "gaussian":   # x = k T reaches the unit reach's search (2 x 200) plus twice the gaps
+            if shape != "gaussian":   # x = k T reaches the unit reach's search plus twice the gaps: 2 x 200 for
+                # an algebraic decay, 3 x SMOOTH_CAP for a smooth one (its tail is read out to three reaches)
                 longest_support = make_switching(shape, self.top, family.tail).support_length
                 gap = max(abs(family.gaps[0]), abs(family.gaps[1]))
-                self.tables[shape] = unit_transform(shape, family.tail, 400.0 + 4 * gap * longest_support)
+                reach = 400.0 if _unit(shape, family.tail).algebraic is not None else 3 * SMOOTH_CAP
+                self.tables[shape] = unit_transform(shape, family.tail, reach + 4 * gap * longest_support)
         self.panel = min(self.switching(shape, self.top).panel_width for shape in family.shapes)
         self.memo, self.reference_memo = Memo(), Memo()
         self.shortfalls: list = []

@@ -30,6 +30,8 @@ from scipy.special import erfcinv
 from derive.errors import InputError
 
 DEFAULT_TAIL = 1e-12
+SMOOTH_CAP = 500.0    # the largest reach x support of a smooth compact switching (the bump: a tail of 1e-12 of
+                      # F near 470/T; its 64-panel transform is accurate to 1e-22 of its peak up to 800/T)
 SHAPES = ("gaussian", "sharp", "bump", "cos2", "sin4", "expression")
 NODES, WEIGHTS = np.polynomial.legendre.leggauss(16)
 
@@ -222,9 +224,14 @@ class CompactSwitching(Switching):
         p, q = self.algebraic, dimension - 3
         K = self.reach
         c = sphere_area(dimension - 2) / (2 * (2 * np.pi) ** (dimension - 1))
-        if p is None:   # faster than any power: the weight beyond the reach, over a stretch of K, as a bound
-            peak = float(np.max(self.power(np.linspace(K, 2 * K, 200))))
-            return np.full(len(gaps), 4 * c * peak * (K + gaps.max()) ** q * K)
+        if p is None:   # faster than any power: the tail itself on [K, 2K] (a fine trapezoid: an overestimate of
+            # a convex tail), and beyond 2K its largest value over [2K, 3K] for a stretch of K (it falls faster
+            # than that: e^{-sqrt(k T)} for the bump)
+            k = np.linspace(K, 2 * K, 2001)
+            weights = 4 * c * (k[None, :] + gaps[:, None]) ** q * self.power(k)[None, :]
+            near = np.sum((weights[:, 1:] + weights[:, :-1]) / 2 * np.diff(k)[None, :], axis=1)
+            far_peak = float(np.max(self.power(np.linspace(2 * K, 3 * K, 400))))
+            return near + 4 * c * far_peak * (3 * K + gaps) ** q * K
         if p <= q + 1:
             return np.full(len(gaps), np.inf)
         A = _envelope(self, K)
@@ -260,22 +267,24 @@ def _envelope(s: CompactSwitching, K: float) -> float:
 
 
 def _reach(s: CompactSwitching, target: float = 1e-12) -> float:
-    """The frequency beyond which the weight may be dropped: below ``target`` of the peak for fast decay; for an
-    algebraic decay, where the tail bound falls below target/(4 pi) (F is about 1/(4 pi) at zero gap), capped at
-    200/T (the tail bound is then reported as error)."""
+    """The frequency beyond which the weight may be dropped: for fast decay, where the flat zero-gap response's
+    tail with its margin (4 k |chi_hat(k)|^2 beyond K, against the whole) falls below ``target``, capped at
+    SMOOTH_CAP/T; for an algebraic decay, where the tail bound falls below target/(4 pi) (F is about 1/(4 pi) at
+    zero gap), capped at 200/T (the tail bound is then reported as error)."""
     key = ("reach", s)
     if key in _CACHE:
         return _CACHE[key]
     T = s.support_length
-    peak = float(s.power(np.array([0.0]))[0])
     reach = 200.0 / T
-    for K in np.arange(10.0, 200.0 + 1e-9, 5.0) / T:
-        if s.algebraic is None:
-            k = np.linspace(K, 2 * K, 200)
-            if np.all(s.power(k) <= target * peak):
-                reach = K
-                break
-        elif s.algebraic > 2:   # (a k^-2 tail is not integrable against the 3+1 density: keep the cap)
+    if s.algebraic is None:
+        k = np.linspace(0.0, SMOOTH_CAP / T, 5001)
+        integrand = k * s.power(k)
+        pieces = (integrand[1:] + integrand[:-1]) / 2 * np.diff(k)
+        beyond = np.concatenate([np.cumsum(pieces[::-1])[::-1], [0.0]])
+        fits = 4 * beyond <= target * beyond[0]
+        reach = max(float(k[int(np.argmax(fits))]) if np.any(fits) else SMOOTH_CAP / T, 10.0 / T)
+    for K in (np.arange(10.0, 200.0 + 1e-9, 5.0) / T if s.algebraic is not None else ()):
+        if s.algebraic > 2:   # (a k^-2 tail is not integrable against the 3+1 density: keep the cap)
             A = _envelope(s, K)
             if 4 / (4 * np.pi ** 2) * A * K ** (2 - s.algebraic) / (s.algebraic - 2) <= target / (4 * np.pi):
                 reach = K
