@@ -360,6 +360,7 @@ def test_short_switching_in_a_cavity_resolves_the_density_ripple():
     assert np.all(np.abs(plain.response - fine.response) <= plain.error + fine.error)
 
 
+@pytest.mark.slow
 def test_flat_bump_response_to_the_tolerance(tmp_path, capsys):
     # A bump switching's transform falls only like e^{-sqrt(k T)}: its reach and the tail it leaves must still let
     # the response meet 1e-10.  F = int_0^inf dnu nu/(4 pi^2) |chi_hat(Omega + nu)|^2 (the Minkowski density,
