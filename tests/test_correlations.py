@@ -255,7 +255,8 @@ def _direct(d, chi_a, chi_b, half_a, half_b, gap_a, gap_b, D):
     return tuple(part(kind, True) + 1j * part(kind, False) for kind in ("L", "M"))
 
 
-@pytest.mark.parametrize("shape, extra", [("bump", {}), pytest.param("cos2", {"ramp": 0.5}, marks=pytest.mark.slow)])
+@pytest.mark.slow
+@pytest.mark.parametrize("shape, extra", [("bump", {}), ("cos2", {"ramp": 0.5})])
 def test_compact_switchings_against_direct_double_integrals(shape, extra):
     # Two compactly switched detectors 3 apart whose switchings (durations 1.5 and 2, peaks 0.2 apart) stay
     # spacelike: L_AB and M through derive's spectral route (the transforms, and the cross-correlation of the

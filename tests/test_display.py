@@ -227,6 +227,7 @@ def test_pdf_figures_fit_one_journal_column(tmp_path):
     assert min(sizes) >= tables.SMALLEST_FONT and all(not axis.get_title() for axis in figure.axes)
 
 
+@pytest.mark.slow
 def test_tortoise_through_the_horizon_radii():
     # Reissner-Nordstrom written with M and Q: r_* = r + r_+^2/(r_+ - r_-) ln(r - r_+) - r_-^2/(r_+ - r_-) ln(r - r_-)
     # with r_+- = M +- sqrt(M^2 - Q^2) (the textbook form; from memory: Chandrasekhar, The Mathematical Theory of
@@ -252,6 +253,7 @@ def test_tortoise_through_the_horizon_radii():
     assert r"r_{+} &= M + \sqrt{M^{2} - Q^{2}}" in body and r"\log{\left(r - r_{+} \right)}" in body
 
 
+@pytest.mark.slow
 def test_series_through_the_recursion_where_too_long():
     # The Frobenius recursion a_k = -sum_j a_{k-j} [P_j (s + k - j) + Q_j] / [(s + k)(s + k - 1) + P_0 (s + k) + Q_0]
     # (the standard one for u'' + p u' + q u = 0 with x p = sum P_j x^j, x^2 q = sum Q_j x^j: common practice, e.g.
