@@ -231,6 +231,17 @@ def _tortoise_through_roots(derivation: Derivation, named, name, region):
     lines = {symbol: display.display_lines(value, 40.0, derivation.variables) for symbol, value in shown.items()}
     if all(len(v) == 1 and display.width(v[0]) <= display.LINE_WIDTH_PT / 2 for v in lines.values()):
         eq.where = [(latex_of(symbol), lines[symbol]) for symbol in roots]
+        # a root that is one of the region's horizons: said, under the name the ends use
+        same = []
+        for symbol, root in roots.items():
+            value = complex(sp.N(root.subs(derivation.values), 20))
+            for horizon in region.horizons:
+                if horizon.symbol != symbol and abs(value - horizon.value) <= 1e-12 * abs(horizon.value):
+                    kind = escape(horizon.kind.replace(" ", "-"))
+                    same.append(rf"${latex_of(symbol)} = {latex_of(horizon.symbol)}$, the {kind} horizon at the "
+                                f"{horizon.side} end")
+        if same:
+            eq.note = r"\noindent Here " + "; ".join(same) + "."
     else:
         symbols = list(roots)
         ordered = " > ".join(latex_of(s) for s in symbols) if all(
