@@ -303,19 +303,19 @@ def _normal_mode_multipoles(problem, probe, tolerance, progress=None):
     """w_l for an array on a sphere with a reflecting AdS boundary: each l's normal modes at the sphere's radius
     against the switching, sum_n w_nl |chi_hat(Omega + omega_nl/alpha)|^2 (the discrete form of
     derive.detector.correlations.multipole_weights), with the errors of the single detector's sum."""
+    from derive.detector.response import normal_mode_cutoff, normal_mode_terms
     from derive.solve.bound import normal_modes_below
 
-    switching = probe.switching
-    cutoff = (max(0.0, -probe.gap) + switching.reach) * probe.alpha
-    modes = normal_modes_below(problem, cutoff, tolerance, probe.radius, progress=progress)
+    gaps = np.array([probe.gap])
+    modes = normal_modes_below(problem, normal_mode_cutoff(gaps, probe.switching, probe.alpha), tolerance,
+                               probe.radius, progress=progress)
+    terms, term_errors, beyond = normal_mode_terms(modes, gaps, probe.switching, probe.alpha)
     count = int(np.max(modes.l)) + 1 if len(modes.l) else 1
     weights, errors = np.zeros(count), np.zeros(count)
-    power = switching.power(probe.gap + modes.omega / probe.alpha)
-    np.add.at(weights, modes.l, power * modes.weight)
-    np.add.at(errors, modes.l, power * modes.weight_error + getattr(switching, "power_error", 0.0) * np.abs(
-        modes.weight))
-    for l, (omega, weight) in enumerate(modes.beyond[:count]):
-        errors[l] += 10 * abs(weight) * float(switching.power(np.array([probe.gap + omega / probe.alpha]))[0])
+    np.add.at(weights, modes.l, terms[0])
+    np.add.at(errors, modes.l, term_errors[0])
+    reached = min(count, beyond.shape[1])
+    errors[:reached] += beyond[0, :reached]       # each l's first mode left out (one entry per l reached)
     return weights, errors
 
 
@@ -718,8 +718,6 @@ def _correlations_reference(spacetime, with_, probes, points, coupling, toleranc
     import dataclasses
 
     from derive.detector.correlations import Probe, pair_record, pair_terms
-    from derive.detector.response import response
-    from derive.detector.study import flat_density, minkowski_gaussian_response
 
     if with_ != "minkowski":
         from derive import load
@@ -739,24 +737,12 @@ def _correlations_reference(spacetime, with_, probes, points, coupling, toleranc
 
     def spectrum(i, j):
         d = float(np.linalg.norm(position[i] - position[j]))
-
-        def values(w):
-            zero = np.zeros_like(w)
-            s_plus = np.sin(w * d) / (4 * np.pi ** 2 * d)
-            return s_plus.astype(complex), 1e-16 * np.abs(s_plus), zero.astype(complex), zero
-        return values, d
+        return _flat_spectrum(d), d
     lam2 = coupling ** 2
     detectors = {}
-    for probe in flat:   # the flat single-detector response in closed form (30 digits; rounding to double)
-        if probe.gaussian:
-            value = lam2 * float(minkowski_gaussian_response([probe.gap], probe.sigma)[0])
-            detectors[probe.name] = {"probability": value, "error": 1e-15 * value}
-            continue
-        # other switchings: the response's quadrature with the exact flat density
-        flat_response = response(np.array([probe.gap]), probe.switching, flat_density(4, 0.0), threshold=0.0,
-                                 dimension=4)
-        detectors[probe.name] = {"probability": lam2 * float(flat_response.response[0]),
-                                 "error": lam2 * float(flat_response.error[0])}
+    for probe in flat:
+        value, error = _flat_probability(probe)
+        detectors[probe.name] = {"probability": lam2 * value, "error": lam2 * error}
     pairs = []
     for i in range(len(flat)):
         for j in range(i + 1, len(flat)):
@@ -1020,12 +1006,8 @@ class _PairSide:
         if key not in self.spectra:
             first, second = self.point(0, self.base[0].radius), self.point(1, radius)
             if self.problem is None:
-                d = float(np.linalg.norm(first.radius * first.unit_vector() - second.radius * second.unit_vector()))
-
-                def compute(w, d=d):
-                    zero = np.zeros_like(w)
-                    s_plus = (np.sin(w * d) / (4 * np.pi ** 2 * d) if d > 0 else w / (4 * np.pi ** 2))
-                    return s_plus.astype(complex), 1e-16 * np.abs(s_plus), zero.astype(complex), zero
+                compute = _flat_spectrum(float(np.linalg.norm(first.radius * first.unit_vector()
+                                                              - second.radius * second.unit_vector())))
             else:
                 compute = _spectrum_between(self.problem, first, second, self.state, self.tolerance, self.progress)
             memo = {}
@@ -1049,6 +1031,17 @@ class _PairSide:
         (L_AA, e_AA), (L_BB, e_BB) = self.single(0, self.base[0].radius), self.single(1, radius)
         lam2 = self.lam2      # the state's numbers at the spec's coupling
         return JointState(lam2 * L_AA, lam2 * L_BB, lam2 * terms.L, (lam2 * e_AA, lam2 * e_BB, lam2 * terms.L_error))
+
+
+def _flat_spectrum(d: float):
+    """spectrum(omegas) -> (S_+, its error, S_-, its error) between two points a distance d apart in Minkowski
+    (3+1, massless, vacuum): S_+ = sin(omega d)/(4 pi^2 d), omega/(4 pi^2) at d = 0 (Birrell & Davies 1982,
+    ch. 3), to rounding."""
+    def values(w):
+        zero = np.zeros_like(w)
+        s_plus = np.sin(w * d) / (4 * np.pi ** 2 * d) if d > 0 else w / (4 * np.pi ** 2)
+        return s_plus.astype(complex), 1e-16 * np.abs(s_plus), zero.astype(complex), zero
+    return values
 
 
 def _flat_probability(probe) -> tuple[float, float]:

@@ -212,17 +212,31 @@ def normal_mode_response(problem, gaps, switching: Switching, sqrt_f0: float, to
     from derive.solve.bound import normal_modes_below
 
     gaps = np.asarray(gaps, dtype=float)
-    cutoff = (max(0.0, -float(np.min(gaps))) + switching.reach) * sqrt_f0     # in omega
-    modes = normal_modes_below(problem, cutoff, tolerance, r0, progress=progress)
-    error = np.zeros(len(gaps))
-    for omega, weight in modes.beyond:   # the first mode left out, times 10 for the rest of its growing weights
-        error += 10 * np.abs(weight) * switching.power(gaps + omega / sqrt_f0)
+    modes = normal_modes_below(problem, normal_mode_cutoff(gaps, switching, sqrt_f0), tolerance, r0,
+                               progress=progress)
+    terms, errors, beyond = normal_mode_terms(modes, gaps, switching, sqrt_f0)
+    total = np.sum(terms, axis=1)
+    error = np.sum(errors, axis=1) + np.sum(beyond, axis=1)
+    return Response(gaps, total, error, np.zeros(len(gaps)), error)
+
+
+def normal_mode_cutoff(gaps, switching: Switching, sqrt_f0: float) -> float:
+    """The frequency (of t) beyond which the normal modes are left out: the switching's reach past the largest
+    -Omega."""
+    return (max(0.0, -float(np.min(gaps))) + switching.reach) * sqrt_f0
+
+
+def normal_mode_terms(modes, gaps, switching: Switching, sqrt_f0: float):
+    """Each mode's share w |chi_hat(Omega + nu)|^2 of the response (gaps x modes) with its error, and the bound on
+    what each l leaves out (gaps x l): ten times its first mode beyond the cutoff, for the rest of its slowly
+    growing weights.  A mode's error: its weight's, its frequency's through the slope of |chi_hat|^2 (a central
+    difference), and the transform's own."""
     k = gaps[:, None] + modes.omega[None, :] / sqrt_f0
     power = switching.power(k)
-    # a mode's frequency error moves it along |chi_hat|^2: its slope (a central difference) times the error
-    step = 1e-6 * cutoff / sqrt_f0
+    step = 1e-6 * normal_mode_cutoff(gaps, switching, sqrt_f0) / sqrt_f0
     slope = np.abs(switching.power(k + step) - switching.power(k - step)) / (2 * step)
-    total = power @ modes.weight
-    error += (power @ modes.weight_error + slope @ (np.abs(modes.weight) * modes.omega_error / sqrt_f0)
-              + getattr(switching, "power_error", 0.0) * np.sum(np.abs(modes.weight)))
-    return Response(gaps, total, error, np.zeros(len(gaps)), error)
+    size = np.abs(modes.weight)[None, :]
+    errors = (power * modes.weight_error[None, :] + slope * size * modes.omega_error[None, :] / sqrt_f0
+              + getattr(switching, "power_error", 0.0) * size)
+    beyond = np.array([10 * np.abs(weight) * switching.power(gaps + omega / sqrt_f0) for omega, weight in modes.beyond])
+    return power * modes.weight[None, :], errors, (beyond.T if len(beyond) else np.zeros((len(gaps), 0)))
