@@ -157,13 +157,14 @@ def _overfull(tex: str) -> list[str]:
 @pytest.mark.parametrize("name", EXAMPLES)
 def test_worked_derivations_have_no_overfull_lines(name, tmp_path):
     """Every worked example's derivation (geometry, junctions, field) compiles with no overfull box
-    (pdflatex's own report)."""
+    (pdflatex's own report) and shows every result (none said too long to display)."""
     from derive.cli import main
 
     target = tmp_path / "derivation.tex"
     code = main(["field", os.path.join(WORKED, name, "spec.toml"), "--latex", str(target)])
     assert code == 0
     assert _overfull(target.read_text()) == []
+    assert "too long to display readably" not in target.read_text()     # every result is shown
     body = (tmp_path / "derivation-body.tex").read_text()
     assert body.splitlines()[1] in target.read_text() and r"\documentclass" not in body
 
@@ -280,3 +281,44 @@ def test_series_through_the_recursion_where_too_long():
     field_sections(derivation, st)
     body = derivation.body_latex()
     assert "gives $a_2$" in body and "Q_2 &=" in body and "The right-hand side of $a_2$" not in body
+
+
+@pytest.mark.slow
+def test_star_centre_series_through_its_normalised_root():
+    """The constant-density star's a_2 at the centre (637 operations as computed) reads in two lines through
+    S = sqrt(1 - 2M/R) with M eliminated; put back, it is the computed coefficient, and at M = 0 (S = 1) it is
+    flat space's -omega^2/(2(2l + 3)), the second term of r j_l(omega r)'s series (Abramowitz & Stegun (1964)
+    10.1.2)."""
+    import derive
+
+    st = derive.load(os.path.join(WORKED, "constant_density_star", "spec.toml"))
+    end = st.field_problem.regions["star"].ends["lower"]
+    a2 = end["series"][2]
+    registry = {}
+    form, names = display.with_eliminated_root(a2, registry, st.parameter_values)
+    assert len(names) == 1 and len(display.display_lines(form, 30.0)) <= 3
+    (S, root), = names
+    mass, radius = (next(k for k in st.parameter_values if str(k) == name) for name in ("M", "R"))
+    assert sp.cancel(root ** 2 - (1 - 2 * mass / radius)) == 0
+    omega, ell = (next(s for s in a2.free_symbols if str(s) == name) for name in ("omega", "l"))
+    rng = random.Random(3)
+    for _ in range(3):
+        point = {omega: sp.Rational(rng.randint(1, 30), 10), ell: rng.randint(0, 4)}
+        point.update({k: sp.Rational(rng.randint(1, 9), 100) if str(k) == "M" else sp.Rational(rng.randint(10, 30), 10)
+                      for k in st.parameter_values})
+        back = form.subs(S, root).subs(point)
+        assert abs(sp.N(back - a2.subs(point), 30)) <= 1e-25 * abs(sp.N(a2.subs(point), 30))
+    assert sp.cancel(form.subs(S, 1) + omega ** 2 / (2 * (2 * ell + 3))) == 0
+    # the document names it with the same S as the metric's own sqrt(1 - 2M/R)
+    assert registry[sp.expand(root ** 2)] == S
+
+
+def test_collected_form_is_equal_and_groups_the_eigenvalue():
+    """A rational function's numerator by powers of l and omega (l^2 + l as l (l + 1)), each coefficient
+    factored: the same function (exact cancellation)."""
+    omega, ell = sp.Symbol("omega", positive=True), sp.Symbol("l", nonnegative=True)
+    expr = sp.expand((ell * (ell + 1) * (R - 2 * M) ** 2 + omega ** 2 * R ** 3 * (R + M)) * (R + 3 * M)) / (R * (R - 2 * M) ** 3)
+    form = display.collected(expr, {M: 0.1, R: 1.0})
+    assert sp.cancel(form - expr) == 0
+    shown = display.tex(form)
+    assert r"\left(1 + l\right)" in shown and "l^{2}" not in shown and len(shown) < len(display.tex(expr))

@@ -113,16 +113,18 @@ class Derivation:
             rhs, one_line = rooted, latex_of(rooted, self.variables)
         lines = display.display_lines(rhs, indent, self.variables)
         eq = Equation(lhs_tex, one_line, label, relation, lines)
-        if len(lines) > 1:
-            form = self._bounded(lambda: display.factored(rhs))
+        for rewrite in (display.factored, lambda e: display.collected(e, self.values)) if len(lines) > 1 else ():
+            form = self._bounded(lambda rewrite=rewrite: rewrite(rhs))
             if form is not None:
                 shorter = display.display_lines(form, indent, self.variables)
                 if len(shorter) < len(eq.lines):
                     eq.lines = shorter
                     eq.rhs = latex_of(form, self.variables) if len(shorter) == 1 else one_line
-        if len(eq.lines) > display.TRY_NAMES_LINES:
+        rewritings = (lambda registry: display.with_named_radicals(rhs, registry),
+                      lambda registry: display.with_eliminated_root(rhs, registry, self.values))
+        for rewrite in rewritings if len(eq.lines) > display.TRY_NAMES_LINES else ():
             registry = dict(self._radicals)      # names kept only if this form is shown (no gaps in S_k)
-            form, names = self._bounded(lambda: display.with_named_radicals(rhs, registry)) or (rhs, [])
+            form, names = self._bounded(lambda rewrite=rewrite, registry=registry: rewrite(registry)) or (rhs, [])
             if names:
                 named = display.display_lines(form, indent, self.variables)
                 where = [(latex_of(s), display.display_lines(v, 40.0, self.variables)) for s, v in names]

@@ -12,6 +12,9 @@ Everything here is exact rewriting of what the symbolic stages computed, for rea
 * :func:`with_named_radicals` names the square roots of a long expression (each ``b^{k/2}`` becomes
   ``S^k``, exact on the principal branch), reduces powers of each name against its square and cancels; the
   document shows the shorter of the two forms, with the names defined beside it.
+* :func:`with_eliminated_root` names the one square root of a sum of parameters after the sum normalised to its
+  dominant term (``S = sqrt(1 - 2M/R)``) and eliminates a parameter through it (``M = R (1 - S^2)/2``), so a
+  coefficient built from that root becomes a short rational function of S.
 * :func:`one_root` writes a product of square roots as one root of a ratio of normalised sums.
 """
 
@@ -380,6 +383,86 @@ def with_named_radicals(expr, registry: dict, size_limit: int = 3000):
     form = sp.factor(_reduce(numerator, symbols)) / sp.factor(_reduce(denominator, symbols))
     used = [(symbols[b], sp.sqrt(b)) for b in bases if symbols[b] in form.free_symbols]
     return form, used
+
+
+def with_eliminated_root(expr, registry: dict, values: dict, size_limit: int = 20000):
+    """(form, names): ``expr`` with its one square root of a sum of parameters named after the sum normalised to
+    its dominant term, S = sqrt(1 - 2M/R) for sqrt(R - 2M), and a parameter in which that sum is linear
+    eliminated through S (M = R (1 - S^2)/2), so that the rest is a rational function of S and the other
+    symbols, cancelled and factored. For the coefficients of a metric built from such a root (the interior of a
+    constant-density star), the thousand-term forms as computed collapse to a few lines.
+
+    Exact where S is the principal root; accepted only if ``form`` with S put back agrees with ``expr`` at 30
+    digits at the spec's values (and at sample values of the other symbols), else (expr, [])."""
+    if not isinstance(expr, sp.Expr) or not values or sp.count_ops(expr) > size_limit:
+        return expr, []
+    bases = {node.base for node in expr.atoms(sp.Pow) if _is_radical(node) and isinstance(node.base, sp.Add)}
+    if len(bases) != 1:
+        return expr, []
+    base = bases.pop()
+    parameters = set(values)
+    if not base.free_symbols <= parameters or not base.is_polynomial(*base.free_symbols):
+        return expr, []
+    lead, ratio = _normalised(base, values)
+    lead_value = _number_at(lead, values)
+    if lead == 1 or lead_value is None or lead_value <= 0:
+        return expr, []
+    symbol = registry.get(ratio) or sp.Symbol(_RADICAL_NAME.format(len(registry) + 1), positive=True)
+    numerator, denominator = sp.fraction(sp.together(ratio))
+    eliminated = None
+    for parameter in sorted(base.free_symbols, key=sp.default_sort_key):
+        if sp.degree(numerator, parameter) == 1 and not denominator.has(parameter):
+            eliminated = (parameter, sp.solve(sp.Eq(ratio, symbol ** 2), parameter)[0])
+            break
+    if eliminated is None:
+        return expr, []
+
+    def rename(node):
+        whole, odd = divmod(int(node.exp * 2), 2)
+        return node.base ** whole * (sp.sqrt(lead) * symbol) ** odd
+
+    renamed = expr.replace(lambda node: _is_radical(node) and node.base == base, rename)
+    substituted = sp.powsimp(sp.together(renamed.subs(*eliminated)), force=True)
+    if any(_is_radical(node) for node in substituted.atoms(sp.Pow)):
+        return expr, []
+    others = sorted(expr.free_symbols - parameters, key=sp.default_sort_key)
+    form = _collected(sp.factor(sp.cancel(substituted)), others)
+    points = [{s: sp.Rational(7 + 3 * k + j, 10) for j, s in enumerate(others)} for k in range(2)]
+    if not vanishes(form.subs(symbol, sp.sqrt(ratio)) - expr, values, points, simplify=False):
+        return expr, []
+    registry[ratio] = symbol     # the same name as sqrt(1 - 2M/R) written so elsewhere
+    return form, [(symbol, sp.sqrt(ratio))]
+
+
+def _collected(expr, symbols):
+    """A factored ratio with its numerator by powers of ``symbols`` (l, omega, r), each coefficient factored;
+    l^2 and l with equal coefficients as l (l + 1)."""
+    numerator, denominator = sp.fraction(expr)
+    if not symbols:
+        return expr
+    numerator = sp.expand(numerator)
+    keys, back = list(symbols), {}
+    for symbol in symbols:
+        if symbol.name == "l" and numerator.is_polynomial(symbol) and sp.degree(numerator, symbol) == 2:
+            coefficients = sp.Poly(numerator, symbol).all_coeffs()
+            if sp.expand(coefficients[0] - coefficients[1]) == 0:
+                eigenvalue = sp.Dummy("lambda")
+                numerator = sp.expand(coefficients[0] * eigenvalue + coefficients[2])
+                keys[keys.index(symbol)] = eigenvalue
+                back[eigenvalue] = sp.Mul(symbol, symbol + 1, evaluate=False)
+    numerator = sp.collect(numerator, keys, func=sp.factor)
+    return numerator.subs(back) / denominator
+
+
+def collected(expr, values, size_limit: int = 3000):
+    """``expr`` (a rational function) as one factored denominator under a numerator collected in the symbols
+    without values (l, omega, the coordinates), each coefficient factored, or None."""
+    if not isinstance(expr, sp.Expr) or sp.count_ops(expr) > size_limit or not expr.free_symbols:
+        return None
+    if not expr.is_rational_function(*sorted(expr.free_symbols, key=sp.default_sort_key)):
+        return None
+    others = sorted(expr.free_symbols - set(values), key=sp.default_sort_key)
+    return _collected(sp.factor(sp.cancel(expr)), others) if others else None
 
 
 def factored(expr, size_limit: int = 3000):
