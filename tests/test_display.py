@@ -178,6 +178,7 @@ def test_demo_derivation_has_no_overfull_lines(tmp_path):
     target = tmp_path / "demo.tex"
     assert main(["field", demo_spec_path(), "--latex", str(target)]) == 0
     assert _overfull(target.read_text()) == []
+    assert "too long to display readably" not in target.read_text()
 
 
 def test_values_with_errors_in_concise_notation():
