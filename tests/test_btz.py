@@ -130,3 +130,78 @@ def test_neumann_needs_both_falloffs_normalisable(tmp_path, capsys):
     assert main(["response", path, "--json"]) == 2
     err = capsys.readouterr().err
     assert "field.boundary" in err and "nu = 1" in err and "Traceback" not in err
+
+
+def image_sum_any_delta(gap, delta, r0=R0, rh=RH, ell=L, width=WIDTH):
+    """F(Omega) from the image sum of AdS3's Wightman function for a field of any conformal dimension Delta,
+    W = e^{-(Delta - 1) d}/(4 pi L sinh d) with d the geodesic distance over L (the Green function of the
+    hyperbolic space's Laplacian with m^2 L^2 = Delta (Delta - 2): Delta_H3 (g/sinh d) = (g'' - g)/sinh d, derived
+    here; for Delta = 3/2 and 1/2 it is the conformal field's sigma^-1/2 -+ (sigma + 2)^-1/2 above, with
+    cosh d = sigma + 1), on the same shifted contour.  The n-th image falls like e^{-2 pi |n| r_h Delta/L}."""
+    images = int(37 * ell / (2 * np.pi * delta * rh)) + 3
+    with mpmath.workdps(25):
+        r, rh, ell, sigma, delta = (mpmath.mpf(v) for v in (r0, rh, ell, width, delta))
+        alpha = mpmath.sqrt(r * r - rh * rh) / ell
+        eta = mpmath.pi * alpha * ell ** 2 / rh
+        B = (r * r - rh * rh) / rh ** 2
+        A = [(r * r / rh ** 2) * mpmath.cosh(2 * mpmath.pi * n * rh / ell) for n in range(-images, images + 1)]
+
+        def wightman(x):
+            ch = mpmath.cosh(rh * x / (ell ** 2 * alpha))
+            total = 0
+            for a in A:
+                c = a + B * ch                       # cosh d of the n-th image (real and > 1 on this contour)
+                s = mpmath.sqrt(c * c - 1)
+                total += (c + s) ** (1 - delta) / s     # e^{-d} = c - s = 1/(c + s), without cancellation
+            return total / (4 * mpmath.pi * ell)
+
+        def integrand(x):
+            s = x - 1j * eta
+            return mpmath.sqrt(mpmath.pi) * sigma * mpmath.exp(-s * s / (4 * sigma ** 2) - 1j * gap * s) * wightman(x)
+
+        value = mpmath.quad(integrand, [-mpmath.inf, -20, -5, 0, 5, 20, mpmath.inf])
+        assert abs(value.imag) < 1e-20 * abs(value.real)
+        return float(value.real)
+
+
+def test_image_sum_of_any_dimension_is_the_conformal_one_at_half_integers():
+    # the general-Delta reference against the conformal field's closed form above (Hodgkinson & Louko 2012)
+    for boundary, delta in (("dirichlet", 1.5), ("neumann", 0.5)):
+        assert image_sum_any_delta(0.5, delta) == pytest.approx(image_sum_response(0.5, ZETA[boundary]), rel=1e-14)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("boundary", ["neumann", "dirichlet"])
+def test_irrational_exponent_matches_the_image_sum(tmp_path, capsys, boundary):
+    """xi = 1/10 in AdS3 (R = -6/L^2): m^2 L^2 = -3/5, nu = sqrt(2/5), irrational; both falloffs are
+    normalisable (nu < 1, Breitenlohner & Freedman 1982) with Delta = 1 +- nu.  The falloff series carry the
+    exponent as a symbol (no logarithm can enter: the exponents differ by 2 nu)."""
+    path = btz_spec(str(tmp_path), boundary)
+    with open(path) as handle:
+        spec = handle.read().replace('coupling = "conformal"', 'coupling = "1/10"')
+    with open(path, "w") as handle:
+        handle.write(spec)
+    assert main(["response", path, "--json", "--tolerance", "1e-8"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    nu = np.sqrt(0.4)
+    delta = 1 + nu if boundary == "dirichlet" else 1 - nu
+    expected = np.array([image_sum_any_delta(g, delta) for g in GAPS])
+    np.testing.assert_allclose(data["response"], expected, rtol=1e-8)
+    assert np.all(np.abs(np.array(data["response"]) - expected) <= 10 * np.array(data["error"]) + 1e-14)
+
+
+@pytest.mark.slow
+def test_massive_field_matches_the_image_sum(tmp_path, capsys):
+    """A massive, minimally coupled field (mu L = 1/2): Delta = 1 + sqrt(1 + mu^2 L^2), irrational; a reflecting
+    boundary has no Coulomb-like well (the potential grows like r^2), so the response is computed, not refused as
+    outside an asymptotically flat black hole."""
+    path = btz_spec(str(tmp_path), "dirichlet")
+    with open(path) as handle:
+        spec = handle.read().replace('coupling = "conformal"', 'coupling = "0"').replace('mass = "0"', 'mass = "1/2"')
+    with open(path, "w") as handle:
+        handle.write(spec)
+    assert main(["response", path, "--json", "--tolerance", "1e-8"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    expected = np.array([image_sum_any_delta(g, 1 + np.sqrt(1.25)) for g in GAPS])
+    np.testing.assert_allclose(data["response"], expected, rtol=1e-8)
+    assert np.all(np.abs(np.array(data["response"]) - expected) <= 10 * np.array(data["error"]) + 1e-14)

@@ -106,7 +106,9 @@ def proper_density(problem, tolerance, r0: float = 0.0, state: str = "vacuum", p
         if state == "vacuum":
             raise Unsupported("outside a horizon 'vacuum' is ambiguous: set [detector] state to 'boulware', "
                               "'hartle-hawking' or 'unruh'")
-        if problem.mass != 0.0:
+        from derive.solve.bound import is_ads
+
+        if problem.mass != 0.0 and not is_ads(problem):    # a reflecting AdS boundary: no well, no continuum
             raise Unsupported("a massive field outside a horizon has quasi-bound resonances below the mass (the "
                               "Coulomb-like well; widths can be many orders below their frequency), which the "
                               "frequency quadrature of the response would not resolve: the response is not "

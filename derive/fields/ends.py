@@ -339,9 +339,15 @@ def ads_boundary_series(p, q, r, order: int = BOUNDARY_ORDER) -> dict:
         try:
             series = _frobenius_in_field(P, Q, z, z, exponent, order, z, exact=True, factored=False)
         except (sp.PolynomialError, sp.CoercionFailed, ValueError, TypeError):
-            # an irrational exponent (a generic mass): no series; the solver starts on the leading power far out
-            # (Dirichlet) and refuses Neumann
-            out[f"series_{name}"] = None
-            continue
+            # an irrational exponent (a generic mass or coupling): the recursion with the exponent as a symbol of
+            # the field, put in at the end (as at a horizon). The exponents then differ by 2 nu, irrational, so
+            # no indicial factor (s + k - s_other) vanishes and no logarithm enters; where 2 nu happens to be an
+            # integer at the parameters' values the coefficients have a pole there, which the kernels'
+            # verification refuses.
+            try:
+                series = _frobenius_in_field(P, Q, z, z, exponent, order, z, factored=False)
+            except (sp.PolynomialError, sp.CoercionFailed, ValueError, TypeError):
+                out[f"series_{name}"] = None
+                continue
         out[f"series_{name}"] = None if any(c is sp.nan or c == sp.nan for c in series) else series
     return out
