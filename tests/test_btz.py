@@ -61,11 +61,10 @@ coupling = 0.01
     return path
 
 
-def image_sum_response(gap, zeta, r0=R0, rh=RH, ell=L, width=WIDTH):
-    """F(Omega) from the image sum on the contour s = x - i pi alpha L^2/r_h (see the module docstring).  The n-th
-    image's terms fall like e^{-pi |n| r_h/L} (like its cube where zeta = 1 and they cancel): images out to
-    |n| = 37 L/(pi r_h) + 3 leave less than 1e-16 of the sum."""
-    images = int(37 * ell / (np.pi * rh)) + 3
+def _image_sum(gap, term, images, r0, rh, ell, width):
+    """F(Omega) = int ds g(s) e^{-i Omega s} W(s) on the contour s = x - i pi alpha L^2/r_h (see the module
+    docstring), W = sum over the images n of term(c_n), c_n = cosh of the n-th image's geodesic distance over L
+    (real and > 1 on this contour)."""
     with mpmath.workdps(25):
         r, rh, ell, sigma = (mpmath.mpf(v) for v in (r0, rh, ell, width))
         alpha = mpmath.sqrt(r * r - rh * rh) / ell
@@ -74,9 +73,8 @@ def image_sum_response(gap, zeta, r0=R0, rh=RH, ell=L, width=WIDTH):
         A = [(r * r / rh ** 2) * mpmath.cosh(2 * mpmath.pi * n * rh / ell) for n in range(-images, images + 1)]
 
         def wightman(x):
-            c = mpmath.cosh(rh * x / (ell ** 2 * alpha))
-            return sum(1 / mpmath.sqrt(a - 1 + B * c) - zeta / mpmath.sqrt(a + 1 + B * c)
-                       for a in A) / (4 * mpmath.pi * mpmath.sqrt(2) * ell)
+            ch = mpmath.cosh(rh * x / (ell ** 2 * alpha))
+            return sum(term(a + B * ch) for a in A) / (4 * mpmath.pi * ell)
 
         def integrand(x):
             s = x - 1j * eta
@@ -85,6 +83,15 @@ def image_sum_response(gap, zeta, r0=R0, rh=RH, ell=L, width=WIDTH):
         value = mpmath.quad(integrand, [-mpmath.inf, -20, -5, 0, 5, 20, mpmath.inf])
         assert abs(value.imag) < 1e-20 * abs(value.real)
         return float(value.real)
+
+
+def image_sum_response(gap, zeta, r0=R0, rh=RH, ell=L, width=WIDTH):
+    """The conformal field's image sum (the module docstring's W, with sigma_n + 1 = c_n).  The n-th image's terms
+    fall like e^{-pi |n| r_h/L} (like its cube where zeta = 1 and they cancel): images out to |n| = 37 L/(pi r_h)
+    + 3 leave less than 1e-16 of the sum."""
+    def term(c):
+        return (1 / mpmath.sqrt(c - 1) - zeta / mpmath.sqrt(c + 1)) / mpmath.sqrt(2)
+    return _image_sum(gap, term, int(37 * ell / (np.pi * rh)) + 3, r0, rh, ell, width)
 
 
 def response(spec, capsys):
@@ -138,30 +145,12 @@ def image_sum_any_delta(gap, delta, r0=R0, rh=RH, ell=L, width=WIDTH):
     hyperbolic space's Laplacian with m^2 L^2 = Delta (Delta - 2): Delta_H3 (g/sinh d) = (g'' - g)/sinh d, derived
     here; for Delta = 3/2 and 1/2 it is the conformal field's sigma^-1/2 -+ (sigma + 2)^-1/2 above, with
     cosh d = sigma + 1), on the same shifted contour.  The n-th image falls like e^{-2 pi |n| r_h Delta/L}."""
-    images = int(37 * ell / (2 * np.pi * delta * rh)) + 3
-    with mpmath.workdps(25):
-        r, rh, ell, sigma, delta = (mpmath.mpf(v) for v in (r0, rh, ell, width, delta))
-        alpha = mpmath.sqrt(r * r - rh * rh) / ell
-        eta = mpmath.pi * alpha * ell ** 2 / rh
-        B = (r * r - rh * rh) / rh ** 2
-        A = [(r * r / rh ** 2) * mpmath.cosh(2 * mpmath.pi * n * rh / ell) for n in range(-images, images + 1)]
+    exponent = mpmath.mpf(1) - mpmath.mpf(delta)
 
-        def wightman(x):
-            ch = mpmath.cosh(rh * x / (ell ** 2 * alpha))
-            total = 0
-            for a in A:
-                c = a + B * ch                       # cosh d of the n-th image (real and > 1 on this contour)
-                s = mpmath.sqrt(c * c - 1)
-                total += (c + s) ** (1 - delta) / s     # e^{-d} = c - s = 1/(c + s), without cancellation
-            return total / (4 * mpmath.pi * ell)
-
-        def integrand(x):
-            s = x - 1j * eta
-            return mpmath.sqrt(mpmath.pi) * sigma * mpmath.exp(-s * s / (4 * sigma ** 2) - 1j * gap * s) * wightman(x)
-
-        value = mpmath.quad(integrand, [-mpmath.inf, -20, -5, 0, 5, 20, mpmath.inf])
-        assert abs(value.imag) < 1e-20 * abs(value.real)
-        return float(value.real)
+    def term(c):
+        s = mpmath.sqrt(c * c - 1)
+        return (c + s) ** exponent / s         # e^{-d} = c - s = 1/(c + s), without cancellation
+    return _image_sum(gap, term, int(37 * ell / (2 * np.pi * delta * rh)) + 3, r0, rh, ell, width)
 
 
 def test_image_sum_of_any_dimension_is_the_conformal_one_at_half_integers():
