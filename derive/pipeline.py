@@ -459,6 +459,10 @@ def response_json(result) -> dict:
     for key in ("local_temperature", "local_cosmological_temperature"):
         if key in result:
             data[key] = float(result[key])
+    if "bound_levels" in result:
+        levels = result["bound_levels"]
+        data["bound_levels"] = {key: (_floats(value) if isinstance(value, np.ndarray) else value)
+                                for key, value in levels.items()}
     if "reference" in result:
         ref = result["reference"]
         data["reference"] = {"with": ref["with"], "response": _floats(ref["response"]),

@@ -88,16 +88,21 @@ def test_no_bound_states_for_a_massless_field(tmp_path, capsys):
 
 
 @pytest.mark.slow
-def test_run_lists_the_bound_states_and_says_why_there_is_no_response(tmp_path):
+def test_run_lists_the_bound_states_and_sums_them_into_the_response(tmp_path):
     # derive run on a massive field around a body: the continuum density, the s levels at the centre (in the
-    # summary and bound_states.csv), and the response skipped with its reason rather than an incomplete number
+    # summary and bound_states.csv), and the response at the centre with the levels' share included (found
+    # levels plus their quantum-defect series: derive.solve.levels)
     spec = light_field_around_a_shell(str(tmp_path))
     out = str(tmp_path / "atom")
-    assert main(["run", spec, "--out", out]) == 0
+    assert main(["run", spec, "--out", out, "--tolerance", "1e-8"]) == 0
     with open(os.path.join(out, "summary.json")) as handle:
         summary = json.load(handle)
     levels = summary["spectrum"]["bound_states"]
     assert levels["ok"] and len(levels["omega"]) == 4 and all(w < MU for w in levels["omega"])
     assert os.path.exists(os.path.join(out, "bound_states.csv"))
-    assert "bound states" in summary["skipped"]["response"]
+    assert "response" not in summary.get("skipped", {})
+    share = summary["response"]["bound_levels"]
+    assert share["found"] >= 8 and all(0 < s for s in share["share"])
     assert np.isfinite(summary["spectrum"]["largest_relative_error"])
+
+

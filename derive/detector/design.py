@@ -301,8 +301,15 @@ class Site:
     """One detector position: the round trip, the locality budget, and the shared nodes of both densities."""
 
     def __init__(self, problem, detector, reference_problem, radius, tolerance, family, progress=None):
-        from derive.detector.study import _sqrt_f
+        from derive.detector.study import _sqrt_f, has_horizon
+        from derive.solve.centre import Unsupported, bound_states_possible
 
+        for each in (problem, reference_problem):
+            if each is not None and not has_horizon(each) and bound_states_possible(each):
+                # the response adds the bound levels' share, but the second-order numbers (C, the shift) are
+                # quadratures over the continuum's nodes only
+                raise Unsupported("probe design for a massive field with bound levels is not built: its "
+                                  "second-order numbers would miss the levels (derive response includes them)")
         self.problem, self.reference_problem = problem, reference_problem
         self.detector = replace(detector, radius=float(radius))
         self.radius, self.tolerance, self.family = float(radius), tolerance, family

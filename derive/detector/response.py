@@ -32,13 +32,19 @@ class Response:
     error: np.ndarray
     quadrature_error: np.ndarray
     density_error: np.ndarray
+    levels: dict | None = None     # the bound levels' share, where they are summed (derive.solve.levels)
 
 
-def _panels(upper: float, width: float, start: float = 0.0):
+def _panels(upper: float, width: float, start: float = 0.0, graded: bool = True):
     """The quadrature of the frequency integral on [start, upper]: panels of half the given width from ``start``
     (0, or the continuum threshold of a massive field), the first one graded geometrically toward it (the density
     can be non-analytic there: nu^3 log nu from a long-range exterior, sqrt(nu - mu) at a threshold, which would
-    slow Gauss-Legendre down), an even number of them, with 12 Gauss-Legendre nodes each.
+    slow Gauss-Legendre down), an even number of them, with 12 Gauss-Legendre nodes each.  Graded less deeply
+    (six halvings, not twelve) where not ``graded``: at the threshold of an attractive Coulomb-like tail the
+    Sommerfeld factor makes the density finite, smooth but for terms like e^(-pi C/k) (k the wave number far
+    away), which fall below 1e-7 within the sixth halving, while the nodes of a deeper grading, within 1e-6 of
+    the mass, need far radii beyond the solver's reach (measured: no grading left 6e-7 of F at a gap of 10,
+    beside an estimate of 1e-7).
 
     Returns (nodes, weights, coarse weights): the coarse rule integrates each pair of neighbouring panels with
     the polynomial through all 24 of their nodes (exact to degree 23 on the pair, as the Gauss rule is on each
@@ -47,10 +53,10 @@ def _panels(upper: float, width: float, start: float = 0.0):
     half = width / 2
     upper = max(upper, start + width)
     count = max(int(np.ceil((upper - start) / half)), 2)
-    count += count % 2                       # with the 12 graded panels: an even number in all
+    count += count % 2                       # with the 12 (or 6) graded panels: an even number in all
     edges = start + half * np.arange(count + 1)
-    graded = start + (edges[1] - start) * 2.0 ** -np.arange(12, 0, -1)
-    edges = np.concatenate([[start], graded, edges[1:]])
+    inner = start + (edges[1] - start) * 2.0 ** -np.arange(12 if graded else 4, 0, -1)
+    edges = np.concatenate([[start], inner, edges[1:]])
     a, b = edges[:-1], edges[1:]
     nodes = ((a + b)[:, None] + (b - a)[:, None] * NODES[None, :]) / 2
     weights = ((b - a)[:, None] / 2) * WEIGHTS[None, :]
@@ -128,7 +134,7 @@ def cutoff(gaps, switching: Switching, thermal: bool = False, threshold: float =
 
 
 def frequency_nodes(gaps, switching: Switching, thermal: bool = False, threshold: float = 0.0, upper=None,
-                    panel: float | None = None):
+                    panel: float | None = None, graded: bool = True):
     """The proper frequencies nu > threshold at which the density is needed, with the fine and coarse weights of
     the frequency integral (:func:`_panels`), up to ``upper`` (default: the switching's reach beyond the largest
     -Omega).  A thermal state also needs its negative-frequency part, weighted by |chi_hat(Omega - nu)|^2, up to
@@ -137,12 +143,12 @@ def frequency_nodes(gaps, switching: Switching, thermal: bool = False, threshold
     if upper is None:
         upper = cutoff(gaps, switching, thermal, threshold)[0]
     width = switching.panel_width if panel is None else min(panel, switching.panel_width)
-    return _panels(upper, width, threshold)
+    return _panels(upper, width, threshold, graded)
 
 
 def response(gaps, switching: Switching, density_at, thermal: bool = False, threshold: float = 0.0,
              dimension: int = 4, tolerance: float | None = None, temperature: float | None = None,
-             vacuum_part_only: bool = False, panel: float | None = None) -> Response:
+             vacuum_part_only: bool = False, panel: float | None = None, graded: bool = True) -> Response:
     """F(Omega) for every gap.
 
     Parameters
@@ -154,11 +160,13 @@ def response(gaps, switching: Switching, density_at, thermal: bool = False, thre
     panel : float, optional
         A panel width below the switching's own, so that several switchings share their frequency nodes
         (:func:`frequency_nodes`).
+    graded : bool
+        Whether the first panel is graded toward the threshold (:func:`_panels`).
     """
     gaps = np.asarray(gaps, dtype=float)
     upper, cut_tail = cutoff(gaps, switching, thermal, threshold, tolerance, dimension, temperature,
                              vacuum_part_only)
-    nu, w_f, w_c = frequency_nodes(gaps, switching, thermal, threshold, upper, panel)
+    nu, w_f, w_c = frequency_nodes(gaps, switching, thermal, threshold, upper, panel, graded)
     parts = density_at(nu)
     F_c = F_f = density_error = size = mass = 0.0
     for sign, S, S_err in ((1.0, parts[0], parts[1]),) + (((-1.0, parts[2], parts[3]),) if thermal else ()):

@@ -16,7 +16,7 @@ import numpy as np
 from derive.detector.response import response, round_trip, trials_to_distinguish
 from derive.detector.switching import switching_from_spec
 from derive.errors import AccuracyError
-from derive.solve.centre import Divergent, Unsupported
+from derive.solve.centre import Divergent, Unsupported, bound_states_possible
 
 PERTURBATIVE_LIMIT = 0.1
 
@@ -122,7 +122,6 @@ def proper_density(problem, tolerance, r0: float = 0.0, state: str = "vacuum", p
         # every state uses the thermal nodes (Boulware's negative part is zero), so that they share one solve
         return density_at, sqrt_f0, True
     from derive.solve.api import density_function
-    from derive.solve.centre import bound_states_possible
     from derive.solve.cosmological import has_cosmological_horizon
 
     if has_cosmological_horizon(problem):
@@ -146,12 +145,12 @@ def proper_density(problem, tolerance, r0: float = 0.0, state: str = "vacuum", p
     if state != "vacuum":
         raise Unsupported(f"state {state!r} needs a horizon; this spacetime has none (use 'vacuum')")
 
-    if bound_states_possible(problem):
+    if bound_states_possible(problem) and not levels_at_centre(problem, r0):
         raise Unsupported("a massive field here has bound states below the mass (V dips below mu^2, e.g. the "
-                          "Coulomb-like tail of a gravitating body), and their part of the response is not built: "
-                          + missing_levels(problem, r0) + ". The continuum above the mass alone would be an "
-                          "incomplete response, so none is given; derive spectrum lists the levels with their "
-                          "weights")
+                          "Coulomb-like tail of a gravitating body), and off the centre their part of the "
+                          "response is not built (at the centre it is): " + missing_levels(problem, r0)
+                          + ". The continuum above the mass alone would be an incomplete response, so none is "
+                          "given; derive spectrum lists the levels with their weights")
 
     solve = density_function(problem, r0, tolerance, progress)
 
@@ -161,6 +160,12 @@ def proper_density(problem, tolerance, r0: float = 0.0, state: str = "vacuum", p
             _missed(shortfalls, result, tolerance)
         return sqrt_f0 * result.density, sqrt_f0 * result.error
     return density_at, sqrt_f0, False
+
+
+def levels_at_centre(problem, r0: float) -> bool:
+    """Whether the bound levels' share of the response is computed (derive.solve.levels): at the centre of a
+    3+1 spacetime, where only l = 0 reaches."""
+    return r0 == 0.0 and problem.dimension == 4
 
 
 def missing_levels(problem, r0: float) -> str:
@@ -243,10 +248,48 @@ def detector_response(problem, detector, tolerance: float = 1e-10, gaps=None, st
     temperatures = [t for t in (local_temperature(problem, sqrt_f0), cosmological_temperature(problem, sqrt_f0))
                     if t is not None]
     temperature = max(temperatures) if temperatures else None
-    return (response(gaps, switching, density_at, thermal, threshold, D, tolerance, temperature,
-                     vacuum_part_only=state == "boulware", panel=structure_panel(problem, sqrt_f0, detector.radius,
-                                                                                panel)),
-            switching, sqrt_f0)
+    levels = not has_horizon(problem) and bound_states_possible(problem)
+    continuum = response(gaps, switching, density_at, thermal, threshold, D, tolerance, temperature,
+                         vacuum_part_only=state == "boulware", panel=structure_panel(problem, sqrt_f0,
+                                                                                    detector.radius, panel),
+                         graded=not (levels and coulomb_threshold(problem)))
+    if levels:
+        continuum = with_levels(problem, continuum, switching, sqrt_f0, tolerance, shortfalls)
+    return continuum, switching, sqrt_f0
+
+
+def coulomb_threshold(problem) -> bool:
+    """Whether the continuum starts at the threshold of an attractive Coulomb-like tail (V -> mu^2 - C/r, C > 0):
+    infinitely many levels below it, a finite density above it (smooth but for terms like e^(-pi C/k))."""
+    from derive.solve.centre import continuum_threshold
+    from derive.solve.levels import coulomb_coefficient
+
+    threshold = continuum_threshold(problem)
+    return threshold > 0 and coulomb_coefficient(problem) > 1e-12 * problem.length_scale * threshold ** 2
+
+
+def with_levels(problem, continuum, switching, sqrt_f0: float, tolerance: float, shortfalls=None):
+    """The response with the bound levels' share added (at a centre: derive.solve.levels), their error in the
+    density's part of the error."""
+    from derive.detector.response import Response, normal_mode_terms
+    from derive.solve.levels import level_sum
+
+    gaps = continuum.gaps
+
+    def power(omega):
+        return switching.power(gaps[:, None] + np.asarray(omega)[None, :] / sqrt_f0)
+
+    levels = level_sum(problem, power, lambda modes: normal_mode_terms(modes, gaps, switching, sqrt_f0)[:2],
+                       tolerance, np.abs(continuum.response))
+    if shortfalls is not None and not levels.states.ok:
+        shortfalls.append((levels.states.message(), float(np.max(levels.states.weight_error
+                                                                / levels.states.size))))
+    report = {"found": len(levels.states.omega), "omega": levels.states.omega, "omega_error": levels.states.omega_error,
+              "weight": levels.states.weight, "weight_error": levels.states.weight_error,
+              "share": levels.value, "share_error": levels.error, "tail": levels.tail, "tail_error": levels.tail_error,
+              "threshold_density": levels.threshold_density()}
+    return Response(gaps, continuum.response + levels.value, continuum.error + levels.error,
+                    continuum.quadrature_error, continuum.density_error + levels.error, report)
 
 
 def structure_panel(problem, sqrt_f0: float, r0: float, panel=None):
@@ -306,6 +349,8 @@ def study(problem, detector, reference_problem=None, tolerance: float = 1e-10, g
            "state": detector.state, "at": detector.radius, "coupling": detector.coupling,
            "sigmas": detector.sigmas, "notes": [],
            "effective_temperature": effective_temperature(gaps, ours.response, ours.error)}
+    if ours.levels is not None:
+        out["bound_levels"] = ours.levels
     if has_horizon(problem):
         from derive.solve.exterior import states_of
 

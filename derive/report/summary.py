@@ -209,6 +209,12 @@ def response_summary(title: str, data: dict) -> str:
                                                              teff.get("error", [])) if v is not None]
     if shown:
         lines.append("effective temperature Omega/ln(F(-Omega)/F(Omega)) at gap " + "; ".join(shown))
+    levels = data.get("bound_levels")
+    if levels:
+        shares = ", ".join(f"{v:.3e}" for v in levels["share"])
+        lines.append(f"bound levels below the mass (included in F): the lowest {levels['found']} found, omega "
+                     f"{levels['omega'][0]:.10g} ... {levels['omega'][-1]:.10g}, the rest from their quantum-defect "
+                     f"series; their share of F at each gap: {shares}")
     loc = data["locality"]
     lines.append(f"locality: switching duration {loc['duration']:.4g} vs light round trip {loc['round_trip']:.4g} "
                  f"-> {'local' if loc['local'] else 'NOT local'}")

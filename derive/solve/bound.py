@@ -307,9 +307,25 @@ def _levels(problem, l, steps, count, r0, brackets=None):
         truncated = coulomb or len(change) > count
     if not brackets:
         return np.zeros(0), truncated, brackets
-    # all brackets bisected together on the layout of the highest (its far radius suits every lower level too:
-    # they only decay faster beyond it)
     low, high = (np.array(side, dtype=float) for side in zip(*brackets))
+    if is_ads(problem):
+        groups = [np.arange(len(low))]
+    else:
+        # by octave of x = 1/sqrt(threshold^2 - omega^2), as the scan: a far radius 40 decay lengths beyond the
+        # highest level of a dozen would leave the lowest levels on a layout far too long for their grid (the
+        # lowest of fourteen came out 1e-3 off, or lost, at 128 steps)
+        x = 1.0 / np.sqrt(np.maximum(threshold ** 2 - high ** 2, 1e-300))
+        octave = np.floor(np.log2(x / np.min(x))).astype(int)
+        groups = [np.nonzero(octave == value)[0] for value in np.unique(octave)]
+    found = np.zeros(len(low))
+    for group in groups:
+        found[group] = _bracketed_zeros(problem, l, steps, low[group], high[group])
+    return found, truncated, brackets
+
+
+def _bracketed_zeros(problem, l, steps, low, high):
+    """The zero of D in each bracket, bisected together on the layout of the highest (its far radius suits every
+    lower level of the batch too: they only decay faster beyond it); nan where no sign change is found."""
     layout = _layout(problem, l, float(np.max(high)))
     d_low = _d_value(problem, l, low, steps, layout)
     # a bracket from another grid (the scan's, or a coarser one) may have lost its sign change by a hair (the
@@ -323,7 +339,7 @@ def _levels(problem, l, steps, count, r0, brackets=None):
         low, high = np.where(lost, low - width, low), np.where(lost, high + width, high)
         d_low = _d_value(problem, l, low, steps, layout)
     found = _zeros(lambda x: _d_scaled(problem, l, x, steps, layout), low, high)
-    return np.where(lost, np.nan, found), truncated, brackets
+    return np.where(lost, np.nan, found)
 
 
 def _d_scaled(problem, l, omegas, steps, layout):

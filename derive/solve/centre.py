@@ -148,7 +148,7 @@ def continuum_threshold(problem) -> float:
 
 
 def centre_density(problem, omegas, tolerance: float = 1e-10, steps: int = DEFAULT_STEPS,
-                   max_steps: int = 8192) -> DensityResult:
+                   max_steps: int | None = None) -> DensityResult:
     """The l = 0 spectral density at r = 0 for every omega (> 0), each with an error estimate.
 
     The density is computed on grids of N and 2N steps per region; their difference (plus the tail error) is
@@ -161,18 +161,25 @@ def centre_density(problem, omegas, tolerance: float = 1e-10, steps: int = DEFAU
     if omegas.ndim != 1 or np.any(~np.isfinite(omegas)) or np.any(omegas <= 0):
         raise ValueError("frequencies must be positive and finite")
     threshold = continuum_threshold(problem)
+    if max_steps is None:
+        # a massive field's frequencies near the mass need the far radius of a Coulomb-like tail (C/(k^4 r^3)),
+        # geometric out to 10^6-10^7 length scales: up to 32768 steps (only those frequencies go that far)
+        max_steps = 32768 if threshold > 0 else 8192
     if threshold > 0 and np.any(omegas <= threshold):
         # below the mass there is no continuum: the density of scattering states is zero there (bound states,
         # where the spacetime has them, are discrete and not part of this density)
         above = np.nonzero(omegas > threshold)[0]
         parts = [(above, centre_density(problem, omegas[above], tolerance, steps, max_steps))] if len(above) else []
         return merge(omegas, tolerance, parts)
-    # frequencies so low that the far radius must grow are solved in their own decades (the far radius of a
-    # batch is set by its lowest frequency)
-    threshold = 1e3 / (FAR * problem.length_scale)
-    low = omegas < threshold
+    # frequencies so low (or, above a mass, so near it) that the far radius must grow are solved in their own
+    # decades of the wave number k far away (the far radius of a batch is set by its lowest k, and a batch that
+    # reaches 10^6 length scales for k ~ 1e-2 left 7e-10 in the density at k ~ 2, unseen by the refinement, where
+    # its own far radius of 10^4 gave 2e-11)
+    wave = np.sqrt(omegas ** 2 - threshold ** 2)
+    low_k = 1e3 / (FAR * problem.length_scale) if threshold == 0 else 1.0 / problem.length_scale
+    low = wave < low_k
     if np.any(low) and not np.all(low):
-        decade = np.where(low, np.floor(np.log10(omegas / threshold)), 1.0)
+        decade = np.where(low, np.floor(np.log10(wave / low_k)), 1.0)
         parts = []
         for value in np.unique(decade):
             index = np.nonzero(decade == value)[0]
@@ -184,10 +191,18 @@ def centre_density(problem, omegas, tolerance: float = 1e-10, steps: int = DEFAU
     active = np.arange(n)
     count = steps
     coarse = _run(problem, omegas, count)
+    # above a mass with a Coulomb-like tail the far piece converges erratically (the geometric steps there
+    # carry an error of every step's size, not fourth order: changes of 2e-8, 1e-8, 3e-9 on successive
+    # doublings, and a difference of two grids could fall below the tolerance by accident, measured 2.6e-7 off
+    # where it claimed 9e-9); there a value is taken only when two successive changes are within the tolerance
+    two_changes = threshold > 0
+    earlier = np.full(n, np.inf) if two_changes else np.zeros(n)
     while len(active):
         fine = _run(problem, omegas[active], 2 * count)
         change = np.abs(fine[0] - coarse[0])
-        estimate = change + (fine[2] + rounding_floor(2 * count)) * np.abs(fine[0])
+        settled = np.maximum(change, earlier)
+        earlier = change if two_changes else earlier
+        estimate = settled + (fine[2] + rounding_floor(2 * count)) * np.abs(fine[0])
         density[active], error[active] = fine[0], estimate
         amplitude[active], propagation[active], tail[active] = np.sqrt(fine[1]), change / np.abs(fine[0]), fine[2]
         done = estimate <= tolerance * np.abs(fine[0])
@@ -196,6 +211,7 @@ def centre_density(problem, omegas, tolerance: float = 1e-10, steps: int = DEFAU
         # frequencies that met the tolerance keep their values; the rest go to the next grid
         keep = ~done
         active = active[keep]
+        earlier = earlier[keep]
         coarse = tuple(part[keep] for part in fine)
         count *= 2
     return DensityResult(omegas, density, error, amplitude, propagation, tail, tolerance)
@@ -216,7 +232,10 @@ def _run(problem, omegas, steps):
     # the far radius must lie many wavelengths out for the amplitude invariant; the geometric grid makes
     # its cost logarithmic in the radius
     threshold = continuum_threshold(problem)
-    far = max(FAR * problem.length_scale, 1e3 / float(np.min(np.sqrt(omegas ** 2 - threshold ** 2))))
+    k = float(np.min(np.sqrt(omegas ** 2 - threshold ** 2)))
+    far = max(FAR * problem.length_scale, 1e3 / k)
+    if threshold > 0:    # a Coulomb-like tail C/r: the split's error C/(k^4 r^3) below ~1e-13 (as horizon.py)
+        far = max(far, (abs(coulomb_strength(problem)) * 1e13 / k ** 4) ** (1 / 3))
     from derive.solve.cosmological import flux_at_horizon, has_cosmological_horizon, matching_radius
 
     cosmological = has_cosmological_horizon(problem)
@@ -270,13 +289,16 @@ def sphere_area(n: int) -> float:
 
 
 def _amplitude2(region, state, omegas, radius):
-    """a^2 k with a^2 = u^2 + u'^2/k^2 the WKB amplitude invariant and k^2 = omega^2 - V the local wave number:
+    """a^2 k with a^2 = u^2 + w^2/k^2 the amplitude invariant and k^2 = omega^2 - V the local wave number:
     the flux, which far away is k_inf A^2 for u -> A sin(k_inf r* + delta).  The half-line normalisation is then
     1/sqrt(pi k_inf) (delta(omega - omega') in the Klein-Gordon product, dk/domega = omega/k), so the density is
-    (dr*/dr at 0)^2/(4 pi^2 a^2 k); massless, k_inf = omega."""
-    V = np.asarray(region.potential(np.array([radius]), 0, 0.0), dtype=float).reshape(-1)[0]
+    (dr*/dr at 0)^2/(4 pi^2 a^2 k); massless, k_inf = omega.  w = u' + g u with g = -V'/(4 k^2) (' = d/dr*): the
+    corrected Liouville-Green split of the horizon's far end (horizon.py), whose amplitude error is of order
+    V''/k^4 rather than V'/k^3 (it matters on a Coulomb-like tail near the mass, where k is small)."""
+    V, dV = far_potential(region, 0, radius)
     q = omegas ** 2 - V
-    return (state[:, 0] ** 2 + state[:, 1] ** 2 / q) * np.sqrt(q)
+    w = state[:, 1] - dV / (4 * q) * state[:, 0]
+    return (state[:, 0] ** 2 + w ** 2 / q) * np.sqrt(q)
 
 
 def minkowski_density(omegas) -> np.ndarray:

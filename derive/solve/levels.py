@@ -1,0 +1,171 @@
+"""Bound levels that accumulate at the continuum's threshold, and their share of a detector's response
+(docs/conventions.md section 14).
+
+A massive field around a gravitating body feels V -> mu^2 - C/r far away (C = 2 M mu^2 outside a mass M, in the
+tortoise coordinate), an attractive Coulomb-like tail: each l holds infinitely many bound levels below the mass,
+hydrogen-like, crowding towards it.  In x = 1/sqrt(mu^2 - omega^2) they follow
+
+    n = a x + delta(x),   a = C/2,      w_n = s(x_n)/x_n^3,
+
+with the quantum defect delta and the reduced weight s smooth functions of the energy, so of 1/x (quantum defect
+theory: M. J. Seaton, Rep. Prog. Phys. 46, 167 (1983), from memory).  The lowest levels are found and weighed by
+:func:`derive.solve.bound.bound_states`; delta and s are fitted through the last ``TERMS`` of them as polynomials
+in x_N/x, and every level beyond follows from the fit: the sum over them of w_n g(omega_n) is taken level by level
+out to ``EXPLICIT`` model levels and, past those (where omega_n is within 1e-8 of the mass), as g(mu) times
+s_0 a^3 zeta(3, n - delta_0), the Hurwitz zeta function.  Its error is the difference between the fits through
+the last ``TERMS`` and the last ``TERMS - 1`` levels, plus the found levels' own errors carried through.
+
+A check of the whole (tests/test_levels.py): the density the levels make per unit omega near the threshold,
+w_n dn/domega -> s(inf) a mu, is the continuum's density just above it, computed by another path (the mode's
+amplitude far away): the spectral density is continuous across a Coulomb threshold.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import mpmath
+import numpy as np
+
+from derive.solve.bound import BoundStates, ModeList, bound_states
+from derive.solve.centre import continuum_threshold
+
+TERMS = 4          # the fits of delta and s: powers 0..3 of x_N/x, through the last four levels
+FIRST_COUNT = 8    # levels found before the model takes over (the model's error then ~1e-6 of the tail)
+MOST_COUNT = 20    # found levels at most, where the tail's error needs more
+STEP_COUNT = 4
+EXPLICIT = 4000    # model levels summed one by one beyond the found ones
+
+
+def coulomb_coefficient(problem) -> float:
+    """C of V -> threshold^2 - C/r, from R (threshold^2 - V(R)) at R and 2R (1e5 length scales) with the next
+    order, D/R, eliminated (Richardson): the spacing of the levels in x is 2/C, and an error in C would grow
+    linearly along the series."""
+    threshold2 = continuum_threshold(problem) ** 2
+    radii = 1e5 * problem.length_scale * np.array([1.0, 2.0])
+    V = np.asarray(problem.regions[-1].potential(radii, 0, 0.0), dtype=float) * np.ones(2)
+    first, second = radii * (threshold2 - V)
+    return float(2 * second - first)
+
+
+@dataclass
+class LevelModel:
+    """delta(x) and s(x) as polynomials in y = x_ref/x (``defect``, ``strength``: coefficients of y^0, y^1, ...)."""
+
+    threshold: float
+    spacing: float        # a = C/2
+    reference: float      # x_ref
+    defect: np.ndarray
+    strength: np.ndarray
+
+    @classmethod
+    def fitted(cls, states: BoundStates, threshold: float, spacing: float, terms: int) -> LevelModel:
+        n = np.arange(1, len(states.omega) + 1, dtype=float)[-terms:]
+        x = 1.0 / np.sqrt(threshold ** 2 - states.omega[-terms:] ** 2)
+        reference = float(x[-1])
+        powers = (reference / x)[:, None] ** np.arange(terms)[None, :]
+        defect = np.linalg.solve(powers, n - spacing * x)
+        strength = np.linalg.solve(powers, states.weight[-terms:] * x ** 3)
+        return cls(threshold, spacing, reference, defect, strength)
+
+    def _polynomial(self, coefficients, x):
+        y = self.reference / x
+        return sum(c * y ** k for k, c in enumerate(coefficients))
+
+    def x_of(self, n: np.ndarray) -> np.ndarray:
+        """x_n: the root of a x + delta(x) = n, by Newton's method from x = (n - delta_0)/a."""
+        x = (n - self.defect[0]) / self.spacing
+        slope_terms = [(k, c) for k, c in enumerate(self.defect) if k > 0]
+        for _ in range(50):
+            residual = self.spacing * x + self._polynomial(self.defect, x) - n
+            slope = self.spacing - sum(k * c * (self.reference / x) ** k / x for k, c in slope_terms)
+            step = residual / slope
+            x = x - step
+            if np.all(np.abs(step) <= 1e-15 * x):
+                break
+        return x
+
+    def levels(self, n: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """(omega_n, w_n) of the model for the level numbers n (counted from 1)."""
+        x = self.x_of(np.asarray(n, dtype=float))
+        omega = np.sqrt(self.threshold ** 2 - 1.0 / x ** 2)
+        return omega, self._polynomial(self.strength, x) / x ** 3
+
+    def remainder(self, first: int) -> float:
+        """sum over n >= first of s_0/x_n^3 with x_n = (n - delta_0)/a: s_0 a^3 zeta(3, first - delta_0)."""
+        return float(self.strength[0] * self.spacing ** 3 * mpmath.zeta(3, first - self.defect[0]))
+
+
+@dataclass
+class LevelSum:
+    """The levels' share of a detector's response at each gap: the found levels' terms and the model's tail,
+    each with its error."""
+
+    states: BoundStates
+    found: np.ndarray
+    found_error: np.ndarray
+    tail: np.ndarray
+    tail_error: np.ndarray
+    model: LevelModel | None
+
+    @property
+    def value(self) -> np.ndarray:
+        return self.found + self.tail
+
+    @property
+    def error(self) -> np.ndarray:
+        return self.found_error + self.tail_error
+
+    def threshold_density(self) -> float | None:
+        """The density per unit omega the levels make at the threshold, s(inf) a mu (the continuum's there)."""
+        if self.model is None:
+            return None
+        return float(self.model.strength[0] * self.model.spacing * self.model.threshold)
+
+
+def _tail(model: LevelModel, first: int, power) -> np.ndarray:
+    """sum over n >= first of w_n g(omega_n), g = ``power`` (a function of omega, one row per gap)."""
+    n = np.arange(first, first + EXPLICIT, dtype=float)
+    omega, weight = model.levels(n)
+    explicit = np.sum(power(omega) * weight[None, :], axis=1)
+    rest = model.remainder(first + EXPLICIT) * power(np.array([model.threshold]))[:, 0]
+    return explicit + rest, np.abs(rest) * 10.0 / model.x_of(np.array([first + EXPLICIT], dtype=float))[0]
+
+
+def level_sum(problem, power, terms_of, tolerance: float, scale: np.ndarray) -> LevelSum:
+    """The l = 0 levels' share of the response at the centre: sum over n of w_n g(omega_n) with its error.
+
+    ``power(omega)`` is g at each gap (rows) for frequencies of t; ``terms_of(modes)`` the found levels' terms and
+    their errors (gaps x levels, detector.response.normal_mode_terms); ``scale`` what the tolerance refers to
+    at each gap (the response).  Levels are found FIRST_COUNT at a time more until the tail's error is below a
+    tenth of the tolerance of the scale (at most MOST_COUNT)."""
+    threshold = continuum_threshold(problem)
+    spacing = coulomb_coefficient(problem) / 2
+    count = FIRST_COUNT
+    best = None
+    while True:
+        states = bound_states(problem, 0, 0.0, tolerance, count=count)
+        modes = ModeList(states.omega, states.omega_error, states.weight, states.weight_error,
+                         np.zeros(len(states.omega), dtype=int), ())
+        terms, errors = terms_of(modes)
+        found, found_error = np.sum(terms, axis=1), np.sum(errors, axis=1)
+        if not states.truncated or len(states.omega) < TERMS + 1 or spacing <= 0:
+            # a finite set (no Coulomb-like tail), all of it found
+            return LevelSum(states, found, found_error, np.zeros_like(found), np.zeros_like(found), None)
+        model = LevelModel.fitted(states, threshold, spacing, TERMS)
+        rougher = LevelModel.fitted(states, threshold, spacing, TERMS - 1)
+        first = len(states.omega) + 1
+        tail, rest_error = _tail(model, first, power)
+        other, _ = _tail(rougher, first, power)
+        # the fitted levels' own errors, carried into the tail in proportion (the fit is an extrapolation)
+        spread = float(np.max(states.weight_error[-TERMS:] / np.abs(states.weight[-TERMS:])))
+        tail_error = np.abs(tail - other) + rest_error + 10 * spread * np.abs(tail)
+        result = LevelSum(states, found, found_error, tail, tail_error, model)
+        worst = float(np.max(result.error / np.maximum(np.abs(scale), 1e-300)))
+        if best is not None and worst >= best[0]:
+            # more levels did not help (the higher levels' own errors, carried into the fit, grow): the fewer
+            return best[1]
+        if worst <= 0.1 * tolerance or count >= MOST_COUNT:
+            return result
+        best = (worst, result)
+        count += STEP_COUNT
