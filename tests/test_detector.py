@@ -235,23 +235,6 @@ def test_flat_massive_gaussian_response_against_direct_quadrature(write_spec):
     assert np.all(np.abs(result["relative_difference"]) <= 1e-9)
 
 
-def test_massive_field_with_bound_states_off_the_centre_is_refused(capsys, tmp_path):
-    # A massive field around a gravitating shell has bound states below the mass (the Coulomb-like tail
-    # -M mu^2/r supports hydrogen-like levels); at the centre they are summed (tests/test_levels.py), off it every
-    # l's levels would be needed, which are not built: no response, and the refusal says what is missing.
-    text = (open(os.path.join(ROOT, "worked", "static_shell", "spec.toml")).read().replace('mass = "0"', 'mass = "1"')
-            .replace('at = "r = 0"', 'at = "r = R/2"'))
-    path = tmp_path / "spec.toml"
-    path.write_text(text)
-    assert main(["response", str(path)]) == 2
-    err = capsys.readouterr().err
-    assert "bound states" in err and "off the centre" in err
-    # the refusal names exactly what is missing: the l = 0 levels (with their weights) and the infinitely many
-    # more that accumulate at the continuum's threshold (the lapse at infinity times mu: 1 here), and every l
-    assert "missing are the l = 0 levels omega = 0.9" in err and "weight" in err
-    assert "infinitely many more accumulating at omega = 1" in err and "every l > 0" in err
-
-
 @pytest.mark.slow
 def test_flat_2plus1_gaussian_response(write_spec):
     # Flat 2+1, massless: S = 1/(4 pi) (docs/conventions.md section 7), so F = int_0^inf S 2 pi sigma^2 e^{-sigma^2 (W+nu)^2}

@@ -31,7 +31,7 @@ def massive_shell(folder) -> str:
 def levels(tmp_path_factory):
     st = derive.load(massive_shell(str(tmp_path_factory.mktemp("levels"))))
     problem = st.numeric_problem
-    return problem, bound_states(problem, 0, 0.0, 1e-10, count=12)
+    return problem, bound_states(problem, 0, 0.0, 1e-9, count=12)
 
 
 @pytest.mark.slow
@@ -50,6 +50,20 @@ def test_levels_meet_the_continuum_at_the_threshold(levels):
     above = centre_density(problem, omegas, 1e-10)
     at_threshold = 2 * above.density[0] - above.density[1]
     assert from_levels == pytest.approx(at_threshold, rel=2e-5)
+
+
+@pytest.mark.slow
+def test_levels_of_l_1_off_the_centre_meet_that_multipole_of_the_continuum(levels):
+    """The same continuity for l = 1 at r0 = R/2 (the weights w_n = h_1 |u_n(r0)|^2/r0^2 against the l = 1 term of
+    the continuum's density there): the levels of every l enter a response off the centre."""
+    from derive.solve.offcentre import multipole_density
+
+    problem, _ = levels
+    mu = continuum_threshold(problem)
+    states = bound_states(problem, 1, 0.5, 1e-9, count=12)
+    model = LevelModel.fitted(states, mu, coulomb_coefficient(problem) / 2, 4)
+    above = multipole_density(problem, mu * np.array([1 + 2e-4, 1 + 4e-4]), 0.5, 1, 1e-10)
+    assert model.strength[0] * model.spacing * mu == pytest.approx(2 * above.density[0] - above.density[1], rel=1e-4)
 
 
 @pytest.mark.slow
@@ -86,3 +100,18 @@ def test_response_at_the_centre_includes_the_levels(tmp_path, capsys):
     assert code in (0, 1)
     F, e, F2, e2 = (np.array(v) for v in (data["response"], data["error"], finer["response"], finer["error"]))
     assert np.all(np.abs(F - F2) <= e + e2)
+
+
+@pytest.mark.slow
+def test_response_off_the_centre_sums_the_levels_of_every_l(tmp_path, capsys):
+    """Off the centre (r0 = R/2) every l has its own series of levels; they are summed until two l in a row add
+    less than 1e-2 of the tolerance (here l = 0..4), and the response meets 1e-8."""
+    text = open(massive_shell(str(tmp_path))).read().replace('at = "r = 0"', 'at = "r = R/2"')
+    path = tmp_path / "off.toml"
+    path.write_text(text)
+    assert main(["response", str(path), "--tolerance", "1e-8", "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    share = data["bound_levels"]
+    assert max(share["l"]) >= 2 and min(share["l"]) == 0
+    assert all(0 < s < f for s, f in zip(share["share"], data["response"]))
+    assert data["at"] == 0.5 and np.all(np.array(data["error"]) <= 1e-8 * np.array(data["response"]))

@@ -145,7 +145,7 @@ def proper_density(problem, tolerance, r0: float = 0.0, state: str = "vacuum", p
     if state != "vacuum":
         raise Unsupported(f"state {state!r} needs a horizon; this spacetime has none (use 'vacuum')")
 
-    if bound_states_possible(problem) and not levels_at_centre(problem, r0):
+    if bound_states_possible(problem) and not levels_summed(problem, r0):
         raise Unsupported("a massive field here has bound states below the mass (V dips below mu^2, e.g. the "
                           "Coulomb-like tail of a gravitating body), and off the centre their part of the "
                           "response is not built (at the centre it is): " + missing_levels(problem, r0)
@@ -162,10 +162,10 @@ def proper_density(problem, tolerance, r0: float = 0.0, state: str = "vacuum", p
     return density_at, sqrt_f0, False
 
 
-def levels_at_centre(problem, r0: float) -> bool:
-    """Whether the bound levels' share of the response is computed (derive.solve.levels): at the centre of a
-    3+1 spacetime, where only l = 0 reaches."""
-    return r0 == 0.0 and problem.dimension == 4
+def levels_summed(problem, r0: float) -> bool:
+    """Whether the bound levels' share of the response is computed (derive.solve.levels): in 3+1, at the centre
+    (only l = 0 reaches) or anywhere off it (every l, until their share falls below the tolerance)."""
+    return problem.dimension == 4
 
 
 def missing_levels(problem, r0: float) -> str:
@@ -254,7 +254,7 @@ def detector_response(problem, detector, tolerance: float = 1e-10, gaps=None, st
                                                                                     detector.radius, panel),
                          graded=not (levels and coulomb_threshold(problem)))
     if levels:
-        continuum = with_levels(problem, continuum, switching, sqrt_f0, tolerance, shortfalls)
+        continuum = with_levels(problem, continuum, switching, sqrt_f0, tolerance, shortfalls, detector.radius)
     return continuum, switching, sqrt_f0
 
 
@@ -268,9 +268,12 @@ def coulomb_threshold(problem) -> bool:
     return threshold > 0 and coulomb_coefficient(problem) > 1e-12 * problem.length_scale * threshold ** 2
 
 
-def with_levels(problem, continuum, switching, sqrt_f0: float, tolerance: float, shortfalls=None):
-    """The response with the bound levels' share added (at a centre: derive.solve.levels), their error in the
-    density's part of the error."""
+MAX_LEVEL_L = 60
+
+
+def with_levels(problem, continuum, switching, sqrt_f0: float, tolerance: float, shortfalls=None, r0: float = 0.0):
+    """The response with the bound levels' share added (derive.solve.levels; off the centre the levels of every
+    l), their error in the density's part of the error."""
     from derive.detector.response import Response, normal_mode_terms
     from derive.solve.levels import level_sum
 
@@ -279,17 +282,33 @@ def with_levels(problem, continuum, switching, sqrt_f0: float, tolerance: float,
     def power(omega):
         return switching.power(gaps[:, None] + np.asarray(omega)[None, :] / sqrt_f0)
 
-    levels = level_sum(problem, power, lambda modes: normal_mode_terms(modes, gaps, switching, sqrt_f0)[:2],
-                       tolerance, np.abs(continuum.response))
-    if shortfalls is not None and not levels.states.ok:
-        shortfalls.append((levels.states.message(), float(np.max(levels.states.weight_error
-                                                                / levels.states.size))))
-    report = {"found": len(levels.states.omega), "omega": levels.states.omega, "omega_error": levels.states.omega_error,
-              "weight": levels.states.weight, "weight_error": levels.states.weight_error,
-              "share": levels.value, "share_error": levels.error, "tail": levels.tail, "tail_error": levels.tail_error,
-              "threshold_density": levels.threshold_density()}
-    return Response(gaps, continuum.response + levels.value, continuum.error + levels.error,
-                    continuum.quadrature_error, continuum.density_error + levels.error, report)
+    scale = np.abs(continuum.response)
+    sums, l, quiet = [], 0, 0
+    while True:     # at the centre l = 0 only; off it every l until two in a row add below 1e-2 of the tolerance
+        levels = level_sum(problem, power, lambda modes: normal_mode_terms(modes, gaps, switching, sqrt_f0)[:2],
+                           tolerance, scale, l, r0)
+        sums.append(levels)
+        if shortfalls is not None and not levels.states.ok:
+            shortfalls.append((levels.states.message(), float(np.max(levels.states.weight_error
+                                                                    / levels.states.size))))
+        if r0 == 0.0:
+            break
+        small = np.all(np.abs(levels.value) + levels.error <= 1e-2 * tolerance * scale)
+        quiet = quiet + 1 if small else 0
+        if quiet >= 2:
+            break
+        if l >= MAX_LEVEL_L:
+            raise Unsupported(f"the bound levels' share did not fall below the tolerance by l = {l}")
+        l += 1
+    share, share_error = sum(s.value for s in sums), sum(s.error for s in sums)
+    joined = {key: np.concatenate([getattr(s.states, key) for s in sums])
+              for key in ("omega", "omega_error", "weight", "weight_error")}
+    report = {"found": int(sum(len(s.states.omega) for s in sums)),
+              "l": np.concatenate([np.full(len(s.states.omega), k) for k, s in enumerate(sums)]), **joined,
+              "share": share, "share_error": share_error, "tail": sum(s.tail for s in sums),
+              "tail_error": sum(s.tail_error for s in sums), "threshold_density": sums[0].threshold_density()}
+    return Response(gaps, continuum.response + share, continuum.error + share_error,
+                    continuum.quadrature_error, continuum.density_error + share_error, report)
 
 
 def structure_panel(problem, sqrt_f0: float, r0: float, panel=None):

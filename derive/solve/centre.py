@@ -257,10 +257,10 @@ def _run(problem, omegas, steps):
         log_flux, tail_error = flux_at_horizon(problem, 0, omegas, state, r_m, steps)
         amplitude2 = np.exp(log_flux + 2 * log_scale)
     else:
-        near = _amplitude2(last, state, omegas, far)
+        near = far_amplitude2(last, state, omegas, far)
         tail = Piece(len(problem.regions) - 1, far, 4 * far, max(steps // 8, 8), "geometric")
         matrix, scale = propagator(problem, 0, omegas, tail)
-        farther = _amplitude2(last, np.einsum("nij,nj->ni", matrix, state), omegas, 4 * far) * np.exp(2 * scale)
+        farther = far_amplitude2(last, np.einsum("nij,nj->ni", matrix, state), omegas, 4 * far) * np.exp(2 * scale)
         tail_error = np.abs(farther - near) / farther
         amplitude2 = farther * np.exp(2 * log_scale)
     if problem.dimension == 4:   # u = 0, du/dr* = 1 at the centre: psi(0) = du/dr = dr*/dr
@@ -288,14 +288,14 @@ def sphere_area(n: int) -> float:
     return 2 * np.pi ** ((n + 1) / 2) / gamma((n + 1) / 2)
 
 
-def _amplitude2(region, state, omegas, radius):
+def far_amplitude2(region, state, omegas, radius, l: int = 0):
     """a^2 k with a^2 = u^2 + w^2/k^2 the amplitude invariant and k^2 = omega^2 - V the local wave number:
     the flux, which far away is k_inf A^2 for u -> A sin(k_inf r* + delta).  The half-line normalisation is then
     1/sqrt(pi k_inf) (delta(omega - omega') in the Klein-Gordon product, dk/domega = omega/k), so the density is
     (dr*/dr at 0)^2/(4 pi^2 a^2 k); massless, k_inf = omega.  w = u' + g u with g = -V'/(4 k^2) (' = d/dr*): the
     corrected Liouville-Green split of the horizon's far end (horizon.py), whose amplitude error is of order
     V''/k^4 rather than V'/k^3 (it matters on a Coulomb-like tail near the mass, where k is small)."""
-    V, dV = far_potential(region, 0, radius)
+    V, dV = far_potential(region, l, radius)
     q = omegas ** 2 - V
     w = state[:, 1] - dV / (4 * q) * state[:, 0]
     return (state[:, 0] ** 2 + w ** 2 / q) * np.sqrt(q)

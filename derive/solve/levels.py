@@ -132,8 +132,9 @@ def _tail(model: LevelModel, first: int, power) -> np.ndarray:
     return explicit + rest, np.abs(rest) * 10.0 / model.x_of(np.array([first + EXPLICIT], dtype=float))[0]
 
 
-def level_sum(problem, power, terms_of, tolerance: float, scale: np.ndarray) -> LevelSum:
-    """The l = 0 levels' share of the response at the centre: sum over n of w_n g(omega_n) with its error.
+def level_sum(problem, power, terms_of, tolerance: float, scale: np.ndarray, l: int = 0, r0: float = 0.0) -> LevelSum:
+    """The share of the levels of one l at r0 (the centre: l = 0 only) in the response: sum over n of
+    w_n g(omega_n) with its error.
 
     ``power(omega)`` is g at each gap (rows) for frequencies of t; ``terms_of(modes)`` the found levels' terms and
     their errors (gaps x levels, detector.response.normal_mode_terms); ``scale`` what the tolerance refers to
@@ -144,9 +145,9 @@ def level_sum(problem, power, terms_of, tolerance: float, scale: np.ndarray) -> 
     count = FIRST_COUNT
     best = None
     while True:
-        states = bound_states(problem, 0, 0.0, tolerance, count=count)
+        states = bound_states(problem, l, r0, tolerance, count=count)
         modes = ModeList(states.omega, states.omega_error, states.weight, states.weight_error,
-                         np.zeros(len(states.omega), dtype=int), ())
+                         np.full(len(states.omega), l), ())
         terms, errors = terms_of(modes)
         found, found_error = np.sum(terms, axis=1), np.sum(errors, axis=1)
         if not states.truncated or len(states.omega) < TERMS + 1 or spacing <= 0:

@@ -35,7 +35,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from derive.solve.centre import (FAR, DensityResult, Unsupported, check_supported, continuum_threshold,
-                                 harmonic_weight, merge, tortoise_distance)
+                                 coulomb_strength, far_amplitude2, harmonic_weight, merge, tortoise_distance)
 from derive.solve.cosmological import flux_at_horizon, has_cosmological_horizon, matching_radius
 from derive.solve.march import Piece, centre_start, march
 from derive.solve.propagation import outer_pieces
@@ -95,6 +95,8 @@ def _pieces(problem, l, radii, steps, lowest, highest):
     r_s and the far radius."""
     r_s = 0.0 if (l == 0 and problem.dimension == 4) else min(1e-3 * radii[0], 1e-3 / highest)
     far = max(FAR * problem.length_scale, 1e3 / lowest, 1e6 * np.sqrt(l * (l + 1) + 1.0) / lowest)
+    if continuum_threshold(problem) > 0:   # a Coulomb-like tail C/r: the far split's error C/(k^4 r^3) (centre.py)
+        far = max(far, (abs(coulomb_strength(problem)) * 1e13 / lowest ** 4) ** (1 / 3))
     cosmological = has_cosmological_horizon(problem)
     if cosmological:   # the march ends at the matching radius, where the horizon's solution meets it
         far = matching_radius(problem, radii)
@@ -171,10 +173,8 @@ def _log_u_at(problem, l, omegas, radii, steps, series, fixed):
     if has_cosmological_horizon(problem):
         log_flux, _ = flux_at_horizon(problem, l, omegas, state, far, 16 * multiple, check=False)
         return log_u - (0.5 * log_flux + log_scale), sign, 0.5 * log_flux + log_scale
-    V = float(np.asarray(last.potential(np.array([far]), l, 0.0)).reshape(-1)[0])
-    q = omegas ** 2 - V          # the local wave number squared: the flux a^2 k normalises (centre.py)
-    amplitude2 = (state[:, 0] ** 2 + state[:, 1] ** 2 / q) * np.sqrt(q)
-    log_amplitude = 0.5 * np.log(amplitude2) + log_scale
+    # the flux a^2 k through the corrected Liouville-Green split at the far radius (centre.py)
+    log_amplitude = 0.5 * np.log(far_amplitude2(last, state, omegas, far, l)) + log_scale
     return log_u - log_amplitude, sign, log_amplitude
 
 
