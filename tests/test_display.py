@@ -323,3 +323,19 @@ def test_collected_form_is_equal_and_groups_the_eigenvalue():
     assert sp.cancel(form - expr) == 0
     shown = display.tex(form)
     assert r"\left(1 + l\right)" in shown and "l^{2}" not in shown and len(shown) < len(display.tex(expr))
+
+
+def test_symbolic_time_limits_count_cpu_time():
+    """A rewriting that runs past its limit gives the fallback (the exact, longer form); the limit counts the
+    process's CPU time, so a busy machine does not change what a document shows."""
+    import time
+
+    from derive.geometry.checks import bounded
+
+    def spin():
+        while True:
+            pass
+    start = time.process_time()
+    assert bounded(spin, "fallback", seconds=0.2) == "fallback"
+    assert 0.15 <= time.process_time() - start < 2.0
+    assert bounded(lambda: "done", "fallback", seconds=0.2) == "done"

@@ -50,23 +50,26 @@ _LIMITED = [False]
 
 @contextlib.contextmanager
 def time_limit(seconds: float):
-    """Raise SymbolicTimeout in the block after ``seconds`` (a real-time timer; main thread only, elsewhere and
-    inside another limit the block runs unbounded).  For simplifications whose fallback is the unsimplified,
-    equally exact form: sympy's simplify and factor can run for many minutes on an unlucky term order."""
+    """Raise SymbolicTimeout in the block after ``seconds`` of the process's own CPU time (a virtual timer, so
+    that what a busy machine finishes, and hence the forms a document shows, does not depend on the load: a
+    real-time limit cut rewritings short under a parallel test run and left a transfer matrix's entry omitted;
+    main thread only, elsewhere and inside another limit the block runs unbounded).  For simplifications whose
+    fallback is the unsimplified, equally exact form: sympy's simplify and factor can run for many minutes on an
+    unlucky term order."""
     if _LIMITED[0] or threading.current_thread() is not threading.main_thread():
         yield
         return
 
     def expire(signum, frame):
         raise SymbolicTimeout(f"not finished in {seconds:g} s")
-    previous = signal.signal(signal.SIGALRM, expire)
+    previous = signal.signal(signal.SIGVTALRM, expire)
     _LIMITED[0] = True
-    signal.setitimer(signal.ITIMER_REAL, seconds)
+    signal.setitimer(signal.ITIMER_VIRTUAL, seconds)
     try:
         yield
     finally:
-        signal.setitimer(signal.ITIMER_REAL, 0)
-        signal.signal(signal.SIGALRM, previous)
+        signal.setitimer(signal.ITIMER_VIRTUAL, 0)
+        signal.signal(signal.SIGVTALRM, previous)
         _LIMITED[0] = False
 
 

@@ -160,14 +160,15 @@ class Derivation:
 
     def _bounded(self, rewrite):
         """A display rewriting within the document's time allowance (a few seconds each, SIMPLIFY_SECONDS in
-        all), else None: the form as computed is exact, the rewriting only shortens it."""
+        all, of CPU time: the document does not depend on how busy the machine is), else None: the form as
+        computed is exact, the rewriting only shortens it."""
         if self._allowance <= 0:
             return None
-        start = time.perf_counter()
+        start = time.process_time()
         try:
             return bounded(rewrite, None, seconds=min(display.REWRITE_SECONDS, self._allowance))
         finally:
-            self._allowance -= time.perf_counter() - start
+            self._allowance -= time.process_time() - start
 
     def add(self, section: Section) -> Section:
         self.sections.append(section)
