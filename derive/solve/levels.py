@@ -28,7 +28,7 @@ import mpmath
 import numpy as np
 
 from derive.solve.bound import BoundStates, ModeList, bound_states
-from derive.solve.centre import continuum_threshold
+from derive.solve.centre import Unsupported, continuum_threshold
 
 TERMS = 4          # the fits of delta and s: powers 0..3 of x_N/x, through the last four levels
 FIRST_COUNT = 8    # levels found before the model takes over (the model's error then ~1e-6 of the tail)
@@ -123,8 +123,9 @@ class LevelSum:
         return float(self.model.strength[0] * self.model.spacing * self.model.threshold)
 
 
-def _tail(model: LevelModel, first: int, power) -> np.ndarray:
-    """sum over n >= first of w_n g(omega_n), g = ``power`` (a function of omega, one row per gap)."""
+def _tail(model: LevelModel, first: int, power) -> tuple[np.ndarray, np.ndarray]:
+    """sum over n >= first of w_n g(omega_n), g = ``power`` (a function of omega, one row per gap), and the error
+    of its closed-form remainder."""
     n = np.arange(first, first + EXPLICIT, dtype=float)
     omega, weight = model.levels(n)
     explicit = np.sum(power(omega) * weight[None, :], axis=1)
@@ -138,8 +139,8 @@ def level_sum(problem, power, terms_of, tolerance: float, scale: np.ndarray, l: 
 
     ``power(omega)`` is g at each gap (rows) for frequencies of t; ``terms_of(modes)`` the found levels' terms and
     their errors (gaps x levels, detector.response.normal_mode_terms); ``scale`` what the tolerance refers to
-    at each gap (the response).  Levels are found FIRST_COUNT at a time more until the tail's error is below a
-    tenth of the tolerance of the scale (at most MOST_COUNT)."""
+    at each gap (the response).  FIRST_COUNT levels are found, then STEP_COUNT more at a time, until the error is
+    below a tenth of the tolerance of the scale, stops improving, or MOST_COUNT levels are reached."""
     threshold = continuum_threshold(problem)
     spacing = coulomb_coefficient(problem) / 2
     count = FIRST_COUNT
@@ -148,11 +149,19 @@ def level_sum(problem, power, terms_of, tolerance: float, scale: np.ndarray, l: 
         states = bound_states(problem, l, r0, tolerance, count=count)
         modes = ModeList(states.omega, states.omega_error, states.weight, states.weight_error,
                          np.full(len(states.omega), l), ())
+        if not np.all(np.isfinite(states.omega)) or not np.all(np.isfinite(states.weight)):
+            raise Unsupported(f"a bound level of l = {l} was not found in its bracket (near omega = "
+                              f"{float(np.nanmax(states.omega)):.10g}): the levels' share is not computed")
         terms, errors = terms_of(modes)
         found, found_error = np.sum(terms, axis=1), np.sum(errors, axis=1)
-        if not states.truncated or len(states.omega) < TERMS + 1 or spacing <= 0:
-            # a finite set (no Coulomb-like tail), all of it found
+        if not states.truncated:   # a finite set (no Coulomb-like tail), all of it found
             return LevelSum(states, found, found_error, np.zeros_like(found), np.zeros_like(found), None)
+        if len(states.omega) < TERMS + 1 or spacing <= 0:
+            if count >= MOST_COUNT:
+                raise Unsupported(f"l = {l}: more than {MOST_COUNT} bound levels and no Coulomb-like series to sum "
+                                  "the rest by: the levels' share is not computed")
+            count += STEP_COUNT
+            continue
         model = LevelModel.fitted(states, threshold, spacing, TERMS)
         rougher = LevelModel.fitted(states, threshold, spacing, TERMS - 1)
         first = len(states.omega) + 1
