@@ -61,6 +61,9 @@ def time_limit(seconds: float):
         return
 
     def expire(signum, frame):
+        # raised inside a callback (a gc hook, a __del__) the exception is swallowed: the timer is re-armed so
+        # that it fires again until it lands in the block itself (the finally below disarms it)
+        signal.setitimer(signal.ITIMER_VIRTUAL, 0.05)
         raise SymbolicTimeout(f"not finished in {seconds:g} s")
     previous = signal.signal(signal.SIGVTALRM, expire)
     _LIMITED[0] = True
