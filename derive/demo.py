@@ -64,9 +64,9 @@ def _plain_summary(results, alpha, coupling, sigmas) -> str:
         "within the light round trip), and how close counting excitations comes to the quantum limit: derive design "
         "(worked/probe_design searches three shapes in about half a minute).",
         "- Every number above carries its error estimate (modes to about 1e-10, quadrature and tails included). "
-        "What it leaves out: a probe that is not perfectly still, or a field with a mass (derive spectrum lists its "
-        "bound states around the shell, but they are not yet summed into a response); off-centre probes and black "
-        "holes in their three states are in worked/.",
+        "What it leaves out: a probe that is not perfectly still. A field with a mass works the same way (give "
+        "[field] mass: its bound states around the shell enter the response, reported under bound_levels); "
+        "off-centre probes and black holes in their three states are in worked/.",
     ]
     return "\n".join(lines)
 
