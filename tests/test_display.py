@@ -339,3 +339,29 @@ def test_symbolic_time_limits_count_cpu_time():
     assert bounded(spin, "fallback", seconds=0.2) == "fallback"
     assert 0.15 <= time.process_time() - start < 2.0
     assert bounded(lambda: "done", "fallback", seconds=0.2) == "done"
+
+
+def test_symbolic_time_limits_hold_off_the_main_thread():
+    """In a worker thread (no signals there) the limit is kept by a trace function on the thread's CPU time: a
+    rewriting that runs on gives the fallback; one that finishes gives its result."""
+    import threading
+
+    from derive.geometry.checks import bounded
+
+    def spin():       # Python-level calls, as sympy's code makes them all the time
+        while True:
+            _step()
+
+    def _step():
+        return None
+    out = {}
+
+    def work():
+        out["spun"] = bounded(spin, "fallback", seconds=0.2)
+        out["done"] = bounded(lambda: sp.factor(sp.Symbol("x") ** 2 - 1), None, seconds=5.0)
+    thread = threading.Thread(target=work, daemon=True)
+    thread.start()
+    thread.join(timeout=30)
+    assert not thread.is_alive() and out["spun"] == "fallback"
+    x = sp.Symbol("x")
+    assert out["done"] == (x - 1) * (x + 1)

@@ -10,7 +10,9 @@ from __future__ import annotations
 
 import contextlib
 import signal
+import sys
 import threading
+import time
 
 import mpmath
 import sympy as sp
@@ -45,35 +47,64 @@ class SymbolicTimeout(Exception):
     """A display simplification that did not finish within its time limit (see :func:`time_limit`)."""
 
 
-_LIMITED = [False]
+_LOCAL = threading.local()    # whether this thread is already inside a limit (limits do not nest)
 
 
 @contextlib.contextmanager
 def time_limit(seconds: float):
-    """Raise SymbolicTimeout in the block after ``seconds`` of the process's own CPU time (a virtual timer, so
-    that what a busy machine finishes, and hence the forms a document shows, does not depend on the load: a
-    real-time limit cut rewritings short under a parallel test run and left a transfer matrix's entry omitted;
-    main thread only, elsewhere and inside another limit the block runs unbounded).  For simplifications whose
-    fallback is the unsimplified, equally exact form: sympy's simplify and factor can run for many minutes on an
-    unlucky term order."""
-    if _LIMITED[0] or threading.current_thread() is not threading.main_thread():
+    """Raise SymbolicTimeout in the block after ``seconds`` of CPU time (so that what a busy machine finishes, and
+    hence the forms a document shows, does not depend on the load: a real-time limit cut rewritings short under
+    a parallel test run and left a transfer matrix's entry omitted).  In the main thread by a virtual timer
+    (SIGVTALRM); in any other thread, where signals cannot be delivered, by a trace function that checks the
+    thread's CPU time at every Python call.  Inside another limit the block runs under that one.  For
+    simplifications whose fallback is the unsimplified, equally exact form: sympy's simplify and factor can run
+    for many minutes on an unlucky term order."""
+    if getattr(_LOCAL, "limited", False):
         yield
         return
+    _LOCAL.limited = True
+    try:
+        if threading.current_thread() is threading.main_thread():
+            with _signal_limit(seconds):
+                yield
+        else:
+            with _traced_limit(seconds):
+                yield
+    finally:
+        _LOCAL.limited = False
 
+
+@contextlib.contextmanager
+def _signal_limit(seconds: float):
     def expire(signum, frame):
         # raised inside a callback (a gc hook, a __del__) the exception is swallowed: the timer is re-armed so
         # that it fires again until it lands in the block itself (the finally below disarms it)
         signal.setitimer(signal.ITIMER_VIRTUAL, 0.05)
         raise SymbolicTimeout(f"not finished in {seconds:g} s")
     previous = signal.signal(signal.SIGVTALRM, expire)
-    _LIMITED[0] = True
     signal.setitimer(signal.ITIMER_VIRTUAL, seconds)
     try:
         yield
     finally:
         signal.setitimer(signal.ITIMER_VIRTUAL, 0)
         signal.signal(signal.SIGVTALRM, previous)
-        _LIMITED[0] = False
+
+
+@contextlib.contextmanager
+def _traced_limit(seconds: float):
+    deadline = time.thread_time() + seconds
+
+    def check(frame, event, arg):
+        # every call after the deadline raises, so an exception swallowed by an except clause comes back
+        if time.thread_time() > deadline:
+            raise SymbolicTimeout(f"not finished in {seconds:g} s")
+        return None
+    previous = sys.gettrace()
+    sys.settrace(check)
+    try:
+        yield
+    finally:
+        sys.settrace(previous)
 
 
 def bounded(function, fallback, seconds: float = 10.0):
