@@ -11,8 +11,8 @@ import pytest
 import derive
 from derive.cli import main
 from derive.solve.bound import bound_states
-from derive.solve.centre import centre_density, continuum_threshold
-from derive.solve.levels import LevelModel, coulomb_coefficient
+from derive.solve.centre import centre_density, continuum_threshold, coulomb_strength
+from derive.solve.levels import LevelModel
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 
@@ -43,7 +43,7 @@ def test_levels_meet_the_continuum_at_the_threshold(levels):
     (1983); from memory).  It checks the levels' weights, their series and the two normalisations together."""
     problem, states = levels
     mu = continuum_threshold(problem)
-    model = LevelModel.fitted(states, mu, coulomb_coefficient(problem) / 2, 4)
+    model = LevelModel.fitted(states, mu, coulomb_strength(problem) / 2, 4)
     from_levels = model.strength[0] * model.spacing * mu
     # the continuum at two frequencies just above the mass, extrapolated linearly to it
     omegas = mu * np.array([1 + 2e-4, 1 + 4e-4])
@@ -61,7 +61,7 @@ def test_levels_of_l_1_off_the_centre_meet_that_multipole_of_the_continuum(level
     problem, _ = levels
     mu = continuum_threshold(problem)
     states = bound_states(problem, 1, 0.5, 1e-9, count=12)
-    model = LevelModel.fitted(states, mu, coulomb_coefficient(problem) / 2, 4)
+    model = LevelModel.fitted(states, mu, coulomb_strength(problem) / 2, 4)
     above = multipole_density(problem, mu * np.array([1 + 2e-4, 1 + 4e-4]), 0.5, 1, 1e-10)
     assert model.strength[0] * model.spacing * mu == pytest.approx(2 * above.density[0] - above.density[1], rel=1e-4)
 
@@ -76,7 +76,7 @@ def test_the_quantum_defect_series_predicts_the_next_levels(levels):
     first = type(states)(states.l, states.radius, *(a[:8] for a in (states.omega, states.omega_error, states.weight,
                                                                        states.weight_error)),
                          True, states.tolerance)
-    model = LevelModel.fitted(first, mu, coulomb_coefficient(problem) / 2, 4)
+    model = LevelModel.fitted(first, mu, coulomb_strength(problem) / 2, 4)
     omega, weight = model.levels(np.arange(9, 13))
     x_model, x_found = (1 / np.sqrt(mu ** 2 - w ** 2) for w in (omega, states.omega[8:12]))
     np.testing.assert_allclose(x_model, x_found, rtol=1e-8)

@@ -261,11 +261,10 @@ def detector_response(problem, detector, tolerance: float = 1e-10, gaps=None, st
 def coulomb_threshold(problem) -> bool:
     """Whether the continuum starts at the threshold of an attractive Coulomb-like tail (V -> mu^2 - C/r, C > 0):
     infinitely many levels below it, a finite density above it (smooth but for terms like e^(-pi C/k))."""
-    from derive.solve.centre import continuum_threshold
-    from derive.solve.levels import coulomb_coefficient
+    from derive.solve.centre import continuum_threshold, coulomb_strength
 
     threshold = continuum_threshold(problem)
-    return threshold > 0 and coulomb_coefficient(problem) > 1e-12 * problem.length_scale * threshold ** 2
+    return threshold > 0 and coulomb_strength(problem) > 1e-12 * problem.length_scale * threshold ** 2
 
 
 MAX_LEVEL_L = 60

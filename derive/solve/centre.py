@@ -307,11 +307,15 @@ def minkowski_density(omegas) -> np.ndarray:
 
 
 def coulomb_strength(problem) -> float:
-    """C in V -> threshold^2 - C/r far away (l = 0; 2 M mu^2 outside a mass M, about 0 when massless)."""
-    threshold = continuum_threshold(problem)
-    R = 1e6 * problem.length_scale
-    V = float(np.asarray(problem.regions[-1].potential(np.array([R]), 0, 0.0)).reshape(-1)[0])
-    return R * (threshold ** 2 - V)
+    """C in V -> threshold^2 - C/r far away (l = 0; 2 M mu^2 outside a mass M, about 0 when massless), from
+    R (threshold^2 - V(R)) at R and 2R (1e5 length scales) with the next order, D/R, eliminated (Richardson): the
+    bound levels' spacing in x = 1/sqrt(mu^2 - omega^2) is 2/C, and an error in C would grow linearly along
+    their series (derive.solve.levels)."""
+    threshold2 = continuum_threshold(problem) ** 2
+    radii = 1e5 * problem.length_scale * np.array([1.0, 2.0])
+    V = np.asarray(problem.regions[-1].potential(radii, 0, 0.0), dtype=float) * np.ones(2)
+    first, second = radii * (threshold2 - V)
+    return float(2 * second - first)
 
 
 def outer_turning_point(problem, l, omega, start) -> float:

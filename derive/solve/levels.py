@@ -28,24 +28,13 @@ import mpmath
 import numpy as np
 
 from derive.solve.bound import BoundStates, ModeList, bound_states
-from derive.solve.centre import Unsupported, continuum_threshold
+from derive.solve.centre import Unsupported, continuum_threshold, coulomb_strength
 
 TERMS = 4          # the fits of delta and s: powers 0..3 of x_N/x, through the last four levels
 FIRST_COUNT = 8    # levels found before the model takes over (the model's error then ~1e-6 of the tail)
 MOST_COUNT = 20    # found levels at most, where the tail's error needs more
 STEP_COUNT = 4
 EXPLICIT = 4000    # model levels summed one by one beyond the found ones
-
-
-def coulomb_coefficient(problem) -> float:
-    """C of V -> threshold^2 - C/r, from R (threshold^2 - V(R)) at R and 2R (1e5 length scales) with the next
-    order, D/R, eliminated (Richardson): the spacing of the levels in x is 2/C, and an error in C would grow
-    linearly along the series."""
-    threshold2 = continuum_threshold(problem) ** 2
-    radii = 1e5 * problem.length_scale * np.array([1.0, 2.0])
-    V = np.asarray(problem.regions[-1].potential(radii, 0, 0.0), dtype=float) * np.ones(2)
-    first, second = radii * (threshold2 - V)
-    return float(2 * second - first)
 
 
 @dataclass
@@ -142,7 +131,7 @@ def level_sum(problem, power, terms_of, tolerance: float, scale: np.ndarray, l: 
     at each gap (the response).  FIRST_COUNT levels are found, then STEP_COUNT more at a time, until the error is
     below a tenth of the tolerance of the scale, stops improving, or MOST_COUNT levels are reached."""
     threshold = continuum_threshold(problem)
-    spacing = coulomb_coefficient(problem) / 2
+    spacing = coulomb_strength(problem) / 2
     count = FIRST_COUNT
     best = None
     while True:
