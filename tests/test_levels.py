@@ -87,8 +87,8 @@ def test_the_quantum_defect_series_predicts_the_next_levels(levels):
 def test_response_at_the_centre_includes_the_levels(tmp_path, capsys):
     """The response at the centre with a field of mass 1: exit 0 at 1e-8, the levels' share reported
     (JSON bound_levels) and inside F, every value within its tolerance.  (Run against 1e-9, the values agreed
-    within their errors (measured when this was built); that consistency check, which caught the continuum's erratic convergence near
-    the mass, costs 13 s and is left to the off-centre test's tolerance and the Seaton checks above.)"""
+    within their errors, measured when this was built; that consistency check, which caught the continuum's
+    erratic convergence near the mass, costs 13 s and is left out of CI.)"""
     path = massive_shell(str(tmp_path))
     assert main(["response", path, "--tolerance", "1e-8", "--json"]) == 0
     data = json.loads(capsys.readouterr().out)
