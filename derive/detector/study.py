@@ -16,7 +16,7 @@ import numpy as np
 from derive.detector.response import response, round_trip, trials_to_distinguish
 from derive.detector.switching import switching_from_spec
 from derive.errors import AccuracyError
-from derive.solve.centre import Divergent, Unsupported, bound_states_possible
+from derive.solve.centre import Divergent, Unsupported, bound_states_possible, has_coulomb_tail
 
 PERTURBATIVE_LIMIT = 0.1
 
@@ -252,19 +252,10 @@ def detector_response(problem, detector, tolerance: float = 1e-10, gaps=None, st
     continuum = response(gaps, switching, density_at, thermal, threshold, D, tolerance, temperature,
                          vacuum_part_only=state == "boulware", panel=structure_panel(problem, sqrt_f0,
                                                                                     detector.radius, panel),
-                         graded=not (levels and coulomb_threshold(problem)))
+                         graded=not (levels and has_coulomb_tail(problem)))
     if levels:
         continuum = with_levels(problem, continuum, switching, sqrt_f0, tolerance, shortfalls, detector.radius)
     return continuum, switching, sqrt_f0
-
-
-def coulomb_threshold(problem) -> bool:
-    """Whether the continuum starts at the threshold of an attractive Coulomb-like tail (V -> mu^2 - C/r, C > 0):
-    infinitely many levels below it, a finite density above it (smooth but for terms like e^(-pi C/k))."""
-    from derive.solve.centre import continuum_threshold, coulomb_strength
-
-    threshold = continuum_threshold(problem)
-    return threshold > 0 and coulomb_strength(problem) > 1e-12 * problem.length_scale * threshold ** 2
 
 
 MAX_LEVEL_L = 60

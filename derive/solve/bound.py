@@ -35,7 +35,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from derive.solve.centre import (Unsupported, check_supported, continuum_threshold, coulomb_strength, far_potential,
-                                 harmonic_weight, outer_turning_point, region_at)
+                                 harmonic_weight, has_coulomb_tail, outer_turning_point, region_at)
 from derive.solve.march import Piece, centre_start, march
 
 BISECTIONS = 60
@@ -290,7 +290,7 @@ def _levels(problem, l, steps, count, r0, brackets=None):
         if not V_min < threshold ** 2:
             return np.zeros(0), False, []
         x_low = 1.0 / np.sqrt(threshold ** 2 - max(V_min, 0.0))
-        coulomb = C > 1e-12 * problem.length_scale * threshold ** 2
+        coulomb = has_coulomb_tail(problem)
         x_high = 2.0 * (count + l + 1.5) / C if coulomb else 1e3 * problem.length_scale
         spacing = (2.0 / C) / 16 if coulomb else (x_high - x_low) / 400
         xs = np.arange(x_low, x_high + spacing, spacing)

@@ -235,7 +235,7 @@ def _run(problem, omegas, steps):
     k = float(np.min(np.sqrt(omegas ** 2 - threshold ** 2)))
     far = max(FAR * problem.length_scale, 1e3 / k)
     if threshold > 0:    # a Coulomb-like tail C/r: the split's error C/(k^4 r^3) below ~1e-13 (as horizon.py)
-        far = max(far, (abs(coulomb_strength(problem)) * 1e13 / k ** 4) ** (1 / 3))
+        far = max(far, coulomb_far_radius(problem, k))
     from derive.solve.cosmological import flux_at_horizon, has_cosmological_horizon, matching_radius
 
     cosmological = has_cosmological_horizon(problem)
@@ -316,6 +316,18 @@ def coulomb_strength(problem) -> float:
     V = np.asarray(problem.regions[-1].potential(radii, 0, 0.0), dtype=float) * np.ones(2)
     first, second = radii * (threshold2 - V)
     return float(2 * second - first)
+
+
+def coulomb_far_radius(problem, k: float) -> float:
+    """Far enough out that the corrected Liouville-Green split's amplitude error on a Coulomb-like tail,
+    C/(k^4 r^3), is below ~1e-13 (k the wave number far away); shared by every far end above a mass."""
+    return (abs(coulomb_strength(problem)) * 1e13 / k ** 4) ** (1 / 3)
+
+
+def has_coulomb_tail(problem) -> bool:
+    """Whether V -> mu^2 - C/r with an attractive C of any size (infinitely many levels below the mass)."""
+    threshold = continuum_threshold(problem)
+    return threshold > 0 and coulomb_strength(problem) > 1e-12 * problem.length_scale * threshold ** 2
 
 
 def outer_turning_point(problem, l, omega, start) -> float:

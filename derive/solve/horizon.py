@@ -24,8 +24,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from derive.solve.centre import (FAR, Unsupported, continuum_threshold, coulomb_strength, far_potential,
-                                 outer_turning_point, rounding_floor, shortfall)
+from derive.solve.centre import (FAR, Unsupported, continuum_threshold, coulomb_far_radius, coulomb_strength,
+                                 far_potential, outer_turning_point, rounding_floor, shortfall)
 from derive.solve.cosmological import has_cosmological_horizon, horizon_solution, matching_radius
 from derive.solve.cosmological import START as OUTER_START
 from derive.solve.march import Piece, march
@@ -117,7 +117,7 @@ def far_radius(problem, l, omegas, probe=None) -> float:
         k = float(np.sqrt(np.min(omegas) ** 2 - threshold ** 2)) if threshold > 0 else float(np.min(omegas))
         far = max(FAR * L, 1e3 / k, 1e6 * np.sqrt(l * (l + 1) + 1.0) / k)
         if threshold > 0 or C > 1e-9 * L:
-            far = max(far, (C * 1e13 / k ** 4) ** (1 / 3))
+            far = max(far, coulomb_far_radius(problem, k))
     if threshold > 0 and not far <= LARGEST * L:
         raise Unsupported(f"omega = {float(np.min(np.abs(omegas))):.10g} is too close to the mass threshold "
                           f"{threshold:.10g} (the far radius would be {far:.3g}): Coulomb wave functions would be "

@@ -35,7 +35,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from derive.solve.centre import (FAR, DensityResult, Unsupported, check_supported, continuum_threshold,
-                                 coulomb_strength, far_amplitude2, harmonic_weight, merge, tortoise_distance)
+                                 coulomb_far_radius, far_amplitude2, harmonic_weight, merge, tortoise_distance)
 from derive.solve.cosmological import flux_at_horizon, has_cosmological_horizon, matching_radius
 from derive.solve.march import Piece, centre_start, march
 from derive.solve.propagation import outer_pieces
@@ -96,7 +96,7 @@ def _pieces(problem, l, radii, steps, lowest, highest):
     r_s = 0.0 if (l == 0 and problem.dimension == 4) else min(1e-3 * radii[0], 1e-3 / highest)
     far = max(FAR * problem.length_scale, 1e3 / lowest, 1e6 * np.sqrt(l * (l + 1) + 1.0) / lowest)
     if continuum_threshold(problem) > 0:   # a Coulomb-like tail C/r: the far split's error C/(k^4 r^3) (centre.py)
-        far = max(far, (abs(coulomb_strength(problem)) * 1e13 / lowest ** 4) ** (1 / 3))
+        far = max(far, coulomb_far_radius(problem, lowest))
     cosmological = has_cosmological_horizon(problem)
     if cosmological:   # the march ends at the matching radius, where the horizon's solution meets it
         far = matching_radius(problem, radii)
