@@ -61,6 +61,62 @@ def test_shell_of_vanishing_mass_gives_flat_space(write_spec):
     np.testing.assert_allclose(differences[1] / differences[0], 2.0, rtol=1e-3)
 
 
+SHELL_5D = """
+format = 1
+title = "Thin shell in 4+1"
+[parameters]
+M = {{ value = {mass}, positive = true }}
+R = {{ value = 1.0, positive = true }}
+[coordinates]
+names = ["t", "r", "a", "b", "c"]
+positive = ["r"]
+[[region]]
+name = "inside"
+where = "0 <= r < R"
+line_element = "-(1 - M/R**2)*dt**2 + dr**2 + r**2*(da**2 + sin(a)**2*(db**2 + sin(b)**2*dc**2))"
+[[region]]
+name = "outside"
+where = "r > R"
+line_element = "-(1 - M/r**2)*dt**2 + dr**2/(1 - M/r**2) + r**2*(da**2 + sin(a)**2*(db**2 + sin(b)**2*dc**2))"
+[[interface]]
+between = ["inside", "outside"]
+at = "r = R"
+[field]
+mass = "{mu}"
+coupling = "0"
+"""
+
+
+@pytest.mark.parametrize("mu", [0.0, 1.0])
+def test_shell_of_vanishing_mass_in_five_dimensions(write_spec, mu):
+    # A thin shell in 4+1 (f = 1 - M/r^2 outside) of vanishing mass gives flat space's density at the centre,
+    # k^2/(16 pi^2) with k^2 = omega^2 - mu^2 (from W = int d^4k/((2pi)^4 2E) e^{-iEt}; common practice), the
+    # difference linear in M (first-order perturbation theory, common practice).  The first region started
+    # on the series with uniform steps had been 10^7 times off here (4+1 needs steps geometric near r = 0).
+    omegas = np.array([1.5, 2.0, 4.0, 8.0])
+    flat = (omegas ** 2 - mu ** 2) / (16 * np.pi ** 2)
+    differences = []
+    for mass in (1e-6, 2e-6):
+        spec = SHELL_5D.format(mass=mass, mu=mu)
+        result = centre_density(problem_of(write_spec(spec, f"shell{mass}.toml")), omegas, tolerance=1e-9)
+        assert result.ok, result.message()
+        differences.append(result.density / flat - 1)
+    assert np.max(np.abs(differences[0])) < 1e-4
+    np.testing.assert_allclose(differences[1] / differences[0], 2.0, rtol=1e-3)
+
+
+def test_five_dimensional_shell_at_high_frequencies(write_spec):
+    # As in 3+1 (below): far above the shell's scale the modes cross it unreflected, and the density per unit t
+    # at the centre tends to (omega/alpha)^2/(16 pi^2 alpha) with alpha^2 = 1 - M/R^2 the interior's lapse
+    # (flat 4+1 in proper time; common practice), oscillating about it with an amplitude decaying like 1/omega.
+    problem = problem_of(write_spec(SHELL_5D.format(mass=0.2, mu=0)))
+    omegas = np.array([300.6, 1000.0, 3000.0])
+    result = centre_density(problem, omegas, tolerance=1e-9)
+    assert result.ok, result.message()
+    ratio = result.density / (omegas ** 2 / (16 * np.pi ** 2))
+    assert np.all(np.abs(ratio - 0.8 ** -1.5) < [1e-3, 3e-4, 1e-4])
+
+
 def test_error_estimates_bound_the_true_error():
     # The reported error must be at least the difference from a much finer solution (common practice).
     problem = problem_of(os.path.join(ROOT, "worked", "static_shell", "spec.toml"))

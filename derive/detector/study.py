@@ -146,9 +146,9 @@ def proper_density(problem, tolerance, r0: float = 0.0, state: str = "vacuum", p
         raise Unsupported(f"state {state!r} needs a horizon; this spacetime has none (use 'vacuum')")
 
     if bound_states_possible(problem) and not levels_summed(problem, r0):
-        raise Unsupported("a massive field here has bound states below the mass (V dips below mu^2, e.g. the "
-                          "Coulomb-like tail of a gravitating body), and off the centre their part of the "
-                          "response is not built (at the centre it is): " + missing_levels(problem, r0)
+        raise Unsupported("a massive field here may have bound states below the mass (V dips below mu^2 "
+                          f"somewhere), and in D = {problem.dimension} their share of the response is not built "
+                          "(in 3+1 it is, at and off the centre): " + missing_levels(problem, r0)
                           + ". The continuum above the mass alone would be an incomplete response, so none is "
                           "given; derive spectrum lists the levels with their weights")
 

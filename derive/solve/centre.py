@@ -23,7 +23,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from derive.solve.propagation import outer_pieces
+from derive.solve.propagation import first_spans, outer_pieces
 from derive.solve.summation import rounding_floor
 
 DEFAULT_STEPS = 48
@@ -248,6 +248,11 @@ def _run(problem, omegas, steps):
         elif region.upper is None:
             pieces += [Piece(index, a, b, count, "geometric") for a, b, count, _ in
                        outer_pieces(max(lower, 1e-12), far, steps, problem.length_scale)]
+        elif index == 0 and start > 0:
+            # started on the series off the centre (D != 4): the potential's (D-2)(D-4)/(4 r^2) needs steps
+            # geometric in r there (uniform steps from r = 1e-4 to a shell at r = 1 were 10^7 times off in 4+1)
+            pieces += [Piece(index, a, b, count, "geometric" if geometric else "uniform") for a, b, geometric, count
+                       in first_spans(region, 0, start, region.upper, steps, float(np.max(omegas)))]
         else:
             pieces.append(Piece(index, lower, region.upper, steps))
     marched = march(problem, 0, omegas, pieces, state, log_scale)

@@ -38,7 +38,7 @@ from derive.solve.centre import (FAR, DensityResult, Unsupported, check_supporte
                                  coulomb_far_radius, far_amplitude2, harmonic_weight, merge, tortoise_distance)
 from derive.solve.cosmological import flux_at_horizon, has_cosmological_horizon, matching_radius
 from derive.solve.march import Piece, centre_start, march
-from derive.solve.propagation import outer_pieces
+from derive.solve.propagation import first_spans, outer_pieces
 from derive.solve.summation import l_sum, on_both_cores, refine
 
 MAX_L = 400
@@ -108,7 +108,7 @@ def _pieces(problem, l, radii, steps, lowest, highest):
         if index == 0:   # from the series start: geometric in r when it starts off the centre (l > 0)
             top = region.upper if region.upper is not None else 2 * max(radii[-1], problem.length_scale)
             top = min(top, far) if cosmological and last else top
-            spans += _first_spans(region, l, r_s, top, steps, highest)
+            spans += first_spans(region, l, r_s, top, steps, highest)
             lower = top
         if cosmological and last:
             if far > lower:
@@ -130,32 +130,6 @@ def _pieces(problem, l, radii, steps, lowest, highest):
                 pieces.append(Piece(index, c, d, count, "geometric" if geometric else "uniform"))
     at = [next(i for i, piece in enumerate(pieces) if piece.a >= r) for r in radii]
     return pieces, at, r_s, far
-
-
-def _first_spans(region, l, r_s, top, steps, highest):
-    """The first region's pieces from the series start r_s to ``top``: uniform from the centre (l = 0 in 3+1);
-    otherwise geometric in two parts split at a quarter of the innermost turning point r_t (where V = omega^2 at
-    the highest frequency of the set): below it the solution is a deep power law that the steps follow closely
-    (a quarter of the count), above it lie every frequency's turning point and its waves (the count times the
-    decades spanned).  The error of a frozen-potential step peaks where k^2 = omega^2 - V crosses zero;
-    measured: one geometric piece from r_s spent most of its steps where nothing happens (25-70 times the error
-    at equal cost for l = 3 to 30), and fixed decades starved the turning points of the lower l."""
-    if r_s == 0.0:
-        return [(0.0, top, False, steps)]
-    radii = np.geomspace(r_s, top, 400)
-    V = np.broadcast_to(np.asarray(region.potential(radii, l, 0.0), dtype=float), radii.shape)
-    below = np.nonzero(V <= highest ** 2)[0]
-    turning = radii[below[0]] if len(below) else top
-    cut = turning / 4
-    full = int(round(steps * max(1.0, np.log10(top / max(cut, r_s)))))
-    if cut <= r_s * 10:
-        return [(r_s, top, True, full)]
-    # below the cut the solution grows like r^(l+1) under the barrier: a step of gamma h = sqrt(l(l+1)) d ln r
-    # e-folds makes the first-order (interaction-picture) correction of the step exponentially large, and past
-    # gamma h ~ 10 it overflows (the term was then inf/nan on the coarse grids, and refinement went on to 8-16
-    # times the steps everywhere for every l beyond ~20); so gamma h <= 6 at the coarsest grid (2x the base)
-    evanescent = int(np.ceil(np.sqrt(l * (l + 1.0)) * np.log(cut / r_s) / 12))
-    return [(r_s, cut, True, max(4, steps // 4, evanescent)), (cut, top, True, full)]
 
 
 def _log_u_at(problem, l, omegas, radii, steps, series, fixed):
