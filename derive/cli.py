@@ -382,6 +382,15 @@ def _scattering_rows(spacetime, data):
         header += f" {'density (Boulware)':>22} {'error':>10}"
     title = (f"{spacetime.title}: scattering of the l = {data['l']} field off the horizon"
              + (f"; spectral density at r = {data['at']:g} summed over l" if data.get("at") is not None else ""))
+    resonances = data.get("quasi_bound")
+    if resonances is not None:
+        rows.append(f"quasi-bound resonances (l = {data['l']}; complex frequency omega - i width/2; a narrow peak of "
+                    f"the up modes' density below the mass):\n{'omega':>22} {'error':>10} {'width':>22} {'error':>10}")
+        rows += [f"{w:22.15e} {we:10.1e} " + (f"{g:22.15e} {ge:10.1e}" if ok else f"{'< ' + format(ge, '.1e'):>22}")
+                 for w, we, g, ge, ok in zip(resonances["omega"], resonances["error"]["omega"], resonances["width"],
+                                             resonances["error"]["width"], resonances["resolved"])]
+        if resonances["truncated"]:
+            rows.append("  (infinitely many more accumulate at the mass: the lowest are listed)")
     return title + "\n" + header, rows
 
 

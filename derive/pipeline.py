@@ -168,6 +168,11 @@ def _scattering(spacetime, problem, omegas, at, l, tolerance, progress) -> Spect
             "error": {"transmission": _floats(result["error"]), "reflection": _floats(result["error"])},
             "flux_defect": _floats(result["flux_defect"]), "tolerance": tolerance, "method": METHOD}
     ok, message = bool(result["ok"]), result["message"]
+    from derive.solve.api import resonance_table
+
+    resonances = resonance_table(problem, l)
+    if resonances is not None:
+        data["quasi_bound"] = resonances
     if at is None:
         data["note"] = "give --at R0 (outside the horizon) for the spectral density there"
         return Spectrum(data, spacetime, ok, message, tolerance)

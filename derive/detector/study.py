@@ -111,8 +111,9 @@ def proper_density(problem, tolerance, r0: float = 0.0, state: str = "vacuum", p
         if problem.mass != 0.0 and not is_ads(problem):    # a reflecting AdS boundary: no well, no continuum
             raise Unsupported("a massive field outside a horizon has quasi-bound resonances below the mass (the "
                               "Coulomb-like well; widths can be many orders below their frequency), which the "
-                              "frequency quadrature of the response would not resolve: the response is not "
-                              "computed; derive spectrum --at gives the density at any listed frequency")
+                              "frequency quadrature of the response would not resolve, and their share is not "
+                              "built: " + missing_resonances(problem) + ". The response is not computed; derive "
+                              "spectrum lists the resonances of any l and gives the density at any frequency")
 
         def density_at(nu):
             result = _exterior(problem, sqrt_f0 * np.asarray(nu), r0, tolerance, progress)
@@ -186,6 +187,18 @@ def missing_levels(problem, r0: float) -> str:
             else "")
     return (f"missing are the l = 0 levels omega = {listed}{more}"
             + ("" if r0 == 0.0 else ", and those of every l > 0") + f" ({where})")
+
+
+def missing_resonances(problem) -> str:
+    """The quasi-bound resonances a response outside a horizon would need, in words: the lowest of l = 0 and
+    l = 1 (frequency of the spec's time and width), and that every l has infinitely many."""
+    from derive.solve.resonances import quasi_bound
+
+    try:
+        listed = [f"l = {l}: omega = {quasi_bound(problem, l, 3).describe()}" for l in (0, 1)]
+    except Exception:       # noqa: BLE001 (the message only; the refusal stands either way)
+        return "the resonances below the mass of every l are missing"
+    return "missing are the resonances of every l, the lowest " + "; ".join(listed)
 
 
 def local_temperature(problem, sqrt_f0: float) -> float | None:

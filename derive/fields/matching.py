@@ -82,7 +82,9 @@ class Matching:
         du_second = sp.expand(solution[0][du2])
         values = self.problem.spacetime.parameter_values
         coefficients = [du_second.coeff(u), du_second.coeff(du1)]
-        row = [simplify_checked(bounded(lambda c=c: sp.simplify(c), c), values) for c in coefficients]
+        # 2 s here, alone; a loaded machine has needed more than 10 s of CPU time for it (the entry then stayed
+        # as computed, 707 operations, too long to display)
+        row = [simplify_checked(bounded(lambda c=c: sp.simplify(c), c, seconds=40.0), values) for c in coefficients]
         return sp.Matrix([[1, 0], row])
 
     @cached_property

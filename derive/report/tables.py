@@ -489,4 +489,11 @@ def write_two_point_files(out: str, data: dict, title: str, pdf: bool = False) -
 
 
 def write_scattering_files(out: str, data: dict, title: str, pdf: bool = False) -> list[str]:
-    return _write_table_and_figure(out, "spectrum", scattering_table(data), scattering_figure(data, title), pdf)
+    paths = _write_table_and_figure(out, "spectrum", scattering_table(data), scattering_figure(data, title), pdf)
+    if data.get("quasi_bound"):       # the resonances below the mass outside a horizon, one row per resonance
+        table = data["quasi_bound"]
+        columns = [table["omega"], table["error"]["omega"], table["width"], table["error"]["width"], table["resolved"]]
+        path = os.path.join(out, "quasi_bound.csv")
+        write_atomic(path, _csv(["omega", "omega_error", "width", "width_error", "width_resolved"], zip(*columns)))
+        paths.append(path)
+    return paths

@@ -84,3 +84,26 @@ def bound_state_table(problem, l: int, r0: float, tolerance: float):
             "truncated": found.truncated, "ok": found.ok, "message": found.message(),
             "units": "omega of the spec's time coordinate; weight: the level's delta-function coefficient in the "
                      "spectral density at r0 (sum over m of |phi_n(r0)|^2, phi_n Klein-Gordon normalised)"}
+
+
+def resonance_table(problem, l: int):
+    """The lowest quasi-bound resonances of angular label l outside a horizon (frequencies, widths, errors) as
+    plain data, or None where there are none to list (massless, a reflecting AdS boundary, a cosmological
+    horizon; derive.solve.resonances)."""
+    from derive.solve.bound import is_ads
+    from derive.solve.centre import continuum_threshold, has_coulomb_tail
+    from derive.solve.cosmological import has_cosmological_horizon
+    from derive.solve.resonances import LEVELS, quasi_bound
+
+    if (problem.regions[0].lower_kind != "horizon" or is_ads(problem) or has_cosmological_horizon(problem)
+            or continuum_threshold(problem) == 0.0 or not has_coulomb_tail(problem)):
+        return None
+    found = quasi_bound(problem, l, LEVELS)
+    floats = lambda values: list(map(float, values))
+    return {"l": l, "omega": floats(found.omega), "width": floats(found.width),
+            "error": {"omega": floats(found.omega_error), "width": floats(found.width_error)},
+            "resolved": [bool(v) for v in found.resolved()], "truncated": found.truncated,
+            "units": "omega of the spec's time coordinate; the resonance is the complex frequency omega - i width/2 "
+                     "(width: the decay rate of the mode's energy); a width not resolved is bounded by its error; "
+                     "resonances wider than about a sixth of the level spacing merge into a smooth density and are "
+                     "not listed"}

@@ -276,6 +276,9 @@ class March:
     phase_in: np.ndarray | None = None
     log_up: np.ndarray | None = None
     phase_up: np.ndarray | None = None
+    # below the mass, per probe r_k: A/u_dec(r_k), A from u_dec -> A e^{+i omega r*} + conj(A) e^{-i omega r*} at
+    # the horizon; analytic in omega, independent of u_dec's normalisation (derive.solve.resonances)
+    amplitude: np.ndarray | None = None
 
 
 
@@ -371,6 +374,10 @@ def _evanescent(omegas, s0, s1, state, log_scale, total_det, probe_u, outer, out
     # u_up = u_dec / A: u_dec is real, so its phase is that of 1/A (W's phase, the interfaces' determinants are
     # real); the phase is common to every probe and cancels in u_up(r1) conj(u_up(r2)), only signs remain
     u_dec = [o[:, 1, 1] * s0 - o[:, 0, 1] * s1 for o in outer]
+    # A = W/(2 i omega) over u_dec at each probe: the normalisation of u_dec far away (which varies like
+    # e^{int kappa dr*}, steeply in omega) cancels
+    result.amplitude = np.array([wronskian / (2j * omegas * total_det) * d / u * np.exp(log_scale - lg)
+                                 for u, lg, d in zip(u_dec, outer_log, outer_det)])
     result.log_in = np.full((len(probe_u), n), -np.inf)
     result.phase_in = np.zeros((len(probe_u), n))
     result.log_up = np.array([np.log(np.abs(u)) + lg - np.log(np.abs(d)) - log_A
