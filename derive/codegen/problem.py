@@ -76,7 +76,7 @@ def numeric_problem(kernel_set) -> NumericProblem:
             _bind(kernel_set.get("metric_f", name).kernel, values),
             *(series.get(name, (None, None))), centre.get(name), *(outer.get(name, (None, None))),
             {c: verified(f"boundary_series_{c}", name) for c in ("dirichlet", "neumann")}
-            if ends["upper"].get("tail") == "AdS-like" else None)
+            if ends["upper"].get("tail") == "AdS-like" else None, _lapse(region, st.parameter_values))
     order = sorted(regions.values(), key=lambda reg: reg.lower)
     if st.field.boundary != "dirichlet" and order[-1].tail != "AdS-like":
         raise InputError(f"boundary = {st.field.boundary!r} is a condition at an AdS boundary, and this spacetime "
@@ -93,6 +93,15 @@ def numeric_problem(kernel_set) -> NumericProblem:
     mass = float(st.field.mass.subs(st.parameter_values))
     return NumericProblem(st.title, tuple(order), tuple(interfaces), mass, kernel_set._length_scale(),
                           len(st.coordinates), st.field.boundary)
+
+
+def _lapse(region, values) -> float | None:
+    """The constant lapse of a flat region as a number (derive.fields.radial.RegionField.flat_lapse), or None."""
+    lapse = region.flat_lapse
+    if lapse is None:
+        return None
+    number = complex(lapse.subs(values).evalf(30))
+    return number.real if number.imag == 0 and number.real > 0 else None
 
 
 def _inverse(transfer):

@@ -216,6 +216,15 @@ class RegionField:
         return positive_root(sp.cancel(self.f * self.h), self.r, self.region, self.values)
 
     @cached_property
+    def flat_lapse(self):
+        """alpha when the region is flat space with a constant lapse, -alpha^2 dt^2 + dr^2 + r^2 dOmega^2 (its radial
+        equation is then Bessel's, solved in closed form by derive.solve.flat), as an expression in the
+        parameters; else None."""
+        if sp.cancel(self.h - 1) != 0 or sp.cancel(sp.diff(self.f, self.r)) != 0:
+            return None
+        return sp.sqrt(self.f)
+
+    @cached_property
     def ricci_scalar(self):
         return sp.cancel(self.spacetime.geometry[self.name].ricci_scalar.subs(self.solved))
 

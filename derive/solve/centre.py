@@ -225,7 +225,11 @@ def _run(problem, omegas, steps):
     if problem.dimension != 4:
         # u = r^s (1 + a_1 r + a_2 r^2), s = (D-2)/2: psi = r^-s u -> 1 at the centre; start on the series
         start = min(1e-4 * problem.length_scale, 1e-4 / float(np.max(omegas)))
-    state, log_scale = centre_start(problem, 0, omegas, start)
+    from derive.solve.flat import closed_form_interior, start_outside
+
+    # a flat first region is crossed in closed form (derive.solve.flat): the march starts beyond its interface
+    closed = start_outside(problem, 0, omegas) if closed_form_interior(problem) else None
+    state, log_scale = closed if closed is not None else centre_start(problem, 0, omegas, start)
     if start > 0:
         a0 = np.broadcast_to(np.asarray(problem.regions[0].centre_series(0, omegas), dtype=float)[1], omegas.shape)
         state = state / a0[:, None]
@@ -243,6 +247,8 @@ def _run(problem, omegas, steps):
     pieces = []
     for index, region in enumerate(problem.regions):
         lower = max(region.lower, start)
+        if index == 0 and closed is not None:
+            continue
         if cosmological and region is problem.regions[-1]:
             pieces.append(Piece(index, lower, r_m, steps))
         elif region.upper is None:

@@ -37,6 +37,7 @@ import numpy as np
 from derive.solve.centre import (FAR, DensityResult, Unsupported, check_supported, continuum_threshold,
                                  coulomb_far_radius, far_amplitude2, harmonic_weight, merge, tortoise_distance)
 from derive.solve.cosmological import flux_at_horizon, has_cosmological_horizon, matching_radius
+from derive.solve.flat import closed_form_interior, regular_solution, start_outside
 from derive.solve.march import Piece, centre_start, march
 from derive.solve.propagation import first_spans, outer_pieces
 from derive.solve.summation import l_sum, on_both_cores, refine
@@ -138,10 +139,19 @@ def _log_u_at(problem, l, omegas, radii, steps, series, fixed):
     (lowest, highest) frequency of the whole set: the grid is the same for every subset."""
     multiple = max(1, steps // 16)
     pieces, at, r_s, far = _pieces(problem, l, radii, 16, *fixed)
-    state, log_scale = centre_start(problem, l, omegas, r_s, series)
-    marched = march(problem, l, omegas, pieces, state, log_scale, marks=at, multiple=multiple)
-    log_u = np.array([np.log(np.abs(u[:, 0])) + lg for u, lg in marched.marks])
-    sign = np.array([np.sign(u[:, 0]) for u, _ in marched.marks])
+    closed = _closed_interior(problem, l, omegas, radii, series)
+    if closed is None:
+        state, log_scale = centre_start(problem, l, omegas, r_s, series)
+        marched = march(problem, l, omegas, pieces, state, log_scale, marks=at, multiple=multiple)
+        recorded = marched.marks
+    else:    # the flat first region in closed form: radii inside it exact, the march from its interface on
+        (state, log_scale), inside = closed
+        skip = sum(1 for piece in pieces if piece.region == 0)
+        outside = [k - skip for k, r in zip(at, radii) if r >= problem.regions[0].upper]
+        marched = march(problem, l, omegas, pieces[skip:], state, log_scale, marks=outside, multiple=multiple)
+        recorded = inside + list(marched.marks)
+    log_u = np.array([np.log(np.abs(u[:, 0])) + lg for u, lg in recorded])
+    sign = np.array([np.sign(u[:, 0]) for u, _ in recorded])
     state, log_scale = marched.state, marched.log_scale
     last = problem.regions[-1]
     if has_cosmological_horizon(problem):
@@ -150,6 +160,19 @@ def _log_u_at(problem, l, omegas, radii, steps, series, fixed):
     # the flux a^2 k through the corrected Liouville-Green split at the far radius (centre.py)
     log_amplitude = 0.5 * np.log(far_amplitude2(last, state, omegas, far, l)) + log_scale
     return log_u - log_amplitude, sign, log_amplitude
+
+
+def _closed_interior(problem, l, omegas, radii, series):
+    """With a flat first region (derive.solve.flat): ((state, log scale) just beyond its interface, [(state, log
+    scale) at each radius of ``radii`` inside it]); else None."""
+    if not closed_form_interior(problem):
+        return None
+    inner = [r for r in radii if r < problem.regions[0].upper]
+    start = start_outside(problem, l, omegas, series)
+    values = regular_solution(problem, l, omegas, inner, series) if inner else ([], [])
+    if start is None or values is None:
+        return None
+    return start, list(zip(*values))
 
 
 def _centre_log_u(problem, omegas, series):

@@ -36,6 +36,8 @@ class NumericRegion:
     outer_surface_gravity: float | None = None
     boundary_series: dict | None = None       # at an AdS boundary: {"dirichlet" | "neumann": (l, omega) ->
                                               # [exponent, a_0, a_1, ...]}, u = z^s sum a_k z^k in z = 1/r
+    flat_lapse: float | None = None           # alpha of a flat region -alpha^2 dt^2 + dr^2 + r^2 dOmega^2 (its
+                                              # radial equation is Bessel's: derive.solve.flat), else None
 
 
 @dataclass(frozen=True)
