@@ -220,8 +220,8 @@ class RegionField:
         """alpha when the region is flat space with a constant lapse, -alpha^2 dt^2 + dr^2 + r^2 dOmega^2 (its radial
         equation is then Bessel's, solved in closed form by derive.solve.flat), as an expression in the
         parameters; else None."""
-        if sp.cancel(self.h - 1) != 0 or sp.cancel(sp.diff(self.f, self.r)) != 0:
-            return None
+        if self.form.k != 1 or sp.cancel(self.h - 1) != 0 or sp.cancel(sp.diff(self.f, self.r)) != 0:
+            return None     # (r^2 times flat or hyperbolic n-space is not flat space)
         return sp.sqrt(self.f)
 
     @cached_property
