@@ -344,7 +344,8 @@ def test_spacelike_switchings_carry_no_commutator(tmp_path, capsys):
 @pytest.mark.slow
 def test_two_detectors_off_the_centre_through_the_mode_sums(tmp_path, capsys):
     # Both detectors off the centre, a third of a turn apart (d = sqrt(3)/2), with different gaps, widths and peak
-    # times: derive's l-sums of the two-point function against the flat references above, to 1e-10.
+    # times: derive's l-sums of the two-point function against the flat references above, to 1e-9 (asked for 1e-8;
+    # measured 2e-10 off: at 1e-9 the run took half as long again for the same check).
     path = spec_file(str(tmp_path), """
 [[detectors]]
 name = "A"
@@ -357,13 +358,13 @@ at = "r = 1/2, theta = pi/2, phi = 2*pi/3"
 gap = 2.0
 switching = { shape = "gaussian", width = "0.7" }
 """)
-    assert main(["correlations", path, "--json", "--tolerance", "1e-9"]) == 0
+    assert main(["correlations", path, "--json", "--tolerance", "1e-8"]) == 0
     (pair,) = json.loads(capsys.readouterr().out)["pairs"]
     d = np.sqrt(3) / 2
     L = 0.01 * l_reference(d, 0.5, 0.7, 1.0, 2.0, 0.2)
     M = 0.01 * m_reference(d, 0.5, 0.7, 1.0, 2.0, 0.2)
-    assert complex(*pair["L"]) == pytest.approx(L, rel=1e-10)
-    assert complex(*pair["M"]) == pytest.approx(M, rel=1e-10)
+    assert complex(*pair["L"]) == pytest.approx(L, rel=1e-9)
+    assert complex(*pair["M"]) == pytest.approx(M, rel=1e-9)
     assert pair["signalling"]["light_time"] == pytest.approx(d, rel=1e-6)
 
 
