@@ -266,10 +266,11 @@ def two_point(spacetime, omega, between, tolerance: float | None = None, progres
     return TwoPoint(data, spacetime, result.ok, result.message(), tolerance)
 
 
-def _two_point_parts(problem, omegas, r1, r2, c, tolerance, progress=None):
+def _two_point_parts(problem, omegas, r1, r2, c, tolerance, progress=None, continuum_only=False):
     """The engine's two-point function between radii r1 and r2 an angle arccos(c) apart: (the result, {state:
     (S_+, its error, S_-, its error)} for the states beyond the default one, the default state's name, extra JSON
-    keys).  The one place that chooses between the regular-centre and the horizon computations."""
+    keys).  The one place that chooses between the regular-centre and the horizon computations.  Where bound
+    levels exist it refuses unless ``continuum_only`` (the caller adds the levels itself)."""
     from derive.solve.bound import is_ads
     from derive.solve.centre import Unsupported, bound_states_possible
 
@@ -286,9 +287,9 @@ def _two_point_parts(problem, omegas, r1, r2, c, tolerance, progress=None):
         for name in result.states:
             states[name] = result.state(name)
         return result, states, "boulware", extra
-    if problem.regions[0].lower_kind == "regular centre" and bound_states_possible(problem):
+    if problem.regions[0].lower_kind == "regular centre" and bound_states_possible(problem) and not continuum_only:
         raise Unsupported("the bound states' part of the two-point function is not built (the spectral "
-                          "density lists them: derive spectrum)")
+                          "density lists them: derive spectrum; derive correlations adds them to the pairs)")
     from derive.solve.offcentre import two_point as regular_two_point
 
     result = regular_two_point(problem, omegas, r1, r2, c, tolerance, progress=progress)
@@ -531,8 +532,9 @@ def _array_probes(spacetime, problem):
     return probes, points, numbers
 
 
-def _spectrum_between(problem, first, second, state, tolerance, progress=None):
-    """spectrum(omegas) -> (S_+, its error, S_-, its error) between two positions in the named state."""
+def _spectrum_between(problem, first, second, state, tolerance, progress=None, continuum_only=False):
+    """spectrum(omegas) -> (S_+, its error, S_-, its error) between two positions in the named state (with
+    ``continuum_only``, the continuum's part where bound levels exist too)."""
     from derive.solve.centre import Unsupported
     from derive.spec.positions import cos_angle
 
@@ -540,7 +542,7 @@ def _spectrum_between(problem, first, second, state, tolerance, progress=None):
 
     def spectrum(omegas):
         result, states, default, _ = _two_point_parts(problem, omegas, first.radius, second.radius, c, tolerance,
-                                                      progress)
+                                                      progress, continuum_only)
         if state in states:
             return states[state]
         if state != default and not (default == "vacuum" and state == "boulware"):
@@ -593,16 +595,33 @@ def correlations(spacetime, tolerance: float | None = None, progress=None, refer
 
     probes, points, numbers = _array_probes(spacetime, problem)
 
-    def spectrum_between(i, j):
-        return _spectrum_between(problem, points[i], points[j], state, tolerance, progress)
-
-    from derive.detector.correlations import frequency_reach, pair_terms_discrete
+    from derive.detector.correlations import combined, frequency_reach, pair_levels, pair_terms_discrete
     from derive.solve.bound import is_ads, normal_modes_below
+    from derive.solve.centre import bound_states_possible
 
     normal_modes = is_ads(problem) and problem.regions[0].lower_kind != "horizon"
+    # bound levels around a body (a massive field): the continuum's pair integrals plus the levels' sums
+    levels = (not normal_modes and problem.regions[0].lower_kind == "regular centre"
+              and bound_states_possible(problem))
 
-    detectors, shortfalls = {}, []
+    def spectrum_between(i, j):
+        return _spectrum_between(problem, points[i], points[j], state, tolerance, progress, continuum_only=levels)
+
+    # with a regular centre a massive field's continuum begins at its threshold (nothing below it but the levels):
+    # the frequency panels start there, at the jump (a panel across it had left 2% in a pair's L)
+    from derive.solve.centre import continuum_threshold
+
+    start = continuum_threshold(problem) if problem.regions[0].lower_kind == "regular centre" else 0.0
+
+    detectors, shortfalls, lights = {}, [], {}
     try:
+        for i in range(len(probes)):
+            for j in range(i + 1, len(probes)):
+                lights[i, j] = light_time(problem, points[i], points[j])
+                if lights[i, j][0] == 0.0:
+                    raise InputError(f"detectors {probes[i].name!r} and {probes[j].name!r} are at the same point: "
+                                     "a pair needs two places (one detector's response is derive response)",
+                                     file=spacetime.path, key=f"detectors[{j}].at")
         for i, probe in enumerate(probes):
             # L_ii is the single detector's response, through the same code as derive response
             value, error = _single_probability(spacetime, problem, probe, numbers[i], state, tolerance, progress,
@@ -623,18 +642,29 @@ def correlations(spacetime, tolerance: float | None = None, progress=None, refer
         for i in range(len(probes)):
             for j in range(i + 1, len(probes)):
                 A, B = probes[i], probes[j]
-                light, light_error = light_time(problem, points[i], points[j])
+                light, light_error = lights[i, j]
                 if normal_modes:   # a discrete spectrum: the integrals are sums over the modes
                     modes = normal_modes_below(problem, frequency_reach(A, B, light), tolerance, A.radius,
                                                B.radius, cos_angle(points[i], points[j]), progress)
                     terms = pair_terms_discrete(A, B, modes, light, problem.dimension)
                 else:
-                    terms = pair_terms(A, B, spectrum_between(i, j), light, tolerance, problem.dimension)
+                    terms = pair_terms(A, B, spectrum_between(i, j), light, tolerance, problem.dimension,
+                                       start=start)
                 L_AA, L_BB = (detectors[p.name]["probability"] for p in (A, B))
                 e_AA, e_BB = (detectors[p.name]["error"] for p in (A, B))
                 lam2 = coupling ** 2
+                share = None
+                if levels:
+                    share, report = pair_levels(problem, A, B, cos_angle(points[i], points[j]), light, tolerance,
+                                                np.sqrt(L_AA * L_BB) / lam2)
+                    terms = combined(terms, share)
                 reach = A.half_duration + B.half_duration + abs(A.centre - B.centre)
                 pair = pair_record(A, B, terms, L_AA, L_BB, e_AA, e_BB, lam2)
+                if share is not None:   # the levels' part of L and M (in them already), as derive response reports
+                    pair["bound_levels"] = {"found": report["found"], "l_max": report["l_max"],
+                                            "L": [lam2 * share.L.real, lam2 * share.L.imag],
+                                            "M": [lam2 * share.M.real, lam2 * share.M.imag],
+                                            "error": {"L": lam2 * share.L_error, "M": lam2 * share.M_error}}
                 pair["signalling"] = {"light_time": light, "light_time_error": light_error,
                                       "overlap": bool(reach >= light),
                                       "commutator_part": [lam2 * terms.commutator.real,

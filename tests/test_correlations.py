@@ -422,3 +422,10 @@ def test_an_array_outside_a_black_hole_decomposes_into_multipoles(tmp_path, caps
     legendre = np.polynomial.legendre.legval(0.0, np.diag(np.ones(len(weights)))) @ weights
     assert legendre == pytest.approx(pair["L"][0], rel=1e-6)
     assert np.all(weights[:4] > 0)       # each l-term of a density is positive
+
+
+def test_two_detectors_at_the_same_point_are_refused(tmp_path, capsys):
+    # Bad input, not an internal error (it had divided by the zero light time): exit 2 naming the key.
+    path = spec_file(str(tmp_path), detectors_toml(("A", "r = 0", 1.0, GAUSSIAN), ("B", "r = 0", 2.0, GAUSSIAN)))
+    assert main(["correlations", path]) == 2
+    assert "detectors[1].at" in capsys.readouterr().err

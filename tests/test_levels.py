@@ -111,3 +111,55 @@ def test_response_off_the_centre_sums_the_levels_of_every_l(tmp_path, capsys):
     assert max(share["l"]) >= 2 and min(share["l"]) == 0
     assert all(0 < s < f for s, f in zip(share["share"], data["response"]))
     assert data["at"] == 0.5 and np.all(np.array(data["error"]) <= 1e-8 * np.array(data["response"]))
+
+
+@pytest.mark.slow
+def test_levels_between_two_points_meet_the_continuum_at_the_threshold(levels):
+    """The pair correlations' levels: the weights between the centre and R/2 (signed, u_n(0) u_n(R/2)) follow the
+    same series, and the density they make at the threshold, s(inf) a mu, equals the continuum's two-point
+    function between the same points just above the mass (the spectral function is continuous across a Coulomb
+    threshold between any two points: Seaton 1983, from memory)."""
+    from derive.solve.offcentre import two_point
+
+    problem, _ = levels
+    mu = continuum_threshold(problem)
+    states = bound_states(problem, 0, 0.0, 1e-9, count=12, r1=0.5)
+    model = LevelModel.fitted(states, mu, coulomb_strength(problem) / 2, 4)
+    above = two_point(problem, mu * np.array([1 + 2e-4, 1 + 4e-4]), 0.0, 0.5, 1.0, 1e-10)
+    at_threshold = 2 * above.value[0] - above.value[1]
+    assert model.strength[0] * model.spacing * mu == pytest.approx(at_threshold, rel=1e-4)
+
+
+def test_two_detectors_with_bound_levels(tmp_path, capsys):
+    """derive correlations for a massive field around the shell (A at the centre, B at R/2): the levels enter L_AB
+    and M (JSON bound_levels per pair: l = 0 only, a detector being at the centre), the pair obeys
+    |L_AB|^2 <= L_AA L_BB (the state's positivity at second order; common practice), and L_AB at 1e-6 agrees with
+    derive's own value at 1e-8 (a regression: 6.162633110994954e-4, this session's run)."""
+    text = open(massive_shell(str(tmp_path))).read()
+    text = text[:text.index("[detector]")] + """[detector]
+state = "vacuum"
+coupling = 0.1
+
+[[detectors]]
+name = "A"
+at = "r = 0"
+gap = -0.5
+switching = { shape = "gaussian", width = "1" }
+
+[[detectors]]
+name = "B"
+at = "r = R/2"
+gap = -0.5
+switching = { shape = "gaussian", width = "1" }
+"""
+    path = tmp_path / "pair.toml"
+    path.write_text(text)
+    assert main(["correlations", str(path), "--json", "--tolerance", "1e-6"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    (pair,) = data["pairs"]
+    levels = pair["bound_levels"]
+    assert levels["found"] >= 8 and levels["l_max"] == 0 and levels["L"][0] != 0
+    L_AA, L_BB = (data["detectors"][name]["probability"] for name in "AB")
+    assert abs(complex(*pair["L"])) ** 2 <= L_AA * L_BB
+    assert pair["L"][0] == pytest.approx(6.162633110994954e-4, rel=1e-7)
+    assert pair["error"]["L"] <= 1e-6 * np.sqrt(L_AA * L_BB)

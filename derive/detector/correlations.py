@@ -231,24 +231,24 @@ def frequency_reach(A: Probe, B: Probe, light_time: float | None) -> float:
     return top
 
 
-def _rule(top: float, panels: int):
+def _rule(top: float, panels: int, start: float = 0.0):
     x, w = np.polynomial.legendre.leggauss(NODES)
-    edges = np.linspace(0.0, top, panels + 1)
+    edges = np.linspace(start, top, panels + 1)
     half = np.diff(edges) / 2
     nodes = (edges[:-1, None] + half[:, None] * (1 + x[None, :])).ravel()
     weights = (half[:, None] * w[None, :]).ravel()
     return nodes, weights
 
 
-def _integrals(spectrum, integrands, top, tolerance):
+def _integrals(spectrum, integrands, top, tolerance, start=0.0):
     """Each integrand(omega, S_+, S_-) -> (values, |factor of S_+|, |factor of S_-|[, absolute error of values])
-    integrated over [0, top] on doubled panel rules until two successive ones agree (to the tolerance, or within
-    the spectral errors carried through); returns (value, error, scale) each.  ``spectrum(omegas)`` -> (S_+, e_+,
-    S_-, e_-)."""
+    integrated over [start, top] on doubled panel rules until two successive ones agree (to the tolerance, or
+    within the spectral errors carried through); returns (value, error, scale) each.  ``spectrum(omegas)`` -> (S_+,
+    e_+, S_-, e_-); ``start`` is where it begins (a massive field's continuum at its threshold, where it jumps)."""
     previous = None
     panels = FIRST_PANELS
     while True:
-        nodes, weights = _rule(top, panels)
+        nodes, weights = _rule(top, panels, start)
         s_plus, e_plus, s_minus, e_minus = spectrum(nodes)
         results = []
         for integrand in integrands:
@@ -351,16 +351,17 @@ def _pair_result(parts, tail) -> PairResult:
 
 
 def pair_terms(A: Probe, B: Probe, spectrum, light_time: float | None, tolerance: float, dimension: int = 4,
-               time_ordered: bool = True) -> PairResult:
+               time_ordered: bool = True, start: float = 0.0) -> PairResult:
     """L_AB and M (each per lambda^2) between two detectors, with errors; ``spectrum(omegas)`` gives
     (S_+, e_+, S_-, e_-) between A's point and B's in the state.  Gaussian switchings use the closed-form kernels
     of M, others ``TimeOrdered``; the part of the frequency integrals beyond the reach of an algebraically decaying
     switching is bounded by Cauchy-Schwarz in the (positive) spectral measure, sqrt(tail_A tail_B) with each
     single detector's tail bound, and added to the errors (for E, whose large-frequency part comes from the same
     breakpoints of K where the smoothed sign is at most 1, the same bound is taken as an estimate).  Without
-    ``time_ordered`` only L_AB (M and its parts zero; no light time needed)."""
+    ``time_ordered`` only L_AB (M and its parts zero; no light time needed).  ``start``: the spectrum is zero
+    below it (a massive field's continuum threshold with a regular centre: panels start there, at the jump)."""
     integrands, top, tail = _pair_integrands(A, B, light_time, dimension, time_ordered)
-    return _pair_result(_integrals(spectrum, integrands, top, tolerance), tail)
+    return _pair_result(_integrals(spectrum, integrands, max(top, 2 * start), tolerance, start), tail)
 
 
 def pair_terms_discrete(A: Probe, B: Probe, modes, light_time: float, dimension: int = 4) -> PairResult:
@@ -370,29 +371,80 @@ def pair_terms_discrete(A: Probe, B: Probe, modes, light_time: float, dimension:
     frequency error through a central difference of its term, the integrands' own errors, and ten times the
     first mode left out of every l (as for one detector)."""
     integrands, _, tail = _pair_integrands(A, B, light_time, dimension)
+    terms, errors, scales = mode_pair_terms(integrands, modes)
+    beyond_omega = np.array([w for w, _ in modes.beyond], dtype=float)
+    beyond_weight = np.array([v for _, v in modes.beyond], dtype=float).astype(complex)
+    parts = []
+    for integrand, term, error, scale in zip(integrands, terms, errors, scales):
+        error = float(np.sum(error))
+        if len(beyond_omega):
+            error += 10 * np.sum(np.abs(integrand(beyond_omega, beyond_weight, np.zeros(len(beyond_omega)))[0]))
+        scale = float(np.sum(scale))
+        parts.append((complex(np.sum(term)), error + 64 * np.finfo(float).eps * scale, scale))
+    return _pair_result(parts, tail)
+
+
+def mode_pair_terms(integrands, modes):
+    """Each mode's terms of the pair integrals (one row per integrand: L_AB, M's anticommutator and commutator
+    parts), their errors (the weight's error through the factor, the frequency's error through a central
+    difference of the term, the integrand's own) and sizes (|factor| |weight|): three arrays (integrands, modes)."""
     omegas = np.asarray(modes.omega, dtype=float)
     weights = np.asarray(modes.weight, dtype=float).astype(complex)
     zero = np.zeros(len(omegas), dtype=complex)
-    beyond_omega = np.array([w for w, _ in modes.beyond], dtype=float)
-    beyond_weight = np.array([v for _, v in modes.beyond], dtype=float).astype(complex)
     step = 1e-6 * max(float(np.max(omegas)) if len(omegas) else 1.0, 1.0)
-    parts = []
+    terms, errors, scales = [], [], []
     for integrand in integrands:
-        if len(omegas):
-            values, plus, minus, own = integrand(omegas, weights, zero)
-            up = integrand(omegas + step, weights, zero)[0]
-            down = integrand(omegas - step, weights, zero)[0]
-            value = np.sum(values)
-            error = (np.sum(np.abs(plus) * modes.weight_error) + np.sum(own)
-                     + np.sum(np.abs(up - down) / (2 * step) * modes.omega_error))
-            scale = np.sum(np.abs(plus) * np.abs(weights))
-        else:
-            value, error, scale = 0j, 0.0, 0.0
-        if len(beyond_omega):
-            error += 10 * np.sum(np.abs(integrand(beyond_omega, beyond_weight, np.zeros(len(beyond_omega)))[0]))
-        error += 64 * np.finfo(float).eps * scale
-        parts.append((value, float(error), float(scale)))
-    return _pair_result(parts, tail)
+        if not len(omegas):
+            terms.append(zero), errors.append(np.zeros(0)), scales.append(np.zeros(0))
+            continue
+        values, plus, minus, own = integrand(omegas, weights, zero)
+        up = integrand(omegas + step, weights, zero)[0]
+        down = integrand(omegas - step, weights, zero)[0]
+        terms.append(values)
+        errors.append(np.abs(plus) * modes.weight_error + own + np.abs(up - down) / (2 * step) * modes.omega_error)
+        scales.append(np.abs(plus) * np.abs(weights))
+    return np.array(terms), np.array(errors), np.array(scales)
+
+
+def pair_levels(problem, A: Probe, B: Probe, cos_gamma: float, light_time: float, tolerance: float,
+                scale: float) -> tuple[PairResult, dict]:
+    """The bound levels' share of L_AB and M (per lambda^2) around a body (derive.solve.levels): for each l the
+    lowest levels weighed between the two points (times G_l(cos gamma)) and the rest from their hydrogen-like
+    series, l = 0, 1, ... until two in a row add below 1e-2 of the tolerance of ``scale`` (sqrt(L_AA L_BB));
+    l = 0 only when a detector sits at the centre.  Returns the share and a summary (levels found, l reached)."""
+    from derive.solve.levels import level_sum, sum_over_l
+    from derive.solve.offcentre import angular_factor
+
+    integrands, _, _ = _pair_integrands(A, B, light_time, problem.dimension)
+
+    def power(omega):
+        omega = np.asarray(omega, dtype=float)
+        ones, zero = np.ones(len(omega), dtype=complex), np.zeros(len(omega), dtype=complex)
+        return np.array([integrand(omega, ones, zero)[0] for integrand in integrands])
+
+    def terms_of(modes):
+        terms, errors, _ = mode_pair_terms(integrands, modes)
+        return terms, errors
+
+    scales = np.full(len(integrands), scale)
+    r0, r1 = sorted((A.radius, B.radius))
+
+    def share_of(l):      # an l whose G_l vanishes at this angle adds nothing
+        angular = angular_factor(l, problem.dimension - 2, cos_gamma) if r0 > 0 else 1.0
+        return None if angular == 0.0 else level_sum(problem, power, terms_of, tolerance, scales, l, r0, r1, angular)
+    sums, l = sum_over_l(share_of, scales, tolerance, r0 == 0.0)
+    value = sum(s.value for s in sums)
+    error = sum(s.error for s in sums)
+    parts = [(complex(value[k]), float(error[k]), float(np.abs(value[k]))) for k in range(len(integrands))]
+    return _pair_result(parts, 0.0), {"found": int(sum(len(s.states.omega) for s in sums)), "l_max": l}
+
+
+def combined(first: PairResult, second: PairResult) -> PairResult:
+    """The sum of two parts of a pair's terms (the continuum's and the bound levels'), errors and scales added."""
+    return PairResult(first.L + second.L, first.L_error + second.L_error, first.M + second.M,
+                      first.M_error + second.M_error, first.commutator + second.commutator,
+                      first.commutator_error + second.commutator_error, first.L_scale + second.L_scale,
+                      first.M_scale + second.M_scale)
 
 
 def probability(A: Probe, spectrum, tolerance: float) -> tuple[float, float]:

@@ -271,14 +271,11 @@ def detector_response(problem, detector, tolerance: float = 1e-10, gaps=None, st
     return continuum, switching, sqrt_f0
 
 
-MAX_LEVEL_L = 60
-
-
 def with_levels(problem, continuum, switching, sqrt_f0: float, tolerance: float, shortfalls=None, r0: float = 0.0):
     """The response with the bound levels' share added (derive.solve.levels; off the centre the levels of every
     l), their error in the density's part of the error."""
     from derive.detector.response import Response, normal_mode_terms
-    from derive.solve.levels import level_sum
+    from derive.solve.levels import level_sum, sum_over_l
 
     gaps = continuum.gaps
 
@@ -286,23 +283,15 @@ def with_levels(problem, continuum, switching, sqrt_f0: float, tolerance: float,
         return switching.power(gaps[:, None] + np.asarray(omega)[None, :] / sqrt_f0)
 
     scale = np.abs(continuum.response)
-    sums, l, quiet = [], 0, 0
-    while True:     # at the centre l = 0 only; off it every l until two in a row add below 1e-2 of the tolerance
+
+    def share_of(l):     # at the centre l = 0 only; off it every l until two in a row add below 1e-2 of the tolerance
         levels = level_sum(problem, power, lambda modes: normal_mode_terms(modes, gaps, switching, sqrt_f0)[:2],
                            tolerance, scale, l, r0)
-        sums.append(levels)
         if shortfalls is not None and not levels.states.ok:
             shortfalls.append((levels.states.message(), float(np.max(levels.states.weight_error
                                                                     / levels.states.size))))
-        if r0 == 0.0:
-            break
-        small = np.all(np.abs(levels.value) + levels.error <= 1e-2 * tolerance * scale)
-        quiet = quiet + 1 if small else 0
-        if quiet >= 2:
-            break
-        if l >= MAX_LEVEL_L:
-            raise Unsupported(f"the bound levels' share did not fall below the tolerance by l = {l}")
-        l += 1
+        return levels
+    sums, _ = sum_over_l(share_of, scale, tolerance, r0 == 0.0)
     share, share_error = sum(s.value for s in sums), sum(s.error for s in sums)
     joined = {key: np.concatenate([getattr(s.states, key) for s in sums])
               for key in ("omega", "omega_error", "weight", "weight_error")}

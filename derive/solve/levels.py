@@ -22,7 +22,7 @@ amplitude far away): the spectral density is continuous across a Coulomb thresho
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import mpmath
 import numpy as np
@@ -35,6 +35,7 @@ FIRST_COUNT = 8    # levels found before the model takes over (the model's error
 MOST_COUNT = 20    # found levels at most, where the tail's error needs more
 STEP_COUNT = 4
 EXPLICIT = 4000    # model levels summed one by one beyond the found ones
+MAX_L = 60         # the l at which an off-centre levels' sum that has not fallen below the tolerance gives up
 
 
 @dataclass
@@ -122,9 +123,11 @@ def _tail(model: LevelModel, first: int, power) -> tuple[np.ndarray, np.ndarray]
     return explicit + rest, np.abs(rest) * 10.0 / model.x_of(np.array([first + EXPLICIT], dtype=float))[0]
 
 
-def level_sum(problem, power, terms_of, tolerance: float, scale: np.ndarray, l: int = 0, r0: float = 0.0) -> LevelSum:
+def level_sum(problem, power, terms_of, tolerance: float, scale: np.ndarray, l: int = 0, r0: float = 0.0,
+              r1: float | None = None, angular: float = 1.0) -> LevelSum:
     """The share of the levels of one l at r0 (the centre: l = 0 only) in the response: sum over n of
-    w_n g(omega_n) with its error.
+    w_n g(omega_n) with its error.  With ``r1`` the weights are those between r0 and r1 (signed) times
+    ``angular`` (the harmonics' G_l(cos gamma) between the two points): the levels' share of a pair's integrals.
 
     ``power(omega)`` is g at each gap (rows) for frequencies of t; ``terms_of(modes)`` the found levels' terms and
     their errors (gaps x levels, detector.response.normal_mode_terms); ``scale`` what the tolerance refers to
@@ -135,7 +138,10 @@ def level_sum(problem, power, terms_of, tolerance: float, scale: np.ndarray, l: 
     count = FIRST_COUNT
     best = None
     while True:
-        states = bound_states(problem, l, r0, tolerance, count=count)
+        states = bound_states(problem, l, r0, tolerance, count=count, r1=r1)
+        if angular != 1.0:
+            states = replace(states, weight=angular * states.weight, weight_error=abs(angular) * states.weight_error,
+                             scale=None if states.scale is None else abs(angular) * states.scale)
         modes = ModeList(states.omega, states.omega_error, states.weight, states.weight_error,
                          np.full(len(states.omega), l), ())
         if not np.all(np.isfinite(states.omega)) or not np.all(np.isfinite(states.weight)):
@@ -157,7 +163,7 @@ def level_sum(problem, power, terms_of, tolerance: float, scale: np.ndarray, l: 
         tail, rest_error = _tail(model, first, power)
         other, _ = _tail(rougher, first, power)
         # the fitted levels' own errors, carried into the tail in proportion (the fit is an extrapolation)
-        spread = float(np.max(states.weight_error[-TERMS:] / np.abs(states.weight[-TERMS:])))
+        spread = float(np.max(states.weight_error[-TERMS:] / states.size[-TERMS:]))
         tail_error = np.abs(tail - other) + rest_error + 10 * spread * np.abs(tail)
         result = LevelSum(states, found, found_error, tail, tail_error, model)
         worst = float(np.max(result.error / np.maximum(np.abs(scale), 1e-300)))
@@ -168,3 +174,24 @@ def level_sum(problem, power, terms_of, tolerance: float, scale: np.ndarray, l: 
             return result
         best = (worst, result)
         count += STEP_COUNT
+
+
+def sum_over_l(share_of, scale, tolerance: float, at_centre: bool) -> tuple[list[LevelSum], int]:
+    """The levels' shares of l = 0, 1, 2, ... (``share_of(l)``: a LevelSum, or None for an l that cannot
+    contribute) until two in a row add below 1e-2 of the tolerance of ``scale``; only l = 0 ``at_centre`` (the
+    only l that reaches a point at the centre).  Returns the shares and the last l."""
+    sums, l, quiet = [], 0, 0
+    while True:
+        levels = share_of(l)
+        small = True
+        if levels is not None:
+            sums.append(levels)
+            small = bool(np.all(np.abs(levels.value) + levels.error <= 1e-2 * tolerance * np.abs(scale)))
+        if at_centre:
+            return sums, l
+        quiet = quiet + 1 if small else 0
+        if quiet >= 2:
+            return sums, l
+        if l >= MAX_L:
+            raise Unsupported(f"the bound levels' share did not fall below the tolerance by l = {l}")
+        l += 1
