@@ -345,8 +345,8 @@ def _multipole_parts(problem, r0, state, tolerance):
             raise Unsupported(f"state {state!r} outside a horizon: one of {', '.join(first.states)}")
         hottest = max(t for t in (first.temperature, first.outer_temperature) if t is not None)
         return (lambda omegas, l: exterior_multipole(problem, omegas, r0, l, tolerance).state(state)), True, hottest
-    if bound_states_possible(problem):
-        raise Unsupported("the bound states' part of the multipoles is not built")
+    if bound_states_possible(problem) and problem.dimension != 4:
+        raise Unsupported(f"the bound levels' part of the multipoles is built in 3+1 (here D = {problem.dimension})")
     from derive.solve.offcentre import multipole_density
 
     temperature = cosmological_temperature(problem)
@@ -699,7 +699,8 @@ def correlations(spacetime, tolerance: float | None = None, progress=None, refer
                 weights, errors = _normal_mode_multipoles(problem, probes[0], tolerance, progress)
             else:
                 density, thermal, temperature = _multipole_parts(problem, probes[0].radius, state, tolerance)
-                weights, errors = multipole_weights(problem, probes[0], tolerance, density, thermal, temperature)
+                weights, errors = multipole_weights(problem, probes[0], tolerance, density, thermal, temperature,
+                                                    levels=levels)
         except Unsupported as exc:
             raise _unsupported(spacetime, "compute the array's multipoles", exc, key="detectors") from None
         n = problem.dimension - 2

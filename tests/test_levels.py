@@ -130,31 +130,40 @@ def test_levels_between_two_points_meet_the_continuum_at_the_threshold(levels):
     assert model.strength[0] * model.spacing * mu == pytest.approx(at_threshold, rel=1e-4)
 
 
+def _pair_spec(tmp_path, at_a, at_b) -> str:
+    """The massive shell with two detectors (gap -0.5, Gaussian width 1) at ``at_a`` and ``at_b``."""
+    text = open(massive_shell(str(tmp_path))).read()
+    text = text[:text.index("[detector]")] + '[detector]\nstate = "vacuum"\ncoupling = 0.1\n' + "".join(
+        f'\n[[detectors]]\nname = "{name}"\nat = "{at}"\ngap = -0.5\nswitching = {{ shape = "gaussian", width = "1" }}\n'
+        for name, at in (("A", at_a), ("B", at_b)))
+    path = tmp_path / "pair.toml"
+    path.write_text(text)
+    return str(path)
+
+
+@pytest.mark.slow
+def test_an_array_with_bound_levels_decomposes_into_multipoles(tmp_path, capsys):
+    """Two detectors on the sphere r = R/2 a quarter turn apart: the multipoles w_l (each l's continuum and its
+    levels weighed at R/2, as one detector's response) rebuild the pair's L (its levels weighed between the two
+    points, times P_l(0)) to well within the tolerance, two routes to the same levels; and sum_l w_l = L_AA
+    (P_l(1) = 1, the addition theorem; Abramowitz & Stegun 8.6)."""
+    path = _pair_spec(tmp_path, "r = R/2, theta = pi/2, phi = 0", "r = R/2, theta = pi/2, phi = pi/2")
+    assert main(["correlations", path, "--json", "--tolerance", "1e-5"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    multipoles = data["multipoles"]
+    assert multipoles["largest_mismatch"] < 1e-5
+    assert data["pairs"][0]["bound_levels"]["l_max"] >= 2
+    L_AA = data["detectors"]["A"]["probability"]
+    assert abs(sum(multipoles["weight"]) - L_AA) <= sum(multipoles["error"]) + data["detectors"]["A"]["error"]
+
+
 def test_two_detectors_with_bound_levels(tmp_path, capsys):
     """derive correlations for a massive field around the shell (A at the centre, B at R/2): the levels enter L_AB
     and M (JSON bound_levels per pair: l = 0 only, a detector being at the centre), the pair obeys
     |L_AB|^2 <= L_AA L_BB (the state's positivity at second order; common practice), and L_AB at 1e-6 agrees with
     derive's own value at 1e-8 (a regression: 6.162633110994954e-4, this session's run)."""
-    text = open(massive_shell(str(tmp_path))).read()
-    text = text[:text.index("[detector]")] + """[detector]
-state = "vacuum"
-coupling = 0.1
-
-[[detectors]]
-name = "A"
-at = "r = 0"
-gap = -0.5
-switching = { shape = "gaussian", width = "1" }
-
-[[detectors]]
-name = "B"
-at = "r = R/2"
-gap = -0.5
-switching = { shape = "gaussian", width = "1" }
-"""
-    path = tmp_path / "pair.toml"
-    path.write_text(text)
-    assert main(["correlations", str(path), "--json", "--tolerance", "1e-6"]) == 0
+    path = _pair_spec(tmp_path, "r = 0", "r = R/2")
+    assert main(["correlations", path, "--json", "--tolerance", "1e-6"]) == 0
     data = json.loads(capsys.readouterr().out)
     (pair,) = data["pairs"]
     levels = pair["bound_levels"]

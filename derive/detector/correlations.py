@@ -572,16 +572,19 @@ MAX_MULTIPOLE = 400
 
 
 def multipole_weights(problem, probe: Probe, tolerance: float, density=None, thermal: bool = False,
-                      temperature: float | None = None):
+                      temperature: float | None = None, levels: bool = False):
     """w_l = int dnu S_l(nu) |chi_hat(Omega + nu)|^2 (per lambda^2; nu proper frequency; in a thermal state also
     the part at -nu) for a detector like ``probe`` on the sphere of radius probe.radius, S_l the l-th term of the
     density there: two such detectors an angle gamma apart have L_AB = lambda^2 sum_l w_l G_l(cos gamma) (G_l the
     normalised Gegenbauer polynomial, Legendre's P_l in 3+1).  Summed until three weights in a row fall below the
     tolerance of the running sum.  ``density(omegas, l)`` -> (S_l, error) per unit omega of t, or (S_l, error,
     S_l at -omega, error) with ``thermal`` (``temperature``: the state's, of t); by default the engine's at a
-    regular centre, in the vacuum.  Returns (weights, errors)."""
-    from derive.detector.response import response
-    from derive.solve.centre import continuum_threshold
+    regular centre, in the vacuum.  With ``levels`` each w_l adds the bound levels of that l at the radius
+    (derive.solve.levels; the continuum's first panel then ungraded at the Coulomb threshold, as for one
+    detector).  Returns (weights, errors)."""
+    from derive.detector.response import normal_mode_terms, response
+    from derive.solve.centre import continuum_threshold, has_coulomb_tail
+    from derive.solve.levels import level_sum
 
     if density is None:
         from derive.solve.offcentre import multipole_density
@@ -593,15 +596,26 @@ def multipole_weights(problem, probe: Probe, tolerance: float, density=None, the
     threshold = continuum_threshold(problem) / probe.alpha if problem is not None else 0.0
     dimension = problem.dimension if problem is not None else 4
     local = None if temperature is None else temperature / probe.alpha
+    gaps = np.array([probe.gap])
+
+    def power(omega):
+        return switching.power(gaps[:, None] + np.asarray(omega)[None, :] / probe.alpha)
+
+    def terms_of(modes):
+        return normal_mode_terms(modes, gaps, switching, probe.alpha)[:2]
     weights, errors, quiet = [], [], 0
     for l in range(MAX_MULTIPOLE):
         def density_at(nu, l=l):
             return tuple(probe.alpha * np.asarray(part) for part in density(probe.alpha * np.asarray(nu, dtype=float),
                                                                             l))
-        result = response(np.array([probe.gap]), switching, density_at, thermal, threshold, dimension, tolerance,
-                          local)
+        result = response(gaps, switching, density_at, thermal, threshold, dimension, tolerance, local,
+                          graded=not (levels and has_coulomb_tail(problem)))
         weights.append(float(result.response[0]))
         errors.append(float(result.error[0]))
+        if levels:     # the levels of this l at the sphere's radius, as derive response adds them (study.with_levels)
+            share = level_sum(problem, power, terms_of, tolerance, np.abs(result.response), l, probe.radius)
+            weights[-1] += float(share.value[0])
+            errors[-1] += float(share.error[0])
         quiet = quiet + 1 if abs(weights[-1]) <= tolerance * abs(sum(weights)) else 0
         if quiet >= 3:
             break
