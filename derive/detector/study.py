@@ -109,11 +109,14 @@ def proper_density(problem, tolerance, r0: float = 0.0, state: str = "vacuum", p
         from derive.solve.bound import is_ads
 
         if problem.mass != 0.0 and not is_ads(problem):    # a reflecting AdS boundary: no well, no continuum
-            raise Unsupported("a massive field outside a horizon has quasi-bound resonances below the mass (the "
-                              "Coulomb-like well; widths can be many orders below their frequency), which the "
-                              "frequency quadrature of the response would not resolve, and their share is not "
-                              "built: " + missing_resonances(problem) + ". The response is not computed; derive "
-                              "spectrum lists the resonances of any l and gives the density at any frequency")
+            well = ("the Coulomb-like well of a 3+1 black hole, infinitely many" if has_coulomb_tail(problem)
+                    else "wherever the potential has a well")
+            raise Unsupported("a massive field outside a horizon has quasi-bound resonances below the mass (" + well
+                              + "; widths can be many orders below their frequency), which the frequency "
+                              "quadrature of the response would not resolve, and their share is not built: "
+                              + missing_resonances(problem) + ". The response is not computed; derive spectrum "
+                              "gives the density at any frequency (and lists the resonances of a Coulomb-like "
+                              "well)")
 
         def density_at(nu):
             result = _exterior(problem, sqrt_f0 * np.asarray(nu), r0, tolerance, progress)
@@ -197,7 +200,7 @@ def missing_resonances(problem) -> str:
     try:
         listed = [f"l = {l}: omega = {quasi_bound(problem, l, 3).describe()}" for l in (0, 1)]
     except Exception:       # noqa: BLE001 (the message only; the refusal stands either way)
-        return "the resonances below the mass of every l are missing"
+        return "any resonances below the mass, of every l, are missing (they are listed for a Coulomb-like well only)"
     return "missing are the resonances of every l, the lowest " + "; ".join(listed)
 
 
