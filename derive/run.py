@@ -147,7 +147,7 @@ def _numerics(spacetime, staging, tolerance, summary, timings, progress, l_progr
             write_scattering_files(staging, results[0].to_json(), spacetime.title, pdf=True)
             summary["spectrum"] = {
                 "kind": "transmission", "omega_range": [float(omegas[0]), float(omegas[-1])], "points": count,
-                "by_l": {str(l): {"largest_relative_error": float(np.max(r.error["transmission"] / r.transmission)),
+                "by_l": {str(l): {"largest_relative_error": _largest_relative(r.error["transmission"], r.transmission),
                                   "largest_flux_defect": float(np.max(np.abs(r.flux_defect))), "ok": r.ok}
                          for l, r in results.items() if r is not None}}
             for l, r in results.items():
@@ -234,3 +234,11 @@ def _response(spacetime, staging, tolerance, summary, timings, progress, l_progr
     _stage(summary, timings, progress, "response", "detector response ...",
            lambda: spacetime.response(tolerance=tolerance, progress=l_progress),
            lambda data: write_response_files(staging, data, spacetime.title, pdf=True))
+
+
+def _largest_relative(error, value) -> float:
+    """The largest error/value where the value is nonzero (below a mass nothing is transmitted: |T|^2 = 0
+    exactly, with no error), 0 where none is."""
+    error, value = np.asarray(error, dtype=float), np.asarray(value, dtype=float)
+    nonzero = value != 0
+    return float(np.max(error[nonzero] / np.abs(value[nonzero]))) if np.any(nonzero) else 0.0
