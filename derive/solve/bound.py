@@ -496,7 +496,10 @@ def bound_states(problem, l: int = 0, r0: float = 0.0, tolerance: float = 1e-10,
     while True:
         # each level re-bracketed around its last value (the scan's bracket may sit beside the converged level:
         # the coarse grid's error moved it in)
-        brackets = [(w - (high - low) / 2, w + (high - low) / 2) for w, (low, high) in zip(omegas, brackets)]
+        # (kept below the continuum's threshold: a level within half a bracket of it would be bracketed above it)
+        top = continuum_threshold(problem) if not is_ads(problem) else np.inf
+        brackets = [(w - (high - low) / 2, min(w + (high - low) / 2, (w + top) / 2))
+                    for w, (low, high) in zip(omegas, brackets)]
         finer, _, _ = _levels(problem, l, 2 * steps, count, r0, brackets)
         finer_weights, scale = weighed(finer, 2 * steps)
         omega_error = np.abs(finer - omegas) + 16 * steps * np.finfo(float).eps * finer   # rounding in D's zero
