@@ -532,6 +532,20 @@ def _array_probes(spacetime, problem):
     return probes, points, numbers
 
 
+def _pair_continuum(problem) -> tuple[bool, float]:
+    """(whether bound levels enter a pair's integrals, where the continuum's begins): around a body with a massive
+    field (3+1, a regular centre) the levels are summed apart and the continuum starts at its threshold; None
+    (Minkowski) and horizons: (False, 0)."""
+    if problem is None or problem.regions[0].lower_kind != "regular centre":
+        return False, 0.0
+    from derive.solve.bound import is_ads
+    from derive.solve.centre import bound_states_possible, continuum_threshold
+
+    if is_ads(problem):        # a discrete spectrum: summed over its modes, no continuum
+        return False, 0.0
+    return bound_states_possible(problem), continuum_threshold(problem)
+
+
 def _spectrum_between(problem, first, second, state, tolerance, progress=None, continuum_only=False):
     """spectrum(omegas) -> (S_+, its error, S_-, its error) between two positions in the named state (with
     ``continuum_only``, the continuum's part where bound levels exist too)."""
@@ -597,21 +611,15 @@ def correlations(spacetime, tolerance: float | None = None, progress=None, refer
 
     from derive.detector.correlations import combined, frequency_reach, pair_levels, pair_terms_discrete
     from derive.solve.bound import is_ads, normal_modes_below
-    from derive.solve.centre import bound_states_possible
 
     normal_modes = is_ads(problem) and problem.regions[0].lower_kind != "horizon"
-    # bound levels around a body (a massive field): the continuum's pair integrals plus the levels' sums
-    levels = (not normal_modes and problem.regions[0].lower_kind == "regular centre"
-              and bound_states_possible(problem))
+    # bound levels around a body (a massive field): the continuum's pair integrals plus the levels' sums; with a
+    # regular centre a massive field's continuum begins at its threshold (nothing below it but the levels): the
+    # frequency panels start there, at the jump (a panel across it had left 2% in a pair's L)
+    levels, start = _pair_continuum(problem)
 
     def spectrum_between(i, j):
         return _spectrum_between(problem, points[i], points[j], state, tolerance, progress, continuum_only=levels)
-
-    # with a regular centre a massive field's continuum begins at its threshold (nothing below it but the levels):
-    # the frequency panels start there, at the jump (a panel across it had left 2% in a pair's L)
-    from derive.solve.centre import continuum_threshold
-
-    start = continuum_threshold(problem) if problem.regions[0].lower_kind == "regular centre" else 0.0
 
     detectors, shortfalls, lights = {}, [], {}
     try:
@@ -1012,6 +1020,7 @@ class _PairSide:
         self.base, self.points, self.numbers = probes, points, numbers
         self.state, self.tolerance, self.progress = state, tolerance, progress
         self.singles, self.spectra = {}, {}
+        self.levels, self.start = _pair_continuum(problem)
 
     def probe(self, index: int, radius: float, peak: float):
         """Detector ``index`` at ``radius`` with its switching peaked at ``peak`` (spec's time)."""
@@ -1049,7 +1058,8 @@ class _PairSide:
                 compute = _flat_spectrum(float(np.linalg.norm(first.radius * first.unit_vector()
                                                               - second.radius * second.unit_vector())))
             else:
-                compute = _spectrum_between(self.problem, first, second, self.state, self.tolerance, self.progress)
+                compute = _spectrum_between(self.problem, first, second, self.state, self.tolerance, self.progress,
+                                            continuum_only=self.levels)
             memo = {}
 
             def remembered(w):
@@ -1067,8 +1077,17 @@ class _PairSide:
         A = self.probe(0, self.base[0].radius, self.base[0].centre)
         B = self.probe(1, radius, self.base[0].centre + delay)
         dimension = 4 if self.problem is None else self.problem.dimension
-        terms = pair_terms(A, B, self.spectrum(radius), None, self.tolerance, dimension, time_ordered=False)
+        terms = pair_terms(A, B, self.spectrum(radius), None, self.tolerance, dimension, time_ordered=False,
+                           start=self.start)
         (L_AA, e_AA), (L_BB, e_BB) = self.single(0, self.base[0].radius), self.single(1, radius)
+        if self.levels:      # the bound levels' share of L_AB, as derive correlations adds it
+            from derive.detector.correlations import combined, pair_levels
+            from derive.spec.positions import cos_angle
+
+            share, _ = pair_levels(self.problem, A, B, cos_angle(self.point(0, self.base[0].radius),
+                                                                 self.point(1, radius)), None, self.tolerance,
+                                   np.sqrt(L_AA * L_BB), time_ordered=False)
+            terms = combined(terms, share)
         lam2 = self.lam2      # the state's numbers at the spec's coupling
         return JointState(lam2 * L_AA, lam2 * L_BB, lam2 * terms.L, (lam2 * e_AA, lam2 * e_BB, lam2 * terms.L_error))
 

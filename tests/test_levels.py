@@ -172,3 +172,20 @@ def test_two_detectors_with_bound_levels(tmp_path, capsys):
     assert abs(complex(*pair["L"])) ** 2 <= L_AA * L_BB
     assert pair["L"][0] == pytest.approx(6.162633110994954e-4, rel=1e-7)
     assert pair["error"]["L"] <= 1e-6 * np.sqrt(L_AA * L_BB)
+
+
+@pytest.mark.slow
+def test_the_pair_design_sees_the_same_levels(tmp_path, capsys):
+    """The pair design's L_AB (its own L-only integrals over the continuum and the levels, at the spec's
+    placement: B at R/2, no delay) equals derive correlations' for the same pair, within their errors (derive's
+    two routes; the physics of the levels is checked above)."""
+    from derive.pipeline import _array_probes, _PairSide
+
+    path = _pair_spec(tmp_path, "r = 0", "r = R/2")
+    st = derive.load(path)
+    problem = st.numeric_problem
+    side = _PairSide(st, problem, *_array_probes(st, problem), "vacuum", 1e-6, None, 0.01)
+    joint = side.joint(0.5, 0.0)
+    assert main(["correlations", path, "--json", "--tolerance", "1e-6"]) == 0
+    (pair,) = json.loads(capsys.readouterr().out)["pairs"]
+    assert abs(joint.L_AB - complex(*pair["L"])) <= joint.errors[2] + pair["error"]["L"]

@@ -406,16 +406,17 @@ def mode_pair_terms(integrands, modes):
     return np.array(terms), np.array(errors), np.array(scales)
 
 
-def pair_levels(problem, A: Probe, B: Probe, cos_gamma: float, light_time: float, tolerance: float,
-                scale: float) -> tuple[PairResult, dict]:
+def pair_levels(problem, A: Probe, B: Probe, cos_gamma: float, light_time: float | None, tolerance: float,
+                scale: float, time_ordered: bool = True) -> tuple[PairResult, dict]:
     """The bound levels' share of L_AB and M (per lambda^2) around a body (derive.solve.levels): for each l the
     lowest levels weighed between the two points (times G_l(cos gamma)) and the rest from their hydrogen-like
     series, l = 0, 1, ... until two in a row add below 1e-2 of the tolerance of ``scale`` (sqrt(L_AA L_BB));
-    l = 0 only when a detector sits at the centre.  Returns the share and a summary (levels found, l reached)."""
+    l = 0 only when a detector sits at the centre.  Without ``time_ordered`` only L_AB (as :func:`pair_terms`).
+    Returns the share and a summary (levels found, l reached)."""
     from derive.solve.levels import level_sum, sum_over_l
     from derive.solve.offcentre import angular_factor
 
-    integrands, _, _ = _pair_integrands(A, B, light_time, problem.dimension)
+    integrands, _, _ = _pair_integrands(A, B, light_time, problem.dimension, time_ordered)
 
     def power(omega):
         omega = np.asarray(omega, dtype=float)

@@ -123,6 +123,24 @@ def _tail(model: LevelModel, first: int, power) -> tuple[np.ndarray, np.ndarray]
     return explicit + rest, np.abs(rest) * 10.0 / model.x_of(np.array([first + EXPLICIT], dtype=float))[0]
 
 
+_STATES: dict = {}    # (id(problem), l, r0, r1, tolerance, count) -> (problem, BoundStates): the same levels are
+                      # asked for again at every delay of a pair design and every gap set of a design
+
+
+def _states(problem, l, r0, tolerance, count, r1):
+    """bound_states(problem, l, r0, tolerance, count, r1=r1), kept (checked to belong to the same problem
+    object; the store is emptied past a few hundred entries)."""
+    key = (id(problem), l, r0, r1, tolerance, count)
+    hit = _STATES.get(key)
+    if hit is not None and hit[0] is problem:
+        return hit[1]
+    states = bound_states(problem, l, r0, tolerance, count=count, r1=r1)
+    if len(_STATES) >= 256:
+        _STATES.clear()
+    _STATES[key] = (problem, states)
+    return states
+
+
 def level_sum(problem, power, terms_of, tolerance: float, scale: np.ndarray, l: int = 0, r0: float = 0.0,
               r1: float | None = None, angular: float = 1.0) -> LevelSum:
     """The share of the levels of one l at r0 (the centre: l = 0 only) in the response: sum over n of
@@ -138,7 +156,7 @@ def level_sum(problem, power, terms_of, tolerance: float, scale: np.ndarray, l: 
     count = FIRST_COUNT
     best = None
     while True:
-        states = bound_states(problem, l, r0, tolerance, count=count, r1=r1)
+        states = _states(problem, l, r0, tolerance, count, r1)
         if angular != 1.0:
             states = replace(states, weight=angular * states.weight, weight_error=abs(angular) * states.weight_error,
                              scale=None if states.scale is None else abs(angular) * states.scale)
