@@ -301,6 +301,14 @@ def cmd_two_point(args) -> int:
     title = (f"{spacetime.title}: spectral two-point function ({data['state']}) between {points} "
              f"(cos angle {data['cos_angle']:.10g})\n"
              f"{'omega':>12} {'Re':>22} {'Im':>22} {'error':>10} {'scale':>22}")
+    levels = data.get("bound_states")
+    if levels is not None:    # the discrete part, beside the continuum above
+        rows.append("bound levels (discrete: a weight per level between the two points, times P_l(cos angle)):\n"
+                    f"{'l':>4} {'omega':>22} {'error':>10} {'weight':>22} {'error':>10}")
+        rows += [f"{l:4d} {w:22.15e} {we:10.1e} {d:22.15e} {de:10.1e}" for l, w, we, d, de in
+                 zip(levels["l"], levels["omega"], levels["error"]["omega"], levels["weight"],
+                     levels["error"]["weight"])]
+        rows.append("  (more levels of each l accumulate at the mass: the lowest are listed)")
     return _deliver(args, result, write_two_point_files, title, rows)
 
 

@@ -230,7 +230,9 @@ def two_point(spacetime, omega, between, tolerance: float | None = None, progres
 
     Returns a :class:`~derive.results.TwoPoint`: ``.omega``, ``.wightman`` ({"re", "im"}), ``.error``,
     ``.scale``, ``.cos_angle``, ``.between``; around a horizon also ``.states`` (Boulware, Hartle-Hawking,
-    Unruh: positive and negative frequency parts).
+    Unruh: positive and negative frequency parts); where a massive field has bound levels around a body,
+    ``.bound_states`` (the discrete part, listed apart from the continuum: each l's lowest levels with their
+    weights between the points).
     """
     from derive.results import TwoPoint
     from derive.solve.api import METHOD
@@ -250,9 +252,11 @@ def two_point(spacetime, omega, between, tolerance: float | None = None, progres
     data = {"between": [first.to_json(), second.to_json()], "cos_angle": c, "omega": _floats(omegas),
             "tolerance": tolerance, "method": METHOD, "convention": TWO_POINT_CONVENTION,
             "units": "per unit omega of the spec's time coordinate"}
+    levels, _ = _pair_continuum(problem)
     try:
         result, states, default, extra = _two_point_parts(problem, omegas, first.radius, second.radius, c, tolerance,
-                                                          progress)
+                                                          progress, continuum_only=levels)
+        discrete = _levels_between(problem, first.radius, second.radius, c, tolerance) if levels else None
     except Unsupported as exc:
         raise _unsupported(spacetime, "compute this two-point function", exc, key="between") from None
     data.update(extra)
@@ -263,7 +267,52 @@ def two_point(spacetime, omega, between, tolerance: float | None = None, progres
                           for name, (plus, plus_error, minus, minus_error) in states.items()}
     data.update({"wightman": _complex(result.value), "error": {"wightman": _floats(result.error)},
                  "scale": _floats(result.scale), "l_max": result.l_max})
-    return TwoPoint(data, spacetime, result.ok, result.message(), tolerance)
+    ok, message = result.ok, result.message()
+    if discrete is not None:
+        data["bound_states"] = discrete
+        if not discrete.pop("ok") and ok:
+            ok, message = False, discrete["message"]
+    return TwoPoint(data, spacetime, ok, message, tolerance)
+
+
+def _levels_between(problem, r1: float, r2: float, c: float, tolerance: float) -> dict:
+    """The discrete part of the two-point function between radii r1 and r2 an angle arccos(c) apart, as plain data:
+    the lowest levels of each l with their weights between the points times G_l(cos gamma), l = 0, 1, ... until
+    two l in a row have no weight above the tolerance of l = 0's largest (only l = 0 when a point is the centre)."""
+    from derive.solve.bound import LEVELS, bound_states
+    from derive.solve.centre import Unsupported
+    from derive.solve.levels import MAX_L
+    from derive.solve.offcentre import angular_factor
+
+    low, high = sorted((r1, r2))
+    rows = {key: [] for key in ("l", "omega", "weight", "omega_error", "weight_error")}
+    ok, message, largest, quiet, l, truncated = True, "ok", 0.0, 0, 0, False
+    while True:
+        found = bound_states(problem, l, low, tolerance, count=LEVELS, r1=high)
+        angular = angular_factor(l, problem.dimension - 2, c) if low > 0 else 1.0
+        weight = angular * found.weight
+        truncated = truncated or found.truncated
+        for key, values in (("l", [l] * len(found.omega)), ("omega", found.omega), ("weight", weight),
+                            ("omega_error", found.omega_error), ("weight_error", abs(angular) * found.weight_error)):
+            rows[key] += [int(v) if key == "l" else float(v) for v in values]
+        if ok and not found.ok:
+            ok, message = False, found.message()
+        biggest = float(np.max(np.abs(weight))) if len(weight) else 0.0
+        largest = max(largest, biggest)
+        if low == 0.0:
+            break
+        quiet = quiet + 1 if biggest <= tolerance * largest else 0
+        if quiet >= 2:
+            break
+        if l >= MAX_L:
+            raise Unsupported(f"the levels between the two points did not fall below the tolerance by l = {l}")
+        l += 1
+    return {"l": rows["l"], "omega": rows["omega"], "weight": rows["weight"],
+            "error": {"omega": rows["omega_error"], "weight": rows["weight_error"]}, "truncated": truncated,
+            "ok": ok, "message": message,
+            "units": "omega of the spec's time coordinate; weight: each level's delta-function coefficient in "
+                     "S_+(omega) between the two points (sum over m of phi_n(x1) conj(phi_n(x2)), phi_n Klein-Gordon "
+                     "normalised); the lowest levels of each l are listed, more accumulate at the mass"}
 
 
 def _two_point_parts(problem, omegas, r1, r2, c, tolerance, progress=None, continuum_only=False):
@@ -288,8 +337,7 @@ def _two_point_parts(problem, omegas, r1, r2, c, tolerance, progress=None, conti
             states[name] = result.state(name)
         return result, states, "boulware", extra
     if problem.regions[0].lower_kind == "regular centre" and bound_states_possible(problem) and not continuum_only:
-        raise Unsupported("the bound states' part of the two-point function is not built (the spectral "
-                          "density lists them: derive spectrum; derive correlations adds them to the pairs)")
+        raise Unsupported("the bound states' part of this two-point function is not built")
     from derive.solve.offcentre import two_point as regular_two_point
 
     result = regular_two_point(problem, omegas, r1, r2, c, tolerance, progress=progress)

@@ -189,3 +189,26 @@ def test_the_pair_design_sees_the_same_levels(tmp_path, capsys):
     assert main(["correlations", path, "--json", "--tolerance", "1e-6"]) == 0
     (pair,) = json.loads(capsys.readouterr().out)["pairs"]
     assert abs(joint.L_AB - complex(*pair["L"])) <= joint.errors[2] + pair["error"]["L"]
+
+
+def test_the_two_point_function_lists_its_levels(tmp_path, capsys):
+    """derive two-point around the massive shell: the continuum with the discrete part listed (JSON bound_states:
+    each l's lowest levels, weights between the points times P_l(cos gamma)); at one point twice the l = 0 weights
+    are derive spectrum's at that radius (the same levels by the two commands), and a quarter turn apart the
+    odd l vanish (P_l(0) = 0 for odd l; Abramowitz & Stegun 8.6)."""
+    path = _pair_spec(tmp_path, "r = 0", "r = R/2")
+    out = tmp_path / "out"
+    assert main(["two-point", path, "--omega", "1.5,3", "--between", "r = 1/2", "r = 1/2", "--json",
+                 "--tolerance", "1e-8", "--out", str(out)]) == 0
+    same = json.loads(capsys.readouterr().out)["bound_states"]
+    assert (out / "bound_states.csv").read_text().splitlines()[0] == "l,omega,omega_error,weight,weight_error"
+    assert main(["spectrum", path, "--omega", "1.5", "--at", "0.5", "--l", "0", "--json", "--tolerance", "1e-8"]) == 0
+    levels = json.loads(capsys.readouterr().out)["bound_states"]
+    l0 = [w for l, w in zip(same["l"], same["weight"]) if l == 0]
+    count = min(len(l0), len(levels["weight"]))
+    np.testing.assert_allclose(l0[:count], levels["weight"][:count], rtol=1e-7)
+    assert main(["two-point", path, "--omega", "1.5", "--between", "r = 1/2", "r = 1/2, theta = pi/2", "--json",
+                 "--tolerance", "1e-8"]) == 0
+    turned = json.loads(capsys.readouterr().out)["bound_states"]
+    odd = [abs(w) for l, w in zip(turned["l"], turned["weight"]) if l % 2 == 1]
+    assert odd and max(odd) < 1e-15 * max(abs(w) for w in turned["weight"])

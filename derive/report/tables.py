@@ -485,7 +485,14 @@ def write_response_files(out: str, data: dict, title: str, pdf: bool = False) ->
 
 
 def write_two_point_files(out: str, data: dict, title: str, pdf: bool = False) -> list[str]:
-    return _write_table_and_figure(out, "two_point", two_point_table(data), two_point_figure(data, title), pdf)
+    paths = _write_table_and_figure(out, "two_point", two_point_table(data), two_point_figure(data, title), pdf)
+    if data.get("bound_states"):      # the discrete part between the two points, one row per level
+        levels = data["bound_states"]
+        header, columns = bound_state_table(levels)
+        path = os.path.join(out, "bound_states.csv")
+        write_atomic(path, _csv(["l"] + header, zip(levels["l"], *columns)))
+        paths.append(path)
+    return paths
 
 
 def write_scattering_files(out: str, data: dict, title: str, pdf: bool = False) -> list[str]:
