@@ -108,7 +108,11 @@ def proper_density(problem, tolerance, r0: float = 0.0, state: str = "vacuum", p
                               "'hartle-hawking' or 'unruh'")
         from derive.solve.bound import is_ads
 
-        if problem.mass != 0.0 and not is_ads(problem):    # a reflecting AdS boundary: no well, no continuum
+        from derive.solve.cosmological import has_cosmological_horizon
+
+        # a reflecting AdS boundary has no well and no continuum; between a black hole's and a cosmological
+        # horizon V falls to zero at both ends, so nothing is trapped below the mass: no resonances there either
+        if problem.mass != 0.0 and not is_ads(problem) and not has_cosmological_horizon(problem):
             well = ("the Coulomb-like well of a 3+1 black hole, infinitely many" if has_coulomb_tail(problem)
                     else "wherever the potential has a well")
             raise Unsupported("a massive field outside a horizon has quasi-bound resonances below the mass (" + well
