@@ -79,7 +79,8 @@ def test_normal_modes_and_weights_of_ads(tmp_path, capsys):
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("mass, l", [("0", 0), ("0", 1), ("1.2", 0), ("1.2", 2)])
+# (mass 1.2, l = 0) left out: 30 s of CI for the machinery that (1.2, 2) exercises with the same irrational Delta
+@pytest.mark.parametrize("mass, l", [("0", 0), ("0", 1), ("1.2", 2)])
 def test_normal_modes_for_other_l_and_masses(tmp_path, capsys, mass, l):
     modes = normal_modes(ads_spec(str(tmp_path), mass=mass), l, capsys, at=0.5)
     n = np.arange(len(modes["omega"]))

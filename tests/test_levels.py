@@ -160,8 +160,9 @@ def test_an_array_with_bound_levels_decomposes_into_multipoles(tmp_path, capsys)
 def test_two_detectors_with_bound_levels(tmp_path, capsys):
     """derive correlations for a massive field around the shell (A at the centre, B at R/2): the levels enter L_AB
     and M (JSON bound_levels per pair: l = 0 only, a detector being at the centre), the pair obeys
-    |L_AB|^2 <= L_AA L_BB (the state's positivity at second order; common practice), and L_AB at 1e-6 agrees with
-    derive's own value at 1e-8 (a regression: 6.162633110994954e-4, this session's run)."""
+    |L_AB|^2 <= L_AA L_BB (the state's positivity at second order; common practice), L_AB at 1e-6 agrees with
+    derive's own value at 1e-8 (a regression: 6.162633110994954e-4, this session's run), and the pair design
+    sees the same L_AB."""
     path = _pair_spec(tmp_path, "r = 0", "r = R/2")
     assert main(["correlations", path, "--json", "--tolerance", "1e-6"]) == 0
     data = json.loads(capsys.readouterr().out)
@@ -172,22 +173,13 @@ def test_two_detectors_with_bound_levels(tmp_path, capsys):
     assert abs(complex(*pair["L"])) ** 2 <= L_AA * L_BB
     assert pair["L"][0] == pytest.approx(6.162633110994954e-4, rel=1e-7)
     assert pair["error"]["L"] <= 1e-6 * np.sqrt(L_AA * L_BB)
-
-
-@pytest.mark.slow
-def test_the_pair_design_sees_the_same_levels(tmp_path, capsys):
-    """The pair design's L_AB (its own L-only integrals over the continuum and the levels, at the spec's
-    placement: B at R/2, no delay) equals derive correlations' for the same pair, within their errors (derive's
-    two routes; the physics of the levels is checked above)."""
+    # the pair design's L_AB at this placement (B at R/2, no delay; its own L-only integrals over the continuum
+    # and the levels) equals correlations' within their errors (derive's two routes)
     from derive.pipeline import _array_probes, _PairSide
 
-    path = _pair_spec(tmp_path, "r = 0", "r = R/2")
     st = derive.load(path)
     problem = st.numeric_problem
-    side = _PairSide(st, problem, *_array_probes(st, problem), "vacuum", 1e-6, None, 0.01)
-    joint = side.joint(0.5, 0.0)
-    assert main(["correlations", path, "--json", "--tolerance", "1e-6"]) == 0
-    (pair,) = json.loads(capsys.readouterr().out)["pairs"]
+    joint = _PairSide(st, problem, *_array_probes(st, problem), "vacuum", 1e-6, None, 0.01).joint(0.5, 0.0)
     assert abs(joint.L_AB - complex(*pair["L"])) <= joint.errors[2] + pair["error"]["L"]
 
 
