@@ -148,10 +148,10 @@ def test_an_array_with_bound_levels_decomposes_into_multipoles(tmp_path, capsys)
     points, times P_l(0)) to well within the tolerance, two routes to the same levels; and sum_l w_l = L_AA
     (P_l(1) = 1, the addition theorem; Abramowitz & Stegun 8.6)."""
     path = _pair_spec(tmp_path, "r = R/2, theta = pi/2, phi = 0", "r = R/2, theta = pi/2, phi = pi/2")
-    assert main(["correlations", path, "--json", "--tolerance", "1e-5"]) == 0
+    assert main(["correlations", path, "--json", "--tolerance", "1e-4"]) == 0
     data = json.loads(capsys.readouterr().out)
     multipoles = data["multipoles"]
-    assert multipoles["largest_mismatch"] < 1e-5
+    assert multipoles["largest_mismatch"] < 1e-4       # measured 4e-6 (5e-7 at a tolerance of 1e-5, twice the time)
     assert data["pairs"][0]["bound_levels"]["l_max"] >= 2
     L_AA = data["detectors"]["A"]["probability"]
     assert abs(sum(multipoles["weight"]) - L_AA) <= sum(multipoles["error"]) + data["detectors"]["A"]["error"]
