@@ -280,33 +280,28 @@ def _levels_between(problem, r1: float, r2: float, c: float, tolerance: float) -
     the lowest levels of each l with their weights between the points times G_l(cos gamma), l = 0, 1, ... until
     two l in a row have no weight above the tolerance of l = 0's largest (only l = 0 when a point is the centre)."""
     from derive.solve.bound import LEVELS, bound_states
-    from derive.solve.centre import Unsupported
-    from derive.solve.levels import MAX_L
+    from derive.solve.levels import over_l
     from derive.solve.offcentre import angular_factor
 
     low, high = sorted((r1, r2))
     rows = {key: [] for key in ("l", "omega", "weight", "omega_error", "weight_error")}
-    ok, message, largest, quiet, l, truncated = True, "ok", 0.0, 0, 0, False
-    while True:
+    state = {"ok": True, "message": "ok", "largest": 0.0, "truncated": False}
+
+    def visit(l):      # quiet: no weight of this l above the tolerance of the largest so far (l = 0's)
         found = bound_states(problem, l, low, tolerance, count=LEVELS, r1=high)
         angular = angular_factor(l, problem.dimension - 2, c) if low > 0 else 1.0
         weight = angular * found.weight
-        truncated = truncated or found.truncated
+        state["truncated"] = state["truncated"] or found.truncated
         for key, values in (("l", [l] * len(found.omega)), ("omega", found.omega), ("weight", weight),
                             ("omega_error", found.omega_error), ("weight_error", abs(angular) * found.weight_error)):
             rows[key] += [int(v) if key == "l" else float(v) for v in values]
-        if ok and not found.ok:
-            ok, message = False, found.message()
+        if state["ok"] and not found.ok:
+            state["ok"], state["message"] = False, found.message()
         biggest = float(np.max(np.abs(weight))) if len(weight) else 0.0
-        largest = max(largest, biggest)
-        if low == 0.0:
-            break
-        quiet = quiet + 1 if biggest <= tolerance * largest else 0
-        if quiet >= 2:
-            break
-        if l >= MAX_L:
-            raise Unsupported(f"the levels between the two points did not fall below the tolerance by l = {l}")
-        l += 1
+        state["largest"] = max(state["largest"], biggest)
+        return biggest <= tolerance * state["largest"]
+    over_l(visit, low == 0.0)
+    ok, message, truncated = state["ok"], state["message"], state["truncated"]
     return {"l": rows["l"], "omega": rows["omega"], "weight": rows["weight"],
             "error": {"omega": rows["omega_error"], "weight": rows["weight_error"]}, "truncated": truncated,
             "ok": ok, "message": message,

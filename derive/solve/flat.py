@@ -79,10 +79,9 @@ def start_outside(problem, l, omegas, series=None):
     state, log_scale = solved[0][0], solved[1][0]
     interface = next((i for i in problem.interfaces if i.inner == first.name), None)
     if interface is not None:
-        n = len(omegas)
-        transfer = np.moveaxis(np.broadcast_to(np.asarray(interface.transfer(l, np.asarray(omegas, dtype=float)),
-                                                          dtype=float), (2, 2, n)), -1, 0)
-        state = np.einsum("nij,nj->ni", transfer, state)
+        from derive.solve.march import interface_matrices
+
+        state = np.einsum("nij,nj->ni", interface_matrices(interface, l, omegas), state)
         size = np.max(np.abs(state), axis=1)
         state, log_scale = state / size[:, None], log_scale + np.log(size)
     return state, log_scale

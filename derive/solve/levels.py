@@ -194,22 +194,33 @@ def level_sum(problem, power, terms_of, tolerance: float, scale: np.ndarray, l: 
         count += STEP_COUNT
 
 
-def sum_over_l(share_of, scale, tolerance: float, at_centre: bool) -> tuple[list[LevelSum], int]:
-    """The levels' shares of l = 0, 1, 2, ... (``share_of(l)``: a LevelSum, or None for an l that cannot
-    contribute) until two in a row add below 1e-2 of the tolerance of ``scale``; only l = 0 ``at_centre`` (the
-    only l that reaches a point at the centre).  Returns the shares and the last l."""
-    sums, l, quiet = [], 0, 0
+def over_l(visit, at_centre: bool) -> int:
+    """Visit l = 0, 1, 2, ... (``visit(l)`` returns whether that l added nothing above its tolerance) until two in
+    a row are quiet; only l = 0 ``at_centre`` (the only l that reaches a point at the centre).  Returns the last
+    l; raises Unsupported past MAX_L."""
+    l, quiet = 0, 0
     while True:
-        levels = share_of(l)
-        small = True
-        if levels is not None:
-            sums.append(levels)
-            small = bool(np.all(np.abs(levels.value) + levels.error <= 1e-2 * tolerance * np.abs(scale)))
+        small = visit(l)
         if at_centre:
-            return sums, l
+            return l
         quiet = quiet + 1 if small else 0
         if quiet >= 2:
-            return sums, l
+            return l
         if l >= MAX_L:
-            raise Unsupported(f"the bound levels' share did not fall below the tolerance by l = {l}")
+            raise Unsupported(f"the bound levels did not fall below the tolerance by l = {l}")
         l += 1
+
+
+def sum_over_l(share_of, scale, tolerance: float, at_centre: bool) -> tuple[list[LevelSum], int]:
+    """The levels' shares of l = 0, 1, 2, ... (``share_of(l)``: a LevelSum, or None for an l that cannot
+    contribute) until two in a row add below 1e-2 of the tolerance of ``scale`` (:func:`over_l`).  Returns the
+    shares and the last l."""
+    sums = []
+
+    def visit(l):
+        levels = share_of(l)
+        if levels is None:
+            return True
+        sums.append(levels)
+        return bool(np.all(np.abs(levels.value) + levels.error <= 1e-2 * tolerance * np.abs(scale)))
+    return sums, over_l(visit, at_centre)

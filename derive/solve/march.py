@@ -145,6 +145,13 @@ def centre_start(problem, l, omegas, r_s, series=None):
     return state, s * np.log(r_s)
 
 
+def interface_matrices(interface, l, omegas) -> np.ndarray:
+    """The interface's transfer matrix on (u, du/dr*) at every omega, shape (n, 2, 2)."""
+    omegas = np.asarray(omegas, dtype=float)
+    return np.moveaxis(np.broadcast_to(np.asarray(interface.transfer(l, omegas), dtype=float),
+                                       (2, 2, len(omegas))), -1, 0)
+
+
 def march(problem, l, omegas, pieces, state, log_scale=None, marks=(), outer: bool = False,
           multiple: int = 1) -> Marched:
     """Carry ``state`` (n, 2) with ``log_scale`` across ``pieces`` for the angular label l at every omega.
@@ -186,8 +193,7 @@ def march(problem, l, omegas, pieces, state, log_scale=None, marks=(), outer: bo
         region = problem.regions[piece.region]
         crossing = position + 1 < len(pieces) and pieces[position + 1].region != piece.region
         if crossing and region.name in interfaces:
-            transfer = np.moveaxis(np.broadcast_to(np.asarray(interfaces[region.name].transfer(l, omegas),
-                                                              dtype=float), (2, 2, n)), -1, 0)
+            transfer = interface_matrices(interfaces[region.name], l, omegas)
             state = np.einsum("nij,nj->ni", transfer, state)
             determinant = np.linalg.det(transfer)
             det = det * determinant

@@ -83,9 +83,10 @@ def _reference(problem, l, omegas) -> float:
     return 1.25 * outer_turning_point(problem, l, float(np.max(omegas)), problem.regions[0].lower * (1 + 1e-9))
 
 
-def _settled_amplitude(problem, l, omegas):
-    """A/u_dec on the grids STEPS[0], 2 STEPS[0], ... until two successive ones agree to 1e-9 of its typical
-    size at every frequency (or the grid reaches STEPS[1])."""
+def _settled(problem, l, omegas, relative: bool, agreement: float):
+    """(A/u_dec at ``omegas``, the step count) on the grids STEPS[0], 2 STEPS[0], ... until two successive ones
+    agree to ``agreement`` at every frequency, of each value (``relative``) or of their median size (or the grid
+    reaches STEPS[1]); also (the layout, the reference radius) on which it settled."""
     from derive.solve.horizon import layout
 
     reference = _reference(problem, l, omegas)
@@ -94,10 +95,11 @@ def _settled_amplitude(problem, l, omegas):
     coarse = _amplitude(problem, l, omegas, steps, fixed, reference)
     while True:
         fine = _amplitude(problem, l, omegas, 2 * steps, fixed, reference)
-        size = np.median(np.abs(fine[np.isfinite(fine)])) if np.any(np.isfinite(fine)) else np.inf
         steps *= 2
-        if np.all(np.isfinite(fine)) and np.all(np.abs(fine - coarse) <= 1e-9 * size) or steps >= STEPS[1]:
-            return fine
+        finite = np.isfinite(fine)
+        size = np.abs(fine) if relative else (np.median(np.abs(fine[finite])) if np.any(finite) else np.inf)
+        if np.all(finite) and np.all(np.abs(fine - coarse) <= agreement * size) or steps >= STEPS[1]:
+            return fine, steps, fixed, reference
         coarse = fine
 
 
@@ -120,7 +122,7 @@ def quasi_bound(problem, l: int = 0, count: int = 4) -> Resonances:
     groups = _batches(problem, omegas)
     for group in np.unique(groups):
         index = np.nonzero(groups == group)[0]
-        phase[index] = np.angle(_settled_amplitude(problem, l, omegas[index]))
+        phase[index] = np.angle(_settled(problem, l, omegas[index], relative=False, agreement=1e-9)[0])
     # increments wrapped into (-3 pi/2, pi/2]: a resonance narrower than the grid drops the phase by pi within
     # one interval, which plain unwrapping could read as +pi
     step = np.mod(np.diff(phase) + 1.5 * np.pi, 2 * np.pi) - 1.5 * np.pi
@@ -157,20 +159,9 @@ def _root(problem, l, centre, h, steps, fixed, reference):
 
 def _refine(problem, l, low, high) -> tuple[float, float, float, float]:
     """(omega_n, its error, Gamma_n, its error) for the resonance whose phase drop lies in [low, high]."""
-    from derive.solve.horizon import layout
-
+    # a grid on which A/u_dec has settled at both ends of the (widened) bracket
     ends = np.array([low - (high - low), high + (high - low)])
-    reference = _reference(problem, l, ends)
-    fixed = layout(problem, l, ends, probe=reference)
-    steps = STEPS[0]
-    # a grid on which A/u_dec has settled at both ends of the bracket
-    previous = _amplitude(problem, l, ends, steps, fixed, reference)
-    while steps < STEPS[1]:
-        finer = _amplitude(problem, l, ends, 2 * steps, fixed, reference)
-        steps *= 2
-        if np.all(np.isfinite(finer)) and np.all(np.abs(finer - previous) <= 1e-10 * np.abs(finer)):
-            break
-        previous = finer
+    _, steps, fixed, reference = _settled(problem, l, ends, relative=True, agreement=1e-10)
     h = (high - low) / 2
     z = _root(problem, l, (low + high) / 2, h, steps, fixed, reference)
     for _ in range(3):
