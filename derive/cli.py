@@ -274,7 +274,8 @@ def cmd_spectrum(args) -> int:
             for w, d, e, q in zip(data["omega"], data["density"], data["error"]["density"], ratios)]
     levels = data.get("bound_states")
     if levels is not None:
-        rows.append(f"bound states (l = {data['l']}; discrete: a weight per level, per unit omega integrated):\n"
+        rows.append(f"bound states (l = {levels.get('l', data['l'])}; discrete: a weight per level, per unit omega "
+                    "integrated):\n"
                     f"{'omega':>22} {'error':>10} {'weight':>22} {'error':>10}")
         rows += [f"{w:22.15e} {we:10.1e} {d:22.15e} {de:10.1e}" for w, we, d, de in
                  zip(levels["omega"], levels["error"]["omega"], levels["weight"], levels["error"]["weight"])]

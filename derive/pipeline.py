@@ -252,7 +252,7 @@ def two_point(spacetime, omega, between, tolerance: float | None = None, progres
     data = {"between": [first.to_json(), second.to_json()], "cos_angle": c, "omega": _floats(omegas),
             "tolerance": tolerance, "method": METHOD, "convention": TWO_POINT_CONVENTION,
             "units": "per unit omega of the spec's time coordinate"}
-    levels, _ = _pair_continuum(problem)
+    levels, _, _ = _pair_continuum(problem)
     try:
         result, states, default, extra = _two_point_parts(problem, omegas, first.radius, second.radius, c, tolerance,
                                                           progress, continuum_only=levels)
@@ -373,7 +373,7 @@ def _multipole_parts(problem, r0, state, tolerance):
     (density(omegas, l) -> (S_+, its error, S_-, its error), thermal, temperature of t or None).  Chooses between
     the regular-centre and the horizon computations as :func:`_two_point_parts` does."""
     from derive.solve.bound import is_ads
-    from derive.solve.centre import Unsupported, bound_states_possible
+    from derive.solve.centre import Unsupported
 
     if is_ads(problem) and problem.regions[0].lower_kind != "horizon":
         raise Unsupported("the multipoles with a reflecting AdS boundary (normal modes) are not built")
@@ -388,8 +388,6 @@ def _multipole_parts(problem, r0, state, tolerance):
             raise Unsupported(f"state {state!r} outside a horizon: one of {', '.join(first.states)}")
         hottest = max(t for t in (first.temperature, first.outer_temperature) if t is not None)
         return (lambda omegas, l: exterior_multipole(problem, omegas, r0, l, tolerance).state(state)), True, hottest
-    if bound_states_possible(problem) and problem.dimension != 4:
-        raise Unsupported(f"the bound levels' part of the multipoles is built in 3+1 (here D = {problem.dimension})")
     from derive.solve.offcentre import multipole_density
 
     temperature = cosmological_temperature(problem)
@@ -575,18 +573,20 @@ def _array_probes(spacetime, problem):
     return probes, points, numbers
 
 
-def _pair_continuum(problem) -> tuple[bool, float]:
-    """(whether bound levels enter a pair's integrals, where the continuum's begins): around a body with a massive
-    field (3+1, a regular centre) the levels are summed apart and the continuum starts at its threshold; None
-    (Minkowski) and horizons: (False, 0)."""
+def _pair_continuum(problem) -> tuple[bool, float, float | None]:
+    """(whether bound levels enter a pair's integrals, where the continuum's begins, the period in log k of its
+    oscillation there or None): around a body with a massive field (a regular centre) the levels are summed apart
+    and the continuum starts at its threshold (oscillating in log k above a supercritical inverse-square tail);
+    None (Minkowski) and horizons: (False, 0, None)."""
     if problem is None or problem.regions[0].lower_kind != "regular centre":
-        return False, 0.0
+        return False, 0.0, None
     from derive.solve.bound import is_ads
-    from derive.solve.centre import bound_states_possible, continuum_threshold
+    from derive.solve.centre import bound_states_possible, continuum_threshold, threshold_log_period
 
     if is_ads(problem):        # a discrete spectrum: summed over its modes, no continuum
-        return False, 0.0
-    return bound_states_possible(problem), continuum_threshold(problem)
+        return False, 0.0, None
+    levels = bound_states_possible(problem)
+    return levels, continuum_threshold(problem), threshold_log_period(problem) if levels else None
 
 
 def _spectrum_between(problem, first, second, state, tolerance, progress=None, continuum_only=False):
@@ -659,7 +659,7 @@ def correlations(spacetime, tolerance: float | None = None, progress=None, refer
     # bound levels around a body (a massive field): the continuum's pair integrals plus the levels' sums; with a
     # regular centre a massive field's continuum begins at its threshold (nothing below it but the levels): the
     # frequency panels start there, at the jump (a panel across it had left 2% in a pair's L)
-    levels, start = _pair_continuum(problem)
+    levels, start, log_period = _pair_continuum(problem)
 
     def spectrum_between(i, j):
         return _spectrum_between(problem, points[i], points[j], state, tolerance, progress, continuum_only=levels)
@@ -700,7 +700,7 @@ def correlations(spacetime, tolerance: float | None = None, progress=None, refer
                     terms = pair_terms_discrete(A, B, modes, light, problem.dimension)
                 else:
                     terms = pair_terms(A, B, spectrum_between(i, j), light, tolerance, problem.dimension,
-                                       start=start)
+                                       start=start, log_period=log_period)
                 L_AA, L_BB = (detectors[p.name]["probability"] for p in (A, B))
                 e_AA, e_BB = (detectors[p.name]["error"] for p in (A, B))
                 lam2 = coupling ** 2
@@ -1063,7 +1063,7 @@ class _PairSide:
         self.base, self.points, self.numbers = probes, points, numbers
         self.state, self.tolerance, self.progress = state, tolerance, progress
         self.singles, self.spectra = {}, {}
-        self.levels, self.start = _pair_continuum(problem)
+        self.levels, self.start, self.log_period = _pair_continuum(problem)
 
     def probe(self, index: int, radius: float, peak: float):
         """Detector ``index`` at ``radius`` with its switching peaked at ``peak`` (spec's time)."""
@@ -1121,7 +1121,7 @@ class _PairSide:
         B = self.probe(1, radius, self.base[0].centre + delay)
         dimension = 4 if self.problem is None else self.problem.dimension
         terms = pair_terms(A, B, self.spectrum(radius), None, self.tolerance, dimension, time_ordered=False,
-                           start=self.start)
+                           start=self.start, log_period=self.log_period)
         (L_AA, e_AA), (L_BB, e_BB) = self.single(0, self.base[0].radius), self.single(1, radius)
         if self.levels:      # the bound levels' share of L_AB, as derive correlations adds it
             from derive.detector.correlations import combined, pair_levels

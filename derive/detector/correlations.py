@@ -231,31 +231,49 @@ def frequency_reach(A: Probe, B: Probe, light_time: float | None) -> float:
     return top
 
 
-def _rule(top: float, panels: int, start: float = 0.0):
+def _rule(top: float, panels: int, start: float = 0.0, log_period: float | None = None):
+    """Gauss-Legendre on ``panels`` equal panels over [start, top]: (nodes, weights, remainder weights).  With
+    ``log_period`` (a density oscillating in log k at a supercritical threshold ``start``, k = sqrt(omega^2 -
+    start^2)) the first 1/FIRST_PANELS of the range is integrated in t = log k instead, with panels of at most
+    min(log_period/2, 1) (as many more as the rule has been doubled) down to k = 1e-5 start; what lies below,
+    ~S k^2/(2 omega), is bounded by the remainder weight k_min^2/start at the lowest node (zero elsewhere)."""
     x, w = np.polynomial.legendre.leggauss(NODES)
-    edges = np.linspace(start, top, panels + 1)
-    half = np.diff(edges) / 2
-    nodes = (edges[:-1, None] + half[:, None] * (1 + x[None, :])).ravel()
-    weights = (half[:, None] * w[None, :]).ravel()
-    return nodes, weights
+
+    def gauss(edges):
+        half = np.diff(edges) / 2
+        return ((edges[:-1, None] + half[:, None] * (1 + x[None, :])).ravel(), (half[:, None] * w[None, :]).ravel())
+    if log_period is None or start <= 0:
+        nodes, weights = gauss(np.linspace(start, top, panels + 1))
+        return nodes, weights, np.zeros(len(nodes))
+    split = start + (top - start) / FIRST_PANELS
+    k_top, k_min = np.sqrt(split ** 2 - start ** 2), 1e-5 * start
+    count = max(int(np.ceil(np.log(k_top / k_min) / min(log_period / 2, 1.0))), 2) * panels // FIRST_PANELS
+    t, t_weights = gauss(np.linspace(np.log(k_min), np.log(k_top), count + 1))
+    k2 = np.exp(2 * t)
+    near = np.sqrt(start ** 2 + k2)
+    nodes, weights = gauss(np.linspace(split, top, panels + 1))
+    remainder = np.zeros(len(near) + len(nodes))
+    remainder[0] = k_min ** 2 / start
+    return np.concatenate([near, nodes]), np.concatenate([t_weights * k2 / near, weights]), remainder
 
 
-def _integrals(spectrum, integrands, top, tolerance, start=0.0):
+def _integrals(spectrum, integrands, top, tolerance, start=0.0, log_period=None):
     """Each integrand(omega, S_+, S_-) -> (values, |factor of S_+|, |factor of S_-|[, absolute error of values])
     integrated over [start, top] on doubled panel rules until two successive ones agree (to the tolerance, or
     within the spectral errors carried through); returns (value, error, scale) each.  ``spectrum(omegas)`` -> (S_+,
-    e_+, S_-, e_-); ``start`` is where it begins (a massive field's continuum at its threshold, where it jumps)."""
+    e_+, S_-, e_-); ``start`` is where it begins (a massive field's continuum at its threshold, where it jumps; with
+    ``log_period``, where it oscillates in log k: :func:`_rule`)."""
     previous = None
     panels = FIRST_PANELS
     while True:
-        nodes, weights = _rule(top, panels, start)
+        nodes, weights, remainder = _rule(top, panels, start, log_period)
         s_plus, e_plus, s_minus, e_minus = spectrum(nodes)
         results = []
         for integrand in integrands:
             values, plus_factor, minus_factor, *own = integrand(nodes, s_plus, s_minus)
             value = np.sum(weights * values)
             carried = np.sum(weights * (np.abs(plus_factor) * e_plus + np.abs(minus_factor) * e_minus
-                                        + (own[0] if own else 0.0)))
+                                        + (own[0] if own else 0.0)) + remainder * np.abs(values))
             scale = np.sum(weights * (np.abs(plus_factor) * np.abs(s_plus) + np.abs(minus_factor) * np.abs(s_minus)))
             results.append((value, carried, scale))
         if previous is not None:
@@ -351,7 +369,7 @@ def _pair_result(parts, tail) -> PairResult:
 
 
 def pair_terms(A: Probe, B: Probe, spectrum, light_time: float | None, tolerance: float, dimension: int = 4,
-               time_ordered: bool = True, start: float = 0.0) -> PairResult:
+               time_ordered: bool = True, start: float = 0.0, log_period: float | None = None) -> PairResult:
     """L_AB and M (each per lambda^2) between two detectors, with errors; ``spectrum(omegas)`` gives
     (S_+, e_+, S_-, e_-) between A's point and B's in the state.  Gaussian switchings use the closed-form kernels
     of M, others ``TimeOrdered``; the part of the frequency integrals beyond the reach of an algebraically decaying
@@ -359,9 +377,10 @@ def pair_terms(A: Probe, B: Probe, spectrum, light_time: float | None, tolerance
     single detector's tail bound, and added to the errors (for E, whose large-frequency part comes from the same
     breakpoints of K where the smoothed sign is at most 1, the same bound is taken as an estimate).  Without
     ``time_ordered`` only L_AB (M and its parts zero; no light time needed).  ``start``: the spectrum is zero
-    below it (a massive field's continuum threshold with a regular centre: panels start there, at the jump)."""
+    below it (a massive field's continuum threshold with a regular centre: panels start there, at the jump);
+    ``log_period``: the spectrum oscillates in log k there (a supercritical inverse-square tail, :func:`_rule`)."""
     integrands, top, tail = _pair_integrands(A, B, light_time, dimension, time_ordered)
-    return _pair_result(_integrals(spectrum, integrands, max(top, 2 * start), tolerance, start), tail)
+    return _pair_result(_integrals(spectrum, integrands, max(top, 2 * start), tolerance, start, log_period), tail)
 
 
 def pair_terms_discrete(A: Probe, B: Probe, modes, light_time: float, dimension: int = 4) -> PairResult:
@@ -584,7 +603,7 @@ def multipole_weights(problem, probe: Probe, tolerance: float, density=None, the
     (derive.solve.levels; the continuum's first panel then ungraded at the Coulomb threshold, as for one
     detector).  Returns (weights, errors)."""
     from derive.detector.response import normal_mode_terms, response
-    from derive.solve.centre import continuum_threshold, has_coulomb_tail
+    from derive.solve.centre import continuum_threshold, finite_at_threshold, threshold_log_period
     from derive.solve.levels import level_sum
 
     if density is None:
@@ -610,7 +629,8 @@ def multipole_weights(problem, probe: Probe, tolerance: float, density=None, the
             return tuple(probe.alpha * np.asarray(part) for part in density(probe.alpha * np.asarray(nu, dtype=float),
                                                                             l))
         result = response(gaps, switching, density_at, thermal, threshold, dimension, tolerance, local,
-                          graded=not (levels and has_coulomb_tail(problem)))
+                          graded=not (levels and finite_at_threshold(problem)),
+                          log_period=threshold_log_period(problem) if levels else None)
         weights.append(float(result.response[0]))
         errors.append(float(result.error[0]))
         if levels:     # the levels of this l at the sphere's radius, as derive response adds them (study.with_levels)

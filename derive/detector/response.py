@@ -35,7 +35,7 @@ class Response:
     levels: dict | None = None     # the bound levels' share, where they are summed (derive.solve.levels)
 
 
-def _panels(upper: float, width: float, start: float = 0.0, graded: bool = True):
+def _panels(upper: float, width: float, start: float = 0.0, graded: bool = True, log_period: float | None = None):
     """The quadrature of the frequency integral on [start, upper]: panels of half the given width from ``start``
     (0, or the continuum threshold of a massive field), the first one graded geometrically toward it (the density
     can be non-analytic there: nu^3 log nu from a long-range exterior, sqrt(nu - mu) at a threshold, which would
@@ -46,6 +46,11 @@ def _panels(upper: float, width: float, start: float = 0.0, graded: bool = True)
     the mass, need far radii beyond the solver's reach (measured: no grading left 6e-7 of F at a gap of 10,
     beside an estimate of 1e-7).
 
+    With ``log_period`` (a supercritical inverse-square tail: the density oscillates with that period in log k
+    without falling off, k = sqrt(nu^2 - start^2)) the first panel is instead integrated in t = log k, where the
+    integrand S k^2/nu is smooth and falls like e^(2t): panels of half a period (at most one e-fold) down to
+    k = 1e-5 start (:func:`_log_panels`).
+
     Returns (nodes, weights, coarse weights): the coarse rule integrates each pair of neighbouring panels with
     the polynomial through all 24 of their nodes (exact to degree 23 on the pair, as the Gauss rule is on each
     half), so that the two rules share every node and their difference estimates the error of the coarse one
@@ -55,9 +60,25 @@ def _panels(upper: float, width: float, start: float = 0.0, graded: bool = True)
     count = max(int(np.ceil((upper - start) / half)), 2)
     count += count % 2                       # with the 12 (or 6) graded panels: an even number in all
     edges = start + half * np.arange(count + 1)
+    if log_period is not None and start > 0:
+        return _log_panels(start, np.concatenate([edges[1:], [edges[-1] + half]]), log_period)
     inner = start + (edges[1] - start) * 2.0 ** -np.arange(12 if graded else 4, 0, -1)
     edges = np.concatenate([[start], inner, edges[1:]])
     a, b = edges[:-1], edges[1:]
+    nodes, weights, coarse = _pair_rules(a, b)
+    # at the start the integrand may be non-analytic (sqrt(nu - mu) at a threshold): there a rule through the
+    # same nodes would share the fine rule's error, so the first pair's coarse rule is Gauss-Legendre on the
+    # pair itself (12 more nodes, weight 0 in the fine rule), whose error there is 2^(3/2) times the fine one's
+    lo, hi = a[0], b[1]
+    extra = ((lo + hi) + (hi - lo) * NODES) / 2
+    coarse[:2] = 0.0
+    return (np.concatenate([nodes.ravel(), extra]), np.concatenate([weights.ravel(), np.zeros(PANEL_NODES)]),
+            np.concatenate([coarse.ravel(), (hi - lo) / 2 * WEIGHTS]))
+
+
+def _pair_rules(a, b):
+    """Gauss-Legendre nodes and weights on the panels [a_i, b_i] (an even number of them, shape (panels, 12)),
+    and the coarse rule of each pair of neighbours: the polynomial through all 24 of the pair's nodes."""
     nodes = ((a + b)[:, None] + (b - a)[:, None] * NODES[None, :]) / 2
     weights = ((b - a)[:, None] / 2) * WEIGHTS[None, :]
     coarse = np.empty_like(weights)
@@ -72,14 +93,29 @@ def _panels(upper: float, width: float, start: float = 0.0, graded: bool = True)
             moments[0] = 2.0
             solved[split] = np.linalg.solve(vander, moments)
         coarse[i:i + 2] = (solved[split] * (hi - lo) / 2).reshape(2, PANEL_NODES)
-    # at the start the integrand may be non-analytic (sqrt(nu - mu) at a threshold): there a rule through the
-    # same nodes would share the fine rule's error, so the first pair's coarse rule is Gauss-Legendre on the
-    # pair itself (12 more nodes, weight 0 in the fine rule), whose error there is 2^(3/2) times the fine one's
-    lo, hi = a[0], b[1]
-    extra = ((lo + hi) + (hi - lo) * NODES) / 2
-    coarse[:2] = 0.0
-    return (np.concatenate([nodes.ravel(), extra]), np.concatenate([weights.ravel(), np.zeros(PANEL_NODES)]),
-            np.concatenate([coarse.ravel(), (hi - lo) / 2 * WEIGHTS]))
+    return nodes, weights, coarse
+
+
+def _log_panels(start: float, edges, log_period: float):
+    """The rule of :func:`_panels` with its first panel, [start, edges[0]], in t = log k, k = sqrt(nu^2 - start^2):
+    an even number of panels of width at most min(log_period/2, 1) down to k_min = 1e-5 start (nu then still
+    holds k^2 to ~1e-6), then ``edges`` (an even number of panels) in nu.  The part below k_min, about
+    S k_min^2/(2 nu) for an S that oscillates about its mean (5e-11 of the density times nu), is left out of the
+    fine rule and put into the coarse one twice over at the lowest node's S: their difference, the error
+    estimate, carries it."""
+    k_top, k_min = np.sqrt(edges[0] ** 2 - start ** 2), 1e-5 * start
+    count = max(int(np.ceil(np.log(k_top / k_min) / min(log_period / 2, 1.0))), 2)
+    count += count % 2
+    t_edges = np.linspace(np.log(k_min), np.log(k_top), count + 1)
+    t, w_t, c_t = _pair_rules(t_edges[:-1], t_edges[1:])
+    k2 = np.exp(2 * t)
+    nu_t = np.sqrt(start ** 2 + k2)
+    jacobian = k2 / nu_t                     # dnu/dt
+    c_t = c_t * jacobian
+    c_t[0, 0] += k_min ** 2 / start
+    nodes, weights, coarse = _pair_rules(edges[:-1], edges[1:])
+    return (np.concatenate([nu_t.ravel(), nodes.ravel()]), np.concatenate([(w_t * jacobian).ravel(), weights.ravel()]),
+            np.concatenate([c_t.ravel(), coarse.ravel()]))
 
 
 MARGIN = 4.0        # the density bound used for the part beyond the cut-off: MARGIN times the local flat density
@@ -134,7 +170,7 @@ def cutoff(gaps, switching: Switching, thermal: bool = False, threshold: float =
 
 
 def frequency_nodes(gaps, switching: Switching, thermal: bool = False, threshold: float = 0.0, upper=None,
-                    panel: float | None = None, graded: bool = True):
+                    panel: float | None = None, graded: bool = True, log_period: float | None = None):
     """The proper frequencies nu > threshold at which the density is needed, with the fine and coarse weights of
     the frequency integral (:func:`_panels`), up to ``upper`` (default: the switching's reach beyond the largest
     -Omega).  A thermal state also needs its negative-frequency part, weighted by |chi_hat(Omega - nu)|^2, up to
@@ -143,12 +179,13 @@ def frequency_nodes(gaps, switching: Switching, thermal: bool = False, threshold
     if upper is None:
         upper = cutoff(gaps, switching, thermal, threshold)[0]
     width = switching.panel_width if panel is None else min(panel, switching.panel_width)
-    return _panels(upper, width, threshold, graded)
+    return _panels(upper, width, threshold, graded, log_period)
 
 
 def response(gaps, switching: Switching, density_at, thermal: bool = False, threshold: float = 0.0,
              dimension: int = 4, tolerance: float | None = None, temperature: float | None = None,
-             vacuum_part_only: bool = False, panel: float | None = None, graded: bool = True) -> Response:
+             vacuum_part_only: bool = False, panel: float | None = None, graded: bool = True,
+             log_period: float | None = None) -> Response:
     """F(Omega) for every gap.
 
     Parameters
@@ -162,11 +199,14 @@ def response(gaps, switching: Switching, density_at, thermal: bool = False, thre
         (:func:`frequency_nodes`).
     graded : bool
         Whether the first panel is graded toward the threshold (:func:`_panels`).
+    log_period : float, optional
+        The period in log k of a density that oscillates without falling off at the threshold: the first panel is
+        then integrated in log k (:func:`_panels`).
     """
     gaps = np.asarray(gaps, dtype=float)
     upper, cut_tail = cutoff(gaps, switching, thermal, threshold, tolerance, dimension, temperature,
                              vacuum_part_only)
-    nu, w_f, w_c = frequency_nodes(gaps, switching, thermal, threshold, upper, panel, graded)
+    nu, w_f, w_c = frequency_nodes(gaps, switching, thermal, threshold, upper, panel, graded, log_period)
     parts = density_at(nu)
     F_c = F_f = density_error = size = mass = 0.0
     for sign, S, S_err in ((1.0, parts[0], parts[1]),) + (((-1.0, parts[2], parts[3]),) if thermal else ()):

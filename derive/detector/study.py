@@ -16,7 +16,8 @@ import numpy as np
 from derive.detector.response import response, round_trip, trials_to_distinguish
 from derive.detector.switching import switching_from_spec
 from derive.errors import AccuracyError
-from derive.solve.centre import Divergent, Unsupported, bound_states_possible, has_coulomb_tail
+from derive.solve.centre import (Divergent, Unsupported, bound_states_possible, continuum_threshold,
+                                 finite_at_threshold, has_coulomb_tail, shortfall, threshold_log_period)
 
 PERTURBATIVE_LIMIT = 0.1
 
@@ -74,14 +75,19 @@ def has_horizon(problem) -> bool:
     return problem.regions[0].lower_kind == "horizon"
 
 
-def _missed(shortfalls, result, tolerance: float) -> None:
+def _missed(shortfalls, result, tolerance: float, exempt=None) -> None:
     """A density that missed its tolerance: recorded in ``shortfalls`` as (message, largest relative error
     reached) (the response goes on with the errors it reached, and says so), or an AccuracyError when no list is
-    given."""
-    message = result.message()
+    given.  Frequencies marked ``exempt`` (nodes next to a threshold that no double-precision march resolves to
+    the tolerance, whose errors the response carries at their small weights) are not counted."""
+    density, error = np.asarray(result.density, dtype=float), np.asarray(result.error, dtype=float)
+    counted = np.ones(len(density), dtype=bool) if exempt is None else ~np.asarray(exempt)
+    if np.all(error[counted] <= tolerance * np.abs(density[counted])):
+        return
+    message = shortfall(np.asarray(result.omega)[counted], np.abs(density[counted]), error[counted], tolerance)
     if shortfalls is None:
         raise AccuracyError("the spectral density did not reach its tolerance: " + message, {"tolerance": tolerance})
-    density, error = np.asarray(result.density, dtype=float), np.asarray(result.error, dtype=float)
+    density, error = density[counted], error[counted]
     keep = density > 0
     worst = float(np.max(error[keep] / density[keep])) if np.any(keep) else float("inf")
     if all(message != m for m, _ in shortfalls):
@@ -153,47 +159,21 @@ def proper_density(problem, tolerance, r0: float = 0.0, state: str = "vacuum", p
     if state != "vacuum":
         raise Unsupported(f"state {state!r} needs a horizon; this spacetime has none (use 'vacuum')")
 
-    if bound_states_possible(problem) and not levels_summed(problem, r0):
-        raise Unsupported("a massive field here may have bound states below the mass (V dips below mu^2 "
-                          f"somewhere), and in D = {problem.dimension} their share of the response is not built "
-                          "(in 3+1 it is, at and off the centre): " + missing_levels(problem, r0)
-                          + ". The continuum above the mass alone would be an incomplete response, so none is "
-                          "given; derive spectrum lists the levels with their weights")
-
     solve = density_function(problem, r0, tolerance, progress)
+    # at a supercritical inverse-square threshold the response's nodes reach k = 1e-5 mu (derive.detector.response):
+    # where the march's rounding (omega^2 - V against k^2: about 1e4 eps mu^2/k^2 over its steps) is above the
+    # tolerance no node can meet it, and its error is carried at those nodes' weights (k^2/nu) instead
+    threshold = continuum_threshold(problem) if threshold_log_period(problem) is not None else None
 
     def density_at(nu):
-        result = solve(sqrt_f0 * np.asarray(nu))
+        omega = sqrt_f0 * np.asarray(nu)
+        result = solve(omega)
         if not result.ok:
-            _missed(shortfalls, result, tolerance)
+            exempt = (None if threshold is None else
+                      (omega ** 2 - threshold ** 2) * tolerance < 1e4 * np.finfo(float).eps * threshold ** 2)
+            _missed(shortfalls, result, tolerance, exempt)
         return sqrt_f0 * result.density, sqrt_f0 * result.error
     return density_at, sqrt_f0, False
-
-
-def levels_summed(problem, r0: float) -> bool:
-    """Whether the bound levels' share of the response is computed (derive.solve.levels): in 3+1, at the centre
-    (only l = 0 reaches) or anywhere off it (every l, until their share falls below the tolerance)."""
-    return problem.dimension == 4
-
-
-def missing_levels(problem, r0: float) -> str:
-    """What a response would need from the discrete spectrum at r0, in words: the lowest levels of l = 0 (as
-    frequencies of the spec's time, with their weights at r0), whether infinitely many follow (a Coulomb-like
-    tail: they accumulate at the continuum's threshold), and, off the centre, the levels of every l."""
-    from derive.solve.bound import bound_states
-    from derive.solve.centre import continuum_threshold
-
-    threshold = continuum_threshold(problem)
-    where = "at the centre only l = 0 reaches" if r0 == 0.0 else f"at r = {r0:.6g} every l contributes"
-    try:
-        levels = bound_states(problem, 0, r0, 1e-8, count=4)
-    except Exception:       # noqa: BLE001 (the message only; the refusal stands either way)
-        return f"the levels below omega = {threshold:.10g} ({where}) are missing"
-    listed = ", ".join(f"{w:.10g} (weight {c:.3e})" for w, c in zip(levels.omega, levels.weight))
-    more = (f" and infinitely many more accumulating at omega = {threshold:.10g}" if levels.truncated
-            else "")
-    return (f"missing are the l = 0 levels omega = {listed}{more}"
-            + ("" if r0 == 0.0 else ", and those of every l > 0") + f" ({where})")
 
 
 def missing_resonances(problem) -> str:
@@ -272,7 +252,8 @@ def detector_response(problem, detector, tolerance: float = 1e-10, gaps=None, st
     continuum = response(gaps, switching, density_at, thermal, threshold, D, tolerance, temperature,
                          vacuum_part_only=state == "boulware", panel=structure_panel(problem, sqrt_f0,
                                                                                     detector.radius, panel),
-                         graded=not (levels and has_coulomb_tail(problem)))
+                         graded=not (levels and finite_at_threshold(problem)),
+                         log_period=threshold_log_period(problem) if levels else None)
     if levels:
         continuum = with_levels(problem, continuum, switching, sqrt_f0, tolerance, shortfalls, detector.radius)
     return continuum, switching, sqrt_f0
@@ -294,9 +275,12 @@ def with_levels(problem, continuum, switching, sqrt_f0: float, tolerance: float,
     def share_of(l):     # at the centre l = 0 only; off it every l until two in a row add below 1e-2 of the tolerance
         levels = level_sum(problem, power, lambda modes: normal_mode_terms(modes, gaps, switching, sqrt_f0)[:2],
                            tolerance, scale, l, r0)
-        if shortfalls is not None and not levels.states.ok:
-            shortfalls.append((levels.states.message(), float(np.max(levels.states.weight_error
-                                                                    / levels.states.size))))
+        # a level counts at its share of F: one that weighs 1e-8 of the first need not meet the tolerance itself
+        miss = levels.error / np.maximum(scale + np.abs(levels.value), 1e-300)
+        if shortfalls is not None and np.any(~(miss <= tolerance)):
+            shortfalls.append((f"the bound levels of l = {l} reach their share of F to a relative "
+                               f"{float(np.max(miss)):.2g} only (" + levels.states.message() + ")",
+                               float(np.max(miss))))
         return levels
     sums, _ = sum_over_l(share_of, scale, tolerance, r0 == 0.0)
     share, share_error = sum(s.value for s in sums), sum(s.error for s in sums)
@@ -305,7 +289,11 @@ def with_levels(problem, continuum, switching, sqrt_f0: float, tolerance: float,
     report = {"found": int(sum(len(s.states.omega) for s in sums)),
               "l": np.concatenate([np.full(len(s.states.omega), k) for k, s in enumerate(sums)]), **joined,
               "share": share, "share_error": share_error, "tail": sum(s.tail for s in sums),
-              "tail_error": sum(s.tail_error for s in sums), "threshold_density": sums[0].threshold_density()}
+              "tail_error": sum(s.tail_error for s in sums), "threshold_density": sums[0].threshold_density(),
+              # how the levels beyond the found ones are summed: a hydrogen-like series (a Coulomb-like tail), a
+              # geometric one (a supercritical inverse-square tail), or none (every level found)
+              "series": ("quantum-defect" if has_coulomb_tail(problem) else
+                         "geometric" if threshold_log_period(problem) is not None else None)}
     return Response(gaps, continuum.response + share, continuum.error + share_error,
                     continuum.quadrature_error, continuum.density_error + share_error, report)
 

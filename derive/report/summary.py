@@ -212,9 +212,11 @@ def response_summary(title: str, data: dict) -> str:
     levels = data.get("bound_levels")
     if levels:
         shares = ", ".join(f"{v:.3e}" for v in levels["share"])
+        series = levels.get("series")
+        rest = f", the rest from their {series} series" if series else " (all of them)"
         lines.append(f"bound levels below the mass (included in F): the lowest {levels['found']} found, omega "
-                     f"{levels['omega'][0]:.10g} ... {levels['omega'][-1]:.10g}, the rest from their quantum-defect "
-                     f"series; their share of F at each gap: {shares}")
+                     f"{levels['omega'][0]:.10g} ... {levels['omega'][-1]:.10g}{rest}; their share of F at each "
+                     f"gap: {shares}")
     loc = data["locality"]
     lines.append(f"locality: switching duration {loc['duration']:.4g} vs light round trip {loc['round_trip']:.4g} "
                  f"-> {'local' if loc['local'] else 'NOT local'}")

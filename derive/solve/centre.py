@@ -142,9 +142,11 @@ def continuum_threshold(problem) -> float:
         return 0.0
     last = problem.regions[-1]
     far = FAR * problem.length_scale
-    V = np.asarray(last.potential(np.array([far, 2 * far]), 0, 0.0), dtype=float) * np.ones(2)
-    # V = V_inf - C/r + O(r^-2): the value at infinity extrapolated from two radii (error ~ 1e-12 of C/far)
-    return float(np.sqrt(max(0.0, 2 * V[1] - V[0])))
+    V = np.asarray(last.potential(np.array([far, 2 * far, 4 * far]), 0, 0.0), dtype=float) * np.ones(3)
+    # V = V_inf - C/r + c/r^2 + O(r^-3): the value at infinity extrapolated from three radii, both the C/r and the
+    # c/r^2 terms eliminated (with C/r alone eliminated, c/(2 far^2) ~ 1e-12 was left in 4+1, where c/r^2 is the
+    # leading term: enough, times the radius, to read as a Coulomb-like tail that is not there)
+    return float(np.sqrt(max(0.0, (8 * V[2] - 6 * V[1] + V[0]) / 3)))
 
 
 def centre_density(problem, omegas, tolerance: float = 1e-10, steps: int = DEFAULT_STEPS,
@@ -338,7 +340,50 @@ def coulomb_far_radius(problem, k: float) -> float:
 def has_coulomb_tail(problem) -> bool:
     """Whether V -> mu^2 - C/r with an attractive C of any size (infinitely many levels below the mass)."""
     threshold = continuum_threshold(problem)
-    return threshold > 0 and coulomb_strength(problem) > 1e-12 * problem.length_scale * threshold ** 2
+    # the estimate's rounding is ~1e5 eps threshold^2 (R times V's rounding at R = 1e5 length scales): a strength
+    # below 1e-8 of threshold^2 L is no tail (such a well's levels would lie beyond 1e8 length scales anyway)
+    return threshold > 0 and coulomb_strength(problem) > 1e-8 * problem.length_scale * threshold ** 2
+
+
+def inverse_square_strength(problem, l: int) -> float:
+    """c in V -> threshold^2 + c/r^2 far away, for the angular label l (where no Coulomb-like tail C/r leads):
+    r^2 (V - threshold^2) at R, 2R and 4R (1e3 length scales) with the next two orders, d/R and e/R^2, eliminated
+    (error ~1e-9).  In D dimensions c = (l + (D-3)/2)^2 - 1/4 plus the mass's share (-m mu^2 where
+    g_tt = -(1 - m/r^2) in 4+1)."""
+    threshold2 = continuum_threshold(problem) ** 2
+    radii = 1e3 * problem.length_scale * np.array([1.0, 2.0, 4.0])
+    V = np.asarray(problem.regions[-1].potential(radii, l, 0.0), dtype=float) * np.ones(3)
+    first, second, third = radii ** 2 * (V - threshold2)
+    return float((8 * third - 6 * second + first) / 3)
+
+
+def finite_at_threshold(problem) -> bool:
+    """Whether a massive field's continuum density stays finite down to the threshold wherever the modes reach:
+    a Coulomb-like tail (the Sommerfeld factor) or a supercritical inverse-square tail (l = 0 is the most
+    attractive; the density oscillates in log k there, k the wave number far away, without falling off).  The
+    response's frequency panels then stop their grading short of the threshold, where neither can be solved to
+    the tolerance (derive.detector.response)."""
+    return has_coulomb_tail(problem) or efimov_exponent(problem, 0) is not None
+
+
+def threshold_log_period(problem) -> float | None:
+    """The period in log k (k the wave number far away) of the continuum density's oscillation at the threshold
+    of a supercritical inverse-square tail, pi/s with l = 0's s (the shortest: l = 0 is the most attractive), or
+    None where there is no such tail."""
+    s = efimov_exponent(problem, 0)
+    return None if s is None else float(np.pi / s)
+
+
+def efimov_exponent(problem, l: int) -> float | None:
+    """s where V -> threshold^2 + c/r^2 with c < -1/4 (a supercritical inverse-square tail, no Coulomb-like tail
+    before it): s = sqrt(-c - 1/4).  Such an l holds infinitely many levels below the threshold, in a geometric
+    series, kappa_{n+1}/kappa_n -> exp(-pi/s) with kappa = sqrt(threshold^2 - omega^2) (the spectrum of the
+    attractive inverse-square potential; K. M. Case, Phys. Rev. 80, 797 (1950), from memory).  None otherwise."""
+    if continuum_threshold(problem) == 0.0 or has_coulomb_tail(problem):
+        return None
+    c = inverse_square_strength(problem, l)
+    # c within 1e-6 of -1/4 is taken as critical (no levels accumulate; the spacing exp(pi/s) would be astronomic)
+    return float(np.sqrt(-c - 0.25)) if c < -0.25 - 1e-6 else None
 
 
 def outer_turning_point(problem, l, omega, start) -> float:

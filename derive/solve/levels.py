@@ -15,6 +15,11 @@ out to ``EXPLICIT`` model levels and, past those (where omega_n is within 1e-8 o
 s_0 a^3 zeta(3, n - delta_0), the Hurwitz zeta function.  Its error is the difference between the fits through
 the last ``TERMS`` and the last ``TERMS - 1`` levels, plus the found levels' own errors carried through.
 
+Without a Coulomb-like tail (in 4+1 a mass gives V an inverse-square tail, mu^2 + c/r^2) an l holds finitely many
+levels, all found, or, where c < -1/4, a geometric series, kappa_{n+1}/kappa_n -> exp(-pi/s) with
+s = sqrt(-c - 1/4) and w_{n+1}/w_n -> exp(-2 pi/s): summed from the last found level with those ratios
+(:func:`_geometric_tail`; docs/conventions.md section 14).
+
 A check of the whole (tests/test_levels.py): the density the levels make per unit omega near the threshold,
 w_n dn/domega -> s(inf) a mu, is the continuum's density just above it, computed by another path (the mode's
 amplitude far away): the spectral density is continuous across a Coulomb threshold.
@@ -28,7 +33,7 @@ import mpmath
 import numpy as np
 
 from derive.solve.bound import BoundStates, ModeList, bound_states
-from derive.solve.centre import Unsupported, continuum_threshold, coulomb_strength
+from derive.solve.centre import Unsupported, continuum_threshold, coulomb_strength, efimov_exponent
 
 TERMS = 4          # the fits of delta and s: powers 0..3 of x_N/x, through the last four levels
 FIRST_COUNT = 8    # levels found before the model takes over (the model's error then ~1e-6 of the tail)
@@ -113,6 +118,36 @@ class LevelSum:
         return float(self.model.strength[0] * self.model.spacing * self.model.threshold)
 
 
+def _geometric_tail(states: BoundStates, threshold: float, s: float, power) -> tuple[np.ndarray, np.ndarray]:
+    """The levels beyond the found ones of a geometric series, sum over them of w_n g(omega_n), and its error.
+
+    Far beyond the well a level's mode is sqrt(r) K_is(kappa r) (the inverse-square tail's decaying solution): the
+    levels follow kappa_{n+1} = rho kappa_n, rho = exp(-pi/s), and, the mode's shape inside fixed and its norm
+    2 omega int u^2 dr* growing like 1/kappa^2, the weights w_{n+1} = rho^2 (omega_n/omega_{n+1}) w_n, both up to
+    corrections of order (kappa L)^2 that die along the series.  The tail continues from the last found level
+    with these ratios; its error is the difference from continuing it with the last found pair's own ratios
+    (whose corrections are larger than any beyond), or the whole tail when only one level was found, plus the
+    found levels' weight errors carried in proportion."""
+    omega, weight = states.omega, states.weight
+    kappa = np.sqrt(threshold ** 2 - omega ** 2)
+
+    def continued(rho, ratio):
+        # terms until rho^(2k) is below 1e-17 (a handful for strong tails; a few hundred at s ~ 10)
+        k = np.arange(1, int(np.ceil(np.log(1e-17) / (2 * np.log(rho)))) + 1, dtype=float)
+        omega_k = np.sqrt(threshold ** 2 - (kappa[-1] * rho ** k) ** 2)
+        weight_k = weight[-1] * ratio ** k * omega[-1] / omega_k
+        return np.sum(power(omega_k) * weight_k[None, :], axis=1)
+    rho = np.exp(-np.pi / s)
+    tail = continued(rho, rho ** 2)
+    if len(omega) >= 2 and 0 < kappa[-1] < kappa[-2] and weight[-2] * weight[-1] > 0:
+        measured = continued(kappa[-1] / kappa[-2], weight[-1] * omega[-1] / (weight[-2] * omega[-2]))
+        error = np.abs(tail - measured)
+    else:
+        error = np.abs(tail)
+    spread = float(np.max(states.weight_error / states.size))
+    return tail, error + 10 * spread * np.abs(tail)
+
+
 def _tail(model: LevelModel, first: int, power) -> tuple[np.ndarray, np.ndarray]:
     """sum over n >= first of w_n g(omega_n), g = ``power`` (a function of omega, one row per gap), and the error
     of its closed-form remainder."""
@@ -150,13 +185,16 @@ def level_sum(problem, power, terms_of, tolerance: float, scale: np.ndarray, l: 
     ``power(omega)`` is g at each gap (rows) for frequencies of t; ``terms_of(modes)`` the found levels' terms and
     their errors (gaps x levels, detector.response.normal_mode_terms); ``scale`` what the tolerance refers to
     at each gap (the response).  FIRST_COUNT levels are found, then STEP_COUNT more at a time, until the error is
-    below a tenth of the tolerance of the scale, stops improving, or MOST_COUNT levels are reached."""
+    below a tenth of the tolerance of the scale, stops improving, or MOST_COUNT levels are reached.  The levels
+    themselves are found to a tighter tolerance where their terms' errors need it (a steep switching spectrum
+    carries a level's frequency error into its term 30 times over), down to 1e-13."""
     threshold = continuum_threshold(problem)
     spacing = coulomb_strength(problem) / 2
     count = FIRST_COUNT
     best = None
+    precision = tolerance
     while True:
-        states = _states(problem, l, r0, tolerance, count, r1)
+        states = _states(problem, l, r0, precision, count, r1)
         if angular != 1.0:
             states = replace(states, weight=angular * states.weight, weight_error=abs(angular) * states.weight_error,
                              scale=None if states.scale is None else abs(angular) * states.scale)
@@ -167,8 +205,20 @@ def level_sum(problem, power, terms_of, tolerance: float, scale: np.ndarray, l: 
                               f"{float(np.nanmax(states.omega)):.10g}): the levels' share is not computed")
         terms, errors = terms_of(modes)
         found, found_error = np.sum(terms, axis=1), np.sum(errors, axis=1)
+        if precision > 1e-13 and np.any(found_error > 0.3 * tolerance * (np.abs(scale) + np.abs(found))):
+            precision = max(precision / 10, 1e-13)
+            continue
         if not states.truncated:   # a finite set (no Coulomb-like tail), all of it found
             return LevelSum(states, found, found_error, np.zeros_like(found), np.zeros_like(found), None)
+        s = efimov_exponent(problem, l)
+        if s is not None:          # a geometric series (a supercritical inverse-square tail)
+            tail, tail_error = _geometric_tail(states, threshold, s, power)
+            result = LevelSum(states, found, found_error, tail, tail_error, None)
+            worst = float(np.max(result.error / np.maximum(np.abs(scale), 1e-300)))
+            if worst <= 0.1 * tolerance or count >= MOST_COUNT or len(states.omega) < count:
+                return result      # (fewer than asked: the rest lie too close to the threshold to be found)
+            count += STEP_COUNT
+            continue
         if len(states.omega) < TERMS + 1 or spacing <= 0:
             if count >= MOST_COUNT:
                 raise Unsupported(f"l = {l}: more than {MOST_COUNT} bound levels and no Coulomb-like series to sum "
