@@ -109,9 +109,14 @@ def test_tabulated_kernels_against_mpmath(shape):
     def pieces(a, b, points):
         return [a] + sorted(p for p in set(points) if a < p < b) + [b]
 
+    # (the nested quadrature of h not at x = 0, where h vanishes with its integrand and mpmath refined the zero for
+    # 60 s; for sin4, whose ramps make it 25 s a point, not at -5.1 either, which adds nothing 3.3 does not)
+    nested = (3.3, 21.7, -5.1) if shape == "bump" else (3.3, 21.7)
     for x in (0.0, 3.3, 21.7, -5.1):
         transform = 2 * mpmath.quad(lambda t, x=x: chi(t) * mpmath.cos(x * t), pieces(0.0, 0.5, cuts + [0.25]))
         assert abs(float(transform) - float(table(np.array([x]))[0])) < 1e-12
+        if x not in nested:
+            continue
         h = mpmath.quad(lambda s, x=x: mpmath.sin(x * s) * mpmath.quad(
             lambda u: chi(u) * chi(u - s), pieces(s - 0.5, 0.5, cuts + [c + s for c in cuts] + [0.0])),
             pieces(0.0, 1.0, [a - b for a in cuts for b in cuts] + [0.5]))
