@@ -204,3 +204,29 @@ def test_response_is_refused_for_a_massive_field_outside_a_horizon(heavy):
     problem, detector = heavy
     with pytest.raises(Unsupported, match="quasi-bound"):
         detector_response(problem, detector, 1e-6)
+
+
+def test_a_massive_field_outside_a_five_dimensional_black_hole_is_thermal(tmp_path, capsys):
+    # Outside f = 1 - m/r^2 a field with m mu^2 < 3/4 sees V rise from the horizon to mu^2 with a repulsive
+    # inverse-square tail: nothing is trapped below the mass, and the response is computed (up modes alone below
+    # it).  Hartle-Hawking is thermal at the local Tolman temperature T = kappa/(2 pi sqrt(f(r0))) (kappa = 1 at
+    # m = 1); for a Gaussian switching of width sigma the KMS condition S(-nu) = e^(-nu/T) S(nu) gives, on
+    # completing the square, F(-Omega) = e^(Omega/T + 1/(4 sigma^2 T^2)) F(Omega + 1/(2 sigma^2 T)) exactly
+    # (derived here; the KMS condition: R. Haag, N. M. Hugenholtz and M. Winnink, Commun. Math. Phys. 5, 215
+    # (1967), from memory)
+    sigma, gap = 5.0, 0.5
+    T = 1 / (2 * np.pi * np.sqrt(0.75))
+    shifted = gap + 1 / (2 * sigma ** 2 * T)
+    with open(os.path.join(ROOT, "worked", "tangherlini_5d", "spec.toml")) as handle:
+        text = handle.read().replace('mass = "0"', 'mass = "0.5"').replace(
+            "gaps = [-0.5, 0.0, 0.5]", f"gaps = [{-gap}, {float(shifted)!r}]")
+    path = tmp_path / "tangherlini_massive.toml"
+    path.write_text(text)
+    assert main(["response", str(path), "--json", "--tolerance", "1e-9"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    assert data["local_temperature"] == pytest.approx(T, rel=1e-12)
+    F_minus, F_shifted = data["states"]["hartle-hawking"]["response"]
+    e_minus, e_shifted = data["states"]["hartle-hawking"]["error"]
+    ratio = F_minus / (np.exp(gap / T + 1 / (4 * sigma ** 2 * T ** 2)) * F_shifted)
+    assert abs(ratio - 1) <= 2 * (e_minus / F_minus + e_shifted / F_shifted) + 1e-12
+    assert abs(ratio - 1) < 1e-8

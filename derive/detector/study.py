@@ -17,7 +17,8 @@ from derive.detector.response import response, round_trip, trials_to_distinguish
 from derive.detector.switching import switching_from_spec
 from derive.errors import AccuracyError
 from derive.solve.centre import (Divergent, Unsupported, bound_states_possible, continuum_threshold,
-                                 finite_at_threshold, has_coulomb_tail, shortfall, threshold_log_period)
+                                 finite_at_threshold, has_coulomb_tail, shortfall, threshold_log_period,
+                                 traps_below_threshold)
 
 PERTURBATIVE_LIMIT = 0.1
 
@@ -117,8 +118,11 @@ def proper_density(problem, tolerance, r0: float = 0.0, state: str = "vacuum", p
         from derive.solve.cosmological import has_cosmological_horizon
 
         # a reflecting AdS boundary has no well and no continuum; between a black hole's and a cosmological
-        # horizon V falls to zero at both ends, so nothing is trapped below the mass: no resonances there either
-        if problem.mass != 0.0 and not is_ads(problem) and not has_cosmological_horizon(problem):
+        # horizon V falls to zero at both ends, so nothing is trapped below the mass: no resonances there either;
+        # nor where the potential rises from the horizon to the mass with no well beyond its barrier (a 4+1 black
+        # hole's repulsive inverse-square tail: m mu^2 < 3/4), and the density below the mass is smooth
+        if (problem.mass != 0.0 and not is_ads(problem) and not has_cosmological_horizon(problem)
+                and traps_below_threshold(problem)):
             well = ("the Coulomb-like well of a 3+1 black hole, infinitely many" if has_coulomb_tail(problem)
                     else "wherever the potential has a well")
             raise Unsupported("a massive field outside a horizon has quasi-bound resonances below the mass (" + well

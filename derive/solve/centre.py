@@ -357,6 +357,36 @@ def inverse_square_strength(problem, l: int) -> float:
     return float((8 * third - 6 * second + first) / 3)
 
 
+def traps_below_threshold(problem, l_max: int = 4) -> bool:
+    """Whether waves below the continuum's threshold can be trapped outside a horizon (quasi-bound resonances):
+    a Coulomb-like tail (a well out to infinity), or, for some l <= l_max (the centrifugal term only lifts
+    higher l), an inverse-square tail approaching the threshold from below, or a dip below the threshold beyond
+    the potential's outermost maximum (a well outside a barrier).  Sampled from 1e-6 to 1e6 length scales beyond
+    the first region's lower end."""
+    if continuum_threshold(problem) == 0.0:
+        return False
+    if has_coulomb_tail(problem):
+        return True
+    threshold2 = continuum_threshold(problem) ** 2
+    L = problem.length_scale
+    for l in range(l_max + 1):
+        if inverse_square_strength(problem, l) < 0:
+            return True
+        values = []
+        for region in problem.regions:
+            lower = region.lower + 1e-6 * L
+            upper = region.upper if region.upper is not None else 1e6 * L
+            if upper <= lower:
+                continue
+            r = region.lower + np.geomspace(1e-6 * L, upper - region.lower, 2001)
+            values.append(np.asarray(region.potential(r, l, 0.0), dtype=float) * np.ones_like(r))
+        V = np.concatenate(values)
+        peaks = np.nonzero((V[1:-1] > V[:-2]) & (V[1:-1] >= V[2:]))[0]
+        if len(peaks) and np.min(V[peaks[-1] + 1:]) < threshold2 * (1 - 1e-12):
+            return True
+    return False
+
+
 def finite_at_threshold(problem) -> bool:
     """Whether a massive field's continuum density stays finite down to the threshold wherever the modes reach:
     a Coulomb-like tail (the Sommerfeld factor) or a supercritical inverse-square tail (l = 0 is the most
