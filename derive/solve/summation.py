@@ -131,7 +131,9 @@ def l_sum(term, n: int, tolerance: float, reach, max_l: int, progress=None, sing
             progress(l, 1.0 - len(summing) / n)
         if not len(summing):
             return total, size, error, l
-    raise Unsupported(f"the l-sum did not converge by l = {max_l}")
+    raise Unsupported(f"the l-sum did not converge by l = {max_l} (its terms fall off only past l ~ omega r, and, "
+                      "between two points an angle gamma apart, past l ~ 1/gamma: points closer than about "
+                      f"1/{max_l} of a radian, or frequencies beyond ~{max_l}/r, are beyond this sum)")
 
 
 def on_both_cores(function, n: int, arguments):
