@@ -1,4 +1,4 @@
-"""Bound levels in 4+1 (derive.solve.bound, derive.solve.levels): a massive field inside and around a thin shell,
+"""Bound levels in 4+1 and 2+1 (derive.solve.bound, derive.solve.levels).  In 4+1 a massive field inside and around a thin shell,
 whose exterior (Schwarzschild-Tangherlini, g_tt = -(1 - M/r^2)) gives the potential an inverse-square tail
 V -> mu^2 + c/r^2, c = 3/4 - mu^2 M for l = 0.  With mu^2 M > 1 it is supercritical (c < -1/4): infinitely many
 levels in a geometric series below the mass, summed into the response with their series' tail; the continuum's
@@ -205,3 +205,40 @@ switching = { shape = "gaussian", width = "2" }
                                              * data["detectors"]["off"]["probability"])
     assert 0.999 < ratio <= 1 + 1e-8
     assert pair["error"]["M"] <= 1e-8 * abs(complex(*pair["M"]))
+
+
+LUMP_2D = """
+format = 1
+title = "A 2+1 lump binding a massive field"
+[parameters]
+a = { value = 0.5, positive = true }
+[coordinates]
+names = ["t", "r", "p"]
+positive = ["r"]
+[[region]]
+name = "all"
+where = "r >= 0"
+line_element = "-(1 - a/(1 + r**2))*dt**2 + dr**2 + r**2*dp**2"
+[field]
+mass = "2"
+coupling = "0"
+"""
+
+
+def test_levels_of_a_lump_in_two_plus_one(tmp_path):
+    # In 2+1 the centrifugal term is (l^2 - 1/4)/r^2, so any lapse 1 - a/r^2 far out makes l = 0 supercritical:
+    # c = -1/4 - a mu^2 (derived as in 4+1), s = sqrt(a) mu, and the levels follow kappa_{n+1}/kappa_n ->
+    # exp(-pi/s) (Case 1950, as above); their weights fall by exp(-2 pi/s) (the norm growing like 1/kappa^2)
+    path = tmp_path / "lump.toml"
+    path.write_text(LUMP_2D)
+    problem = derive.load(str(path)).numeric_problem
+    assert abs(inverse_square_strength(problem, 0) - (-0.25 - 0.5 * 4)) < 1e-7
+    s = efimov_exponent(problem, 0)
+    assert abs(s - np.sqrt(2.0)) < 1e-7
+    states = bound_states(problem, 0, 0.0, 1e-9, count=4)
+    assert states.truncated and np.all(states.weight_error[:2] <= 1e-9 * states.weight[:2])
+    kappa = np.sqrt(4 - states.omega ** 2)
+    ratios = kappa[1:] / kappa[:-1] / np.exp(-np.pi / s) - 1
+    assert abs(ratios[-1]) < 1e-3 and abs(ratios[-1]) < abs(ratios[0]) / 10
+    weights = states.weight[1:] / states.weight[:-1] / np.exp(-2 * np.pi / s) - 1
+    assert abs(weights[-1]) < 1e-2
