@@ -381,8 +381,11 @@ def _multipole_parts(problem, r0, state, tolerance):
         from derive.solve.exterior import exterior_multipole
 
         if problem.mass != 0.0:
-            raise Unsupported("a massive field's multipoles outside a horizon (quasi-bound resonances below the "
-                              "mass) are not built")
+            # (measured where nothing is trapped, outside a 4+1 black hole: the weights' sum came out 0.63 below the
+            # single detector's response, which the KMS identity confirms; the multipoles' part below the mass is
+            # not right yet)
+            raise Unsupported("a massive field's multipoles outside a horizon are not built (below the mass only the "
+                              "up modes reach, and where the potential traps waves there are quasi-bound resonances)")
         first = exterior_multipole(problem, np.array([1.0]), r0, 0, tolerance)
         if state not in first.states:
             raise Unsupported(f"state {state!r} outside a horizon: one of {', '.join(first.states)}")
@@ -645,6 +648,7 @@ def correlations(spacetime, tolerance: float | None = None, progress=None, refer
                          "switching)", file=spacetime.path, key="detectors")
     tolerance = tolerance_of(spacetime, tolerance)
     problem = spacetime.numeric_problem
+    _check_flat_comparison(spacetime, reference)
     shared = spacetime.detector
     state = shared.state if shared is not None else "vacuum"
     coupling = shared.coupling if shared is not None and shared.coupling is not None else 1.0
@@ -811,6 +815,17 @@ def _on_one_sphere(probes) -> bool:
                                     for p in probes)
 
 
+def _check_flat_comparison(spacetime, reference) -> None:
+    """Bad input before any work: a Minkowski [compare] of several detectors needs a massless field in 3+1."""
+    compare = spacetime.compare
+    if compare is None or reference is False or compare.with_ != "minkowski":
+        return
+    field = spacetime.numeric_problem
+    if field.dimension != 4 or field.mass != 0:
+        raise InputError("the Minkowski comparison of several detectors is built for a massless field in 3+1; "
+                         "compare with the path of a flat spec instead", file=spacetime.path, key="compare.with")
+
+
 def _correlations_reference(spacetime, with_, probes, points, coupling, tolerance, multipoles=False) -> dict:
     """The same detectors in the [compare] spacetime: in Minkowski (3+1, massless) at the same positions read as
     flat polar coordinates, with the same gaps and proper widths and the peaks at each detector's proper time
@@ -828,10 +843,7 @@ def _correlations_reference(spacetime, with_, probes, points, coupling, toleranc
         data = result.to_json()
         return {"with": with_, "detectors": data["detectors"], "pairs": data["pairs"], "ok": result.ok,
                 "message": result.message, "multipoles": data.get("multipoles")}
-    field = spacetime.numeric_problem
-    if field.dimension != 4 or field.mass != 0:
-        raise InputError("the Minkowski comparison of several detectors is built for a massless field in 3+1; "
-                         "compare with the path of a flat spec instead", file=spacetime.path, key="compare.with")
+    _check_flat_comparison(spacetime, True)
     flat = [Probe(p.name, p.radius, 1.0, p.gap, p.sigma, p.alpha * p.centre, p.switching) for p in probes]
     position = [point.radius * point.unit_vector() for point in points]
 

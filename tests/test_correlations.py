@@ -429,3 +429,14 @@ def test_two_detectors_at_the_same_point_are_refused(tmp_path, capsys):
     path = spec_file(str(tmp_path), detectors_toml(("A", "r = 0", 1.0, GAUSSIAN), ("B", "r = 0", 2.0, GAUSSIAN)))
     assert main(["correlations", path]) == 2
     assert "detectors[1].at" in capsys.readouterr().err
+
+
+def test_a_minkowski_comparison_of_a_massive_pair_is_refused_before_any_work(tmp_path, capsys):
+    # Bad input (the flat reference of several detectors is built massless in 3+1): exit 2 naming compare.with,
+    # at once (it had come after the whole computation: 77 s for an array around a 4+1 black hole)
+    path = spec_file(str(tmp_path), TWO)
+    text = open(path).read().replace('mass = "0"', 'mass = "1"') + '\n[compare]\nwith = "minkowski"\n'
+    with open(path, "w") as handle:
+        handle.write(text)
+    assert main(["correlations", path]) == 2
+    assert "compare.with" in capsys.readouterr().err
