@@ -664,6 +664,7 @@ def correlations(spacetime, tolerance: float | None = None, progress=None, refer
     # regular centre a massive field's continuum begins at its threshold (nothing below it but the levels): the
     # frequency panels start there, at the jump (a panel across it had left 2% in a pair's L)
     levels, start, log_period = _pair_continuum(problem)
+    kink = _threshold_outside_horizon(problem)
 
     def spectrum_between(i, j):
         return _spectrum_between(problem, points[i], points[j], state, tolerance, progress, continuum_only=levels)
@@ -704,7 +705,7 @@ def correlations(spacetime, tolerance: float | None = None, progress=None, refer
                     terms = pair_terms_discrete(A, B, modes, light, problem.dimension)
                 else:
                     terms = pair_terms(A, B, spectrum_between(i, j), light, tolerance, problem.dimension,
-                                       start=start, log_period=log_period)
+                                       start=start, log_period=log_period, kink=kink)
                 L_AA, L_BB = (detectors[p.name]["probability"] for p in (A, B))
                 e_AA, e_BB = (detectors[p.name]["error"] for p in (A, B))
                 lam2 = coupling ** 2
@@ -813,6 +814,17 @@ def _on_one_sphere(probes) -> bool:
     return first.radius > 0 and all((p.radius, p.gap, p.switching, p.centre) == (first.radius, first.gap,
                                                                                   first.switching, first.centre)
                                     for p in probes)
+
+
+def _threshold_outside_horizon(problem) -> float | None:
+    """A massive field's threshold outside a black hole (above it the in modes begin, and the spectrum's slope
+    jumps: the pair integrals' panels end there), or None."""
+    from derive.solve.centre import continuum_threshold
+
+    if problem.regions[0].lower_kind != "horizon" or problem.mass == 0.0:
+        return None
+    threshold = continuum_threshold(problem)
+    return threshold if threshold > 0 else None
 
 
 def _check_flat_comparison(spacetime, reference) -> None:

@@ -440,3 +440,18 @@ def test_a_minkowski_comparison_of_a_massive_pair_is_refused_before_any_work(tmp
         handle.write(text)
     assert main(["correlations", path]) == 2
     assert "compare.with" in capsys.readouterr().err
+
+
+def test_pair_rule_ends_its_panels_at_a_kink():
+    # A spectrum whose slope jumps at a massive field's threshold outside a horizon (the in modes begin there):
+    # with the panels ending at the kink the rule integrates each smooth side to rounding (exact integrals of the
+    # polynomial pieces, derived here); across it, Gauss-Legendre errs at the jump's order
+    from derive.detector.correlations import _rule
+
+    def spectrum(w):
+        return np.where(w < 0.7, w ** 2, w ** 2 + 3 * (w - 0.7) ** 2)
+    exact = 2.0 ** 3 / 3 + (2.0 - 0.7) ** 3
+    nodes, weights, _ = _rule(2.0, 8, 0.0, kink=0.7)
+    assert abs(weights @ spectrum(nodes) - exact) < 1e-13 * exact
+    nodes, weights, _ = _rule(2.0, 8, 0.0)
+    assert abs(weights @ spectrum(nodes) - exact) > 1e-8 * exact     # (6e-8 here)

@@ -231,8 +231,10 @@ def frequency_reach(A: Probe, B: Probe, light_time: float | None) -> float:
     return top
 
 
-def _rule(top: float, panels: int, start: float = 0.0, log_period: float | None = None):
-    """Gauss-Legendre on ``panels`` equal panels over [start, top]: (nodes, weights, remainder weights).  With
+def _rule(top: float, panels: int, start: float = 0.0, log_period: float | None = None, kink: float | None = None):
+    """Gauss-Legendre on ``panels`` equal panels over [start, top] (split at ``kink``, where the spectrum's
+    derivative jumps: a massive field's threshold outside a horizon, above which the in modes begin):
+    (nodes, weights, remainder weights).  With
     ``log_period`` (a density oscillating in log k at a supercritical threshold ``start``, k = sqrt(omega^2 -
     start^2)) the first 1/FIRST_PANELS of the range is integrated in t = log k instead, with panels of at most
     min(log_period/2, 1) (as many more as the rule has been doubled) down to k = 1e-5 start; what lies below,
@@ -243,7 +245,12 @@ def _rule(top: float, panels: int, start: float = 0.0, log_period: float | None 
         half = np.diff(edges) / 2
         return ((edges[:-1, None] + half[:, None] * (1 + x[None, :])).ravel(), (half[:, None] * w[None, :]).ravel())
     if log_period is None or start <= 0:
-        nodes, weights = gauss(np.linspace(start, top, panels + 1))
+        if kink is not None and start < kink < top:   # panels end at the kink (a massive field's threshold)
+            below = max(1, int(round(panels * (kink - start) / (top - start))))
+            edges = np.concatenate([np.linspace(start, kink, below + 1), np.linspace(kink, top, panels + 1)[1:]])
+        else:
+            edges = np.linspace(start, top, panels + 1)
+        nodes, weights = gauss(edges)
         return nodes, weights, np.zeros(len(nodes))
     split = start + (top - start) / FIRST_PANELS
     k_top, k_min = np.sqrt(split ** 2 - start ** 2), 1e-5 * start
@@ -257,7 +264,7 @@ def _rule(top: float, panels: int, start: float = 0.0, log_period: float | None 
     return np.concatenate([near, nodes]), np.concatenate([t_weights * k2 / near, weights]), remainder
 
 
-def _integrals(spectrum, integrands, top, tolerance, start=0.0, log_period=None):
+def _integrals(spectrum, integrands, top, tolerance, start=0.0, log_period=None, kink=None):
     """Each integrand(omega, S_+, S_-) -> (values, |factor of S_+|, |factor of S_-|[, absolute error of values])
     integrated over [start, top] on doubled panel rules until two successive ones agree (to the tolerance, or
     within the spectral errors carried through); returns (value, error, scale) each.  ``spectrum(omegas)`` -> (S_+,
@@ -266,7 +273,7 @@ def _integrals(spectrum, integrands, top, tolerance, start=0.0, log_period=None)
     previous = None
     panels = FIRST_PANELS
     while True:
-        nodes, weights, remainder = _rule(top, panels, start, log_period)
+        nodes, weights, remainder = _rule(top, panels, start, log_period, kink)
         s_plus, e_plus, s_minus, e_minus = spectrum(nodes)
         results = []
         for integrand in integrands:
@@ -369,7 +376,8 @@ def _pair_result(parts, tail) -> PairResult:
 
 
 def pair_terms(A: Probe, B: Probe, spectrum, light_time: float | None, tolerance: float, dimension: int = 4,
-               time_ordered: bool = True, start: float = 0.0, log_period: float | None = None) -> PairResult:
+               time_ordered: bool = True, start: float = 0.0, log_period: float | None = None,
+               kink: float | None = None) -> PairResult:
     """L_AB and M (each per lambda^2) between two detectors, with errors; ``spectrum(omegas)`` gives
     (S_+, e_+, S_-, e_-) between A's point and B's in the state.  Gaussian switchings use the closed-form kernels
     of M, others ``TimeOrdered``; the part of the frequency integrals beyond the reach of an algebraically decaying
@@ -378,9 +386,11 @@ def pair_terms(A: Probe, B: Probe, spectrum, light_time: float | None, tolerance
     breakpoints of K where the smoothed sign is at most 1, the same bound is taken as an estimate).  Without
     ``time_ordered`` only L_AB (M and its parts zero; no light time needed).  ``start``: the spectrum is zero
     below it (a massive field's continuum threshold with a regular centre: panels start there, at the jump);
-    ``log_period``: the spectrum oscillates in log k there (a supercritical inverse-square tail, :func:`_rule`)."""
+    ``log_period``: the spectrum oscillates in log k there (a supercritical inverse-square tail, :func:`_rule`);
+    ``kink``: panels end there (a massive field's threshold outside a horizon)."""
     integrands, top, tail = _pair_integrands(A, B, light_time, dimension, time_ordered)
-    return _pair_result(_integrals(spectrum, integrands, max(top, 2 * start), tolerance, start, log_period), tail)
+    return _pair_result(_integrals(spectrum, integrands, max(top, 2 * start), tolerance, start, log_period, kink),
+                        tail)
 
 
 def pair_terms_discrete(A: Probe, B: Probe, modes, light_time: float, dimension: int = 4) -> PairResult:
