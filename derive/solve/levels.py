@@ -118,6 +118,14 @@ class LevelSum:
         return float(self.model.strength[0] * self.model.spacing * self.model.threshold)
 
 
+def _spread(states: BoundStates, last: int) -> float:
+    """The largest relative error of the last ``last`` found weights, each against itself (between two points
+    against the mean diagonal weight), not against BoundStates.size's floor of 1e-3 of the largest: the fitted
+    levels' errors carried into the tail in proportion."""
+    own = np.abs(states.weight) if states.scale is None else states.scale
+    return float(np.max(states.weight_error[-last:] / np.maximum(own[-last:], 1e-300)))
+
+
 def _geometric_tail(states: BoundStates, threshold: float, s: float, power) -> tuple[np.ndarray, np.ndarray]:
     """The levels beyond the found ones of a geometric series, sum over them of w_n g(omega_n), and its error.
 
@@ -127,7 +135,7 @@ def _geometric_tail(states: BoundStates, threshold: float, s: float, power) -> t
     corrections of order (kappa L)^2 that die along the series.  The tail continues from the last found level
     with these ratios; its error is the difference from continuing it with the last found pair's own ratios
     (whose corrections are larger than any beyond), or the whole tail when only one level was found, plus the
-    found levels' weight errors carried in proportion."""
+    last two found weights' errors carried in proportion."""
     omega, weight = states.omega, states.weight
     kappa = np.sqrt(threshold ** 2 - omega ** 2)
 
@@ -144,8 +152,7 @@ def _geometric_tail(states: BoundStates, threshold: float, s: float, power) -> t
         error = np.abs(tail - measured)
     else:
         error = np.abs(tail)
-    spread = float(np.max(states.weight_error / states.size))
-    return tail, error + 10 * spread * np.abs(tail)
+    return tail, error + 10 * _spread(states, min(2, len(omega))) * np.abs(tail)
 
 
 def _tail(model: LevelModel, first: int, power) -> tuple[np.ndarray, np.ndarray]:
@@ -231,8 +238,7 @@ def level_sum(problem, power, terms_of, tolerance: float, scale: np.ndarray, l: 
         tail, rest_error = _tail(model, first, power)
         other, _ = _tail(rougher, first, power)
         # the fitted levels' own errors, carried into the tail in proportion (the fit is an extrapolation)
-        spread = float(np.max(states.weight_error[-TERMS:] / states.size[-TERMS:]))
-        tail_error = np.abs(tail - other) + rest_error + 10 * spread * np.abs(tail)
+        tail_error = np.abs(tail - other) + rest_error + 10 * _spread(states, TERMS) * np.abs(tail)
         result = LevelSum(states, found, found_error, tail, tail_error, model)
         worst = float(np.max(result.error / np.maximum(np.abs(scale), 1e-300)))
         if best is not None and worst >= best[0]:
