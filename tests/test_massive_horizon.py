@@ -230,3 +230,17 @@ def test_a_massive_field_outside_a_five_dimensional_black_hole_is_thermal(tmp_pa
     ratio = F_minus / (np.exp(gap / T + 1 / (4 * sigma ** 2 * T ** 2)) * F_shifted)
     assert abs(ratio - 1) <= 2 * (e_minus / F_minus + e_shifted / F_shifted) + 1e-12
     assert abs(ratio - 1) < 1e-8
+
+
+def test_a_five_dimensional_black_hole_that_traps_waves_is_refused_naming_them(tmp_path, capsys):
+    # m mu^2 = 4 > 3/4: V -> mu^2 + c/r^2 with c = 3/4 - m mu^2 = -13/4 (supercritical: s = sqrt(-c - 1/4) =
+    # sqrt(3)), so l = 0 holds infinitely many quasi-bound resonances in a geometric series, kappa ratio
+    # e^(-pi/s) (Case 1950, from memory); l = 1 (c = 15/4 - 4 = -1/4) is critical, not supercritical
+    with open(os.path.join(ROOT, "worked", "tangherlini_5d", "spec.toml")) as handle:
+        text = handle.read().replace('mass = "0"', 'mass = "2"')
+    path = tmp_path / "tangherlini_trapping.toml"
+    path.write_text(text)
+    assert main(["response", str(path)]) == 2
+    message = capsys.readouterr().err
+    assert f"l = 0 (kappa_(n+1)/kappa_n -> {np.exp(-np.pi / np.sqrt(3)):.4g}, s = 1.73205)" in message
+    assert "l = 1 (" not in message

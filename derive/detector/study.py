@@ -185,6 +185,23 @@ def missing_resonances(problem) -> str:
     l = 1 (frequency of the spec's time and width), and that every l has infinitely many."""
     from derive.solve.resonances import quasi_bound
 
+    from derive.solve.centre import continuum_threshold, efimov_exponent, has_coulomb_tail
+
+    if not has_coulomb_tail(problem):
+        # an inverse-square tail: the l whose tail is supercritical hold a geometric series each (not listed)
+        series = []
+        for l in range(0, 64):
+            s = efimov_exponent(problem, l)
+            if s is None:
+                break
+            series.append(f"l = {l} (kappa_(n+1)/kappa_n -> {np.exp(-np.pi / s):.4g}, s = {s:.6g})")
+        threshold = continuum_threshold(problem)
+        if series:
+            return ("missing are the resonances of " + ", ".join(series) + ": infinitely many of each, accumulating "
+                    f"at omega = {threshold:.10g} in a geometric series of kappa = sqrt(mu^2 - omega^2) (their "
+                    "inverse-square tail is supercritical), and any held by a well beyond a barrier in other l")
+        return (f"missing are the resonances held by a well beyond the potential's barrier, below omega = "
+                f"{threshold:.10g} (derive lists resonances of a Coulomb-like well only)")
     try:
         listed = [f"l = {l}: omega = {quasi_bound(problem, l, 3).describe()}" for l in (0, 1)]
     except Exception:       # noqa: BLE001 (the message only; the refusal stands either way)
