@@ -236,9 +236,9 @@ def _rule(top: float, panels: int, start: float = 0.0, log_period: float | None 
     derivative jumps: a massive field's threshold outside a horizon, above which the in modes begin):
     (nodes, weights, remainder weights).  With
     ``log_period`` (a density oscillating in log k at a supercritical threshold ``start``, k = sqrt(omega^2 -
-    start^2)) the first 1/FIRST_PANELS of the range is integrated in t = log k instead, with panels of at most
-    min(log_period/2, 1) (as many more as the rule has been doubled) down to k = 1e-5 start; what lies below,
-    ~S k^2/(2 omega), is bounded by the remainder weight k_min^2/start at the lowest node (zero elsewhere)."""
+    start^2)) the first 1/FIRST_PANELS of the range is integrated in t = log k instead (the single detector's
+    panels, derive.detector.response.log_k_edges, as many more as the rule has been doubled); what lies below
+    k_min is bounded by the remainder weight at the lowest node (zero elsewhere)."""
     x, w = np.polynomial.legendre.leggauss(NODES)
 
     def gauss(edges):
@@ -252,16 +252,16 @@ def _rule(top: float, panels: int, start: float = 0.0, log_period: float | None 
             edges = np.linspace(start, top, panels + 1)
         nodes, weights = gauss(edges)
         return nodes, weights, np.zeros(len(nodes))
+    from derive.detector.response import from_log_k, log_k_edges
+
     split = start + (top - start) / FIRST_PANELS
-    k_top, k_min = np.sqrt(split ** 2 - start ** 2), 1e-5 * start
-    count = max(int(np.ceil(np.log(k_top / k_min) / min(log_period / 2, 1.0))), 2) * panels // FIRST_PANELS
-    t, t_weights = gauss(np.linspace(np.log(k_min), np.log(k_top), count + 1))
-    k2 = np.exp(2 * t)
-    near = np.sqrt(start ** 2 + k2)
+    t_edges, below = log_k_edges(start, split, log_period, max(1, panels // FIRST_PANELS))
+    t, t_weights = gauss(t_edges)
+    near, jacobian = from_log_k(start, t)
     nodes, weights = gauss(np.linspace(split, top, panels + 1))
     remainder = np.zeros(len(near) + len(nodes))
-    remainder[0] = k_min ** 2 / start
-    return np.concatenate([near, nodes]), np.concatenate([t_weights * k2 / near, weights]), remainder
+    remainder[0] = below
+    return np.concatenate([near, nodes]), np.concatenate([t_weights * jacobian, weights]), remainder
 
 
 def _integrals(spectrum, integrands, top, tolerance, start=0.0, log_period=None, kink=None):

@@ -96,23 +96,38 @@ def _pair_rules(a, b):
     return nodes, weights, coarse
 
 
-def _log_panels(start: float, edges, log_period: float):
-    """The rule of :func:`_panels` with its first panel, [start, edges[0]], in t = log k, k = sqrt(nu^2 - start^2):
-    an even number of panels of width at most min(log_period/2, 1) down to k_min = 1e-5 start (nu then still
-    holds k^2 to ~1e-6), then ``edges`` (an even number of panels) in nu.  The part below k_min, about
-    S k_min^2/(2 nu) for an S that oscillates about its mean (5e-11 of the density times nu), is left out of the
-    fine rule and put into the coarse one twice over at the lowest node's S: their difference, the error
-    estimate, carries it."""
-    k_top, k_min = np.sqrt(edges[0] ** 2 - start ** 2), 1e-5 * start
-    count = max(int(np.ceil(np.log(k_top / k_min) / min(log_period / 2, 1.0))), 2)
+K_MIN = 1e-5       # the log-k rules stop at k = K_MIN start (nu then still holds k^2 to ~1e-6)
+
+
+def log_k_edges(start: float, top: float, log_period: float, multiple: int = 1):
+    """Panel edges in t = log k, k = sqrt(nu^2 - start^2), over [start, top] for a density that oscillates in
+    log k with period ``log_period`` at the threshold ``start`` without falling off: an even number of panels of
+    width at most min(log_period/2, 1) (``multiple`` times as many, for a doubled rule) from k_min = K_MIN start
+    to k(top), where the integrand S k^2/nu is smooth and falls like e^(2t).  Returns (edges, the remainder
+    weight k_min^2/start: about twice what lies below k_min, S k_min^2/(2 nu) for an S that oscillates about its
+    mean)."""
+    k_top, k_min = np.sqrt(top ** 2 - start ** 2), K_MIN * start
+    count = max(int(np.ceil(np.log(k_top / k_min) / min(log_period / 2, 1.0))), 2) * multiple
     count += count % 2
-    t_edges = np.linspace(np.log(k_min), np.log(k_top), count + 1)
-    t, w_t, c_t = _pair_rules(t_edges[:-1], t_edges[1:])
+    return np.linspace(np.log(k_min), np.log(k_top), count + 1), k_min ** 2 / start
+
+
+def from_log_k(start: float, t):
+    """(nu, dnu/dt) at t = log sqrt(nu^2 - start^2)."""
     k2 = np.exp(2 * t)
-    nu_t = np.sqrt(start ** 2 + k2)
-    jacobian = k2 / nu_t                     # dnu/dt
+    nu = np.sqrt(start ** 2 + k2)
+    return nu, k2 / nu
+
+
+def _log_panels(start: float, edges, log_period: float):
+    """The rule of :func:`_panels` with its first panel, [start, edges[0]], in t = log k (:func:`log_k_edges`),
+    then ``edges`` (an even number of panels) in nu.  The part below k_min is left out of the fine rule and put
+    into the coarse one at the lowest node's S: their difference, the error estimate, carries it."""
+    t_edges, remainder = log_k_edges(start, edges[0], log_period)
+    t, w_t, c_t = _pair_rules(t_edges[:-1], t_edges[1:])
+    nu_t, jacobian = from_log_k(start, t)
     c_t = c_t * jacobian
-    c_t[0, 0] += k_min ** 2 / start
+    c_t[0, 0] += remainder
     nodes, weights, coarse = _pair_rules(edges[:-1], edges[1:])
     return (np.concatenate([nu_t.ravel(), nodes.ravel()]), np.concatenate([(w_t * jacobian).ravel(), weights.ravel()]),
             np.concatenate([c_t.ravel(), coarse.ravel()]))
