@@ -321,10 +321,12 @@ def test_non_static_region_is_refused(write_spec, capsys):
 
 
 @pytest.mark.slow
-def test_transfer_matrix_through_named_quantities_equals_the_substituted_one():
+def test_transfer_matrix_through_named_quantities_equals_the_solved_matching_condition():
     """T = [[1, 0], [n (F_2 - F_1)/(2R) - 2 s xi [K] N, 1]] (derived in derive/fields/matching.py from the
-    matching condition with P_i = F_i R^n) agrees with the matrix solved from the condition itself, for a shell
-    with curvature coupling (the de Sitter bubble, conformal) and without (the charged shell)."""
+    matching condition with P_i = F_i R^n), which derive substitutes and shortens, agrees with the matrix
+    solved here from the condition itself, [P psi_r] = -2 s xi [K] w psi at the shell (the jump of the radial
+    flux; docs/conventions.md section 5), for a shell with curvature coupling (the de Sitter bubble, conformal)
+    and without (the charged shell)."""
     import os
 
     import sympy as sp
@@ -332,15 +334,25 @@ def test_transfer_matrix_through_named_quantities_equals_the_substituted_one():
     import derive
 
     root = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+    u, du1, du2 = sp.symbols("u du1 du2")
     for name in ("de_sitter_bubble", "charged_shell"):
         st = derive.load(os.path.join(root, "worked", name, "spec.toml"))
         exact = {k: sp.Rational(v) for k, v in st.parameter_values.items()}
         for matching in st.field_problem.interfaces:
+            p, R = matching.pieces, matching.shell.position
+            n, xi = p["first"]["n"], matching.problem.spacetime.field.coupling
+
+            root_n = R ** sp.Rational(-n, 2)      # psi = r^{-n/2} u; du = du/dr* = F du/dr
+            flux = [p[side]["P"] * root_n * (du / p[side]["F"] - n * u / (2 * R))
+                    for side, du in (("first", du1), ("second", du2))]
+            jump = -2 * p["orientation"] * xi * matching.shell.extrinsic_curvature["trace_jump"] * p["first"]["w"]
+            (solved,) = sp.solve(sp.Eq(flux[1], flux[0] + jump * root_n * u), du2)
+            solved = sp.expand(solved)
+            expected = sp.Matrix([[1, 0], [solved.coeff(u), solved.coeff(du1)]])
             named, quantities = matching.named_transfer_matrix
             assert named[1, 1] == 1 and named[0, 0] == 1 and named[0, 1] == 0
-            substituted = named.subs(quantities)
             for i in range(2):
                 for j in range(2):
-                    a = sp.N(substituted[i, j].subs(exact), 30)
+                    a = sp.N(expected[i, j].subs(exact), 30)
                     b = sp.N(matching.transfer_matrix[i, j].subs(exact), 30)
                     assert abs(a - b) <= 1e-25 * (1 + abs(b))
