@@ -4,7 +4,8 @@ DIR receives derivation.tex (and derivation.pdf where pdflatex is found), kernel
 spectrum and response tables (CSV) and plots (PNG and PDF), summary.json (key results, each with its error) and
 provenance.json (spec hash, versions, tolerances, timings).  Everything is written into a staging folder beside
 DIR and moved into place at the end: a run that fails or is interrupted leaves an earlier DIR as it was.
-Stages the solver cannot do yet for this spacetime are skipped with the reason recorded in summary.json.
+Stages the solver cannot do yet for this spacetime are refused with the reason recorded in summary.json ("refused",
+and "status": "refused"); the rest is still written, and the run then exits 2 naming them.
 """
 
 from __future__ import annotations
@@ -95,7 +96,8 @@ def run(spacetime, out: str, tolerance: float = 1e-10, progress=print, l_progres
             timings["kernels"] = time.perf_counter() - start
         if kernels is not None:
             _numerics(spacetime, staging, tolerance, summary, timings, progress, l_progress)
-        summary["status"] = "tolerance not met" if summary.get("shortfalls") else "ok"
+        summary["status"] = ("refused" if summary.get("refused") else
+                             "tolerance not met" if summary.get("shortfalls") else "ok")
         summary["tolerance"] = tolerance
         start = time.perf_counter()
         figures = [name for name, _ in FIGURES if os.path.isfile(os.path.join(staging, name))]
@@ -120,6 +122,13 @@ def run(spacetime, out: str, tolerance: float = 1e-10, progress=print, l_progres
     except BaseException:
         shutil.rmtree(staging, ignore_errors=True)
         raise
+    if summary.get("refused"):      # what derive cannot serve exits 2 as the stage's own command does
+        from derive.errors import NotSupported
+
+        shortfalls = "; ".join(f"{k} missed its tolerance: {v}" for k, v in summary.get("shortfalls", {}).items())
+        raise NotSupported(f"{out} holds everything else derive reached; refused: "
+                           + "; ".join(f"{k}: {v}" for k, v in summary["refused"].items())
+                           + (f"; {shortfalls}" if shortfalls else ""))
     if summary.get("shortfalls"):
         from derive.errors import AccuracyError
 
@@ -209,13 +218,15 @@ def _detector_radius(spacetime) -> float:
 
 
 def _try(summary, stage, compute):
-    """compute(), or None with the reason under summary["skipped"] when derive cannot serve it yet."""
+    """compute(), or None with the reason under summary["skipped"] and summary["refused"] when derive cannot serve
+    it yet (the run goes on, writes what it reaches, and then exits 2 naming what was refused)."""
     from derive.errors import NotSupported
 
     try:
         return compute()
     except NotSupported as exc:
         summary["skipped"][stage] = str(exc)
+        summary.setdefault("refused", {})[stage] = str(exc)
         return None
 
 

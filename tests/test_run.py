@@ -85,6 +85,24 @@ def test_run_on_a_black_hole_writes_greybody_factors_and_the_three_states(tmp_pa
     assert (out / "spectrum.csv").is_file() and (out / "response.png").is_file()
 
 
+
+@pytest.mark.slow
+def test_a_refused_response_is_written_around_and_exits_2(tmp_path, capsys):
+    # a massive field outside a black hole: the response is refused (its quasi-bound resonances are not summed);
+    # run writes everything else, says so in summary.json, and exits 2 as derive response does (it exited 0)
+    text = open(os.path.join(ROOT, "worked", "schwarzschild", "spec.toml")).read().replace('mass = "0"',
+                                                                                           'mass = "0.4"')
+    spec = tmp_path / "massive.toml"
+    spec.write_text(text)
+    out = tmp_path / "result"
+    assert main(["run", str(spec), "--out", str(out), "--quiet"]) == 2
+    message = capsys.readouterr().err
+    assert str(out) in message and "refused: response:" in message and "quasi-bound" in message
+    summary = json.loads((out / "summary.json").read_text())
+    assert summary["status"] == "refused" and "quasi-bound" in summary["refused"]["response"]
+    assert {"derivation.tex", "spectrum.csv", "summary.json", "provenance.json"} <= set(os.listdir(out))
+    assert "response.csv" not in os.listdir(out)
+
 @pytest.mark.slow
 def test_demo_end_to_end(tmp_path, capsys):
     assert main(["demo", "--out", str(tmp_path / "demo")]) == 0
