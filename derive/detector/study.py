@@ -203,10 +203,11 @@ def missing_resonances(problem) -> str:
         return (f"missing are the resonances held by a well beyond the potential's barrier, below omega = "
                 f"{threshold:.10g} (derive lists resonances of a Coulomb-like well only)")
     try:
-        listed = [f"l = {l}: omega = {quasi_bound(problem, l, 3).describe()}" for l in (0, 1)]
+        found = [quasi_bound(problem, l, 3) for l in (0, 1)]
     except Exception:       # noqa: BLE001 (the message only; the refusal stands either way)
         return "any resonances below the mass, of every l, are missing (they are listed for a Coulomb-like well only)"
-    return "missing are the resonances of every l, the lowest " + "; ".join(listed)
+    listed = [f"l = {r.l}: " + ("omega = " if len(r.omega) else "") + r.describe() for r in found]
+    return "missing are the resonances of every l; of the lowest, " + "; ".join(listed)
 
 
 def local_temperature(problem, sqrt_f0: float) -> float | None:
