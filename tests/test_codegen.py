@@ -122,6 +122,47 @@ def test_horizon_cancellation_is_avoided():
     assert v.status == "verified" and v.max_relative_error < 1e-14 and v.form == "as derived"
 
 
+LUMP = """
+format = 1
+title = "Gaussian lump"
+[parameters]
+a = { value = 0.3, positive = true }
+[coordinates]
+names = ["t", "r", "theta", "phi"]
+positive = ["r"]
+[[region]]
+name = "lump"
+where = "r >= 0"
+line_element = "-(1 - a*r**2*exp(-r**2))*dt**2 + dr**2/(1 - a*r**2*exp(-r**2)) + r**2*(dtheta**2 + sin(theta)**2*dphi**2)"
+[field]
+mass = "0"
+coupling = "0"
+"""
+
+
+def test_growing_exponentials_are_written_to_stay_finite_far_out(write_spec):
+    # f = h = 1 - a r^2 e^(-r^2): sympy's dr*/dr = e^(r^2)/(e^(r^2) - a r^2) overflowed past r ~ 27 (the kernel was
+    # flagged and the solver refused it); derive writes it through e^(-r^2).  Reference: mpmath at 40 digits of
+    # dr*/dr = 1/f and V = f (l(l+1)/r^2 + f'/r) for a minimally coupled massless field with f = h (common practice)
+    st = derive.load(write_spec(LUMP))
+    kernels = KernelSet(st)
+    kernels.require_verified()
+    a = 0.3
+    mpmath.mp.dps = 40
+    try:
+        f = (lambda x: 1 - a * x ** 2 * mpmath.exp(-x ** 2))
+        for r in (0.5, 3.0, 30.0, 1e3, 1e8):
+            x = mpmath.mpf(r)
+            dt = float(kernels.get("dtortoise_dr", "lump").kernel(np.array([r]), a)[0])
+            assert abs(dt - float(1 / f(x))) <= 1e-15
+            for l in (0, 3):
+                V = float(kernels.get("potential", "lump").kernel(np.array([r]), l, 1.0, a)[0])
+                exact = f(x) * (l * (l + 1) / x ** 2 + mpmath.diff(f, x) / x)
+                assert abs(V - float(exact)) <= 1e-14 * abs(float(exact)) + 1e-300
+    finally:
+        mpmath.mp.dps = 15
+
+
 @pytest.mark.slow
 def test_flagged_kernels_are_refused_by_the_solver_gate():
     st = derive.load(os.path.join(WORKED, "charged_shell", "spec.toml"))

@@ -90,6 +90,41 @@ def rationalise_differences(expr):
     return visit(sp.S(expr))
 
 
+def tame_exponentials(expr, r, values, far: float = 1e6):
+    """exp(g(r)) with g growing (g > 1 at r = ``far`` at the spec's values) written through z = exp(-g0): with
+    every exponential a rational power of one, the expression is rational in z and is cancelled to positive
+    powers of z, which underflow gracefully far out where exp(g) overflows (e^(r^2)/(e^(r^2) - a) becomes
+    1/(1 - a e^(-r^2)), finite at every r).  Exact; the expression unchanged where its exponentials are not of
+    that kind, or where the rewriting would take more than a few seconds."""
+    from derive.geometry.checks import bounded
+
+    expr = sp.S(expr)
+    exps = [e for e in expr.atoms(sp.exp) if e.args[0].has(r)]
+    if not exps:
+        return expr
+
+    def at_far(g):
+        value = sp.N(g.subs(values).subs(r, far), 15)
+        return float(value) if value.is_number and value.is_real else None
+
+    growing = [e for e in exps if (at_far(e.args[0]) or 0.0) > 1.0]
+    if not growing:
+        return expr
+    unit = growing[0].args[0]
+    powers = {}
+    for e in exps:
+        ratio = sp.simplify(e.args[0] / unit)
+        if not ratio.is_Rational:
+            return expr
+        powers[e] = ratio
+    z = sp.Dummy("z", positive=True)
+
+    def rewrite():
+        rational = expr.xreplace({e: z ** (-k) for e, k in powers.items()})
+        return sp.cancel(sp.together(rational)).xreplace({z: sp.exp(-unit)})
+    return bounded(rewrite, expr, seconds=5.0)
+
+
 def radial_bounds(region, values) -> tuple[float, float | None]:
     """(lower, upper) radius of a RegionField at the parameters' values; a horizon end is its root r_h as the
     kernels see it (the double r_h), never the bound's expression evaluated afresh."""
@@ -189,17 +224,20 @@ class KernelSet:
             for name, original in problem.regions.items():
                 region = original.factored   # horizons divided out of f and h (derive/fields/horizons.py)
                 r = region.r
+                tame = (lambda e, r=r: tame_exponentials(e, r, self.values))
                 domain = {"region": name, "r": self._radial_domain(original)}
                 tag = _identifier(name)
-                out.append(self._entry(region.potential, (r, L_SYMBOL, OMEGA) + params, f"potential_{tag}",
+                out.append(self._entry(tame(region.potential), (r, L_SYMBOL, OMEGA) + params, f"potential_{tag}",
                                        "potential", name, "region", domain))
-                out.append(self._entry(region.dtortoise_dr, (r,) + params, f"dtortoise_dr_{tag}", "dtortoise_dr",
-                                       name, "region", domain))
+                out.append(self._entry(tame(region.dtortoise_dr), (r,) + params, f"dtortoise_dr_{tag}",
+                                       "dtortoise_dr", name, "region", domain))
                 if region.tortoise is not None:
-                    out.append(self._entry(region.tortoise, (r,) + params, f"tortoise_{tag}", "tortoise", name,
+                    out.append(self._entry(tame(region.tortoise), (r,) + params, f"tortoise_{tag}", "tortoise", name,
                                            "region", domain))
-                out.append(self._entry(region.f, (r,) + params, f"metric_f_{tag}", "metric_f", name, "region", domain))
-                out.append(self._entry(region.h, (r,) + params, f"metric_h_{tag}", "metric_h", name, "region", domain))
+                out.append(self._entry(tame(region.f), (r,) + params, f"metric_f_{tag}", "metric_f", name, "region",
+                                       domain))
+                out.append(self._entry(tame(region.h), (r,) + params, f"metric_h_{tag}", "metric_h", name, "region",
+                                       domain))
                 for side, end in original.ends.items():
                     if end["kind"] == "regular centre" and end.get("series"):
                         coefficients = [end["regular_exponent"]] + list(end["series"])
