@@ -380,12 +380,9 @@ def _multipole_parts(problem, r0, state, tolerance):
     if problem.regions[0].lower_kind == "horizon":
         from derive.solve.exterior import exterior_multipole
 
-        if problem.mass != 0.0:
-            # (measured where nothing is trapped, outside a 4+1 black hole: the weights' sum came out 0.63 below the
-            # single detector's response, which the KMS identity confirms; the multipoles' part below the mass is
-            # not right yet)
-            raise Unsupported("a massive field's multipoles outside a horizon are not built (below the mass only the "
-                              "up modes reach, and where the potential traps waves there are quasi-bound resonances)")
+        from derive.detector.study import refuse_trapped_resonances
+
+        refuse_trapped_resonances(problem)
         first = exterior_multipole(problem, np.array([1.0]), r0, 0, tolerance)
         if state not in first.states:
             raise Unsupported(f"state {state!r} outside a horizon: one of {', '.join(first.states)}")

@@ -244,3 +244,33 @@ def test_a_five_dimensional_black_hole_that_traps_waves_is_refused_naming_them(t
     message = capsys.readouterr().err
     assert f"l = 0 (kappa_(n+1)/kappa_n -> {np.exp(-np.pi / np.sqrt(3)):.4g}, s = 1.73205)" in message
     assert "l = 1 (" not in message
+
+
+@pytest.mark.slow
+def test_an_array_of_a_massive_field_outside_a_five_dimensional_black_hole_decomposes_into_multipoles(tmp_path,
+                                                                                                      capsys):
+    # Two detectors on r = 2 around the 4+1 black hole (m = 1, mu = 0.5: nothing trapped), a quarter turn apart, in
+    # the Hartle-Hawking state.  A consistency check of derive's own (not an outside value): the multipole weights
+    # sum to the single detector's response, and sum_l w_l G_l(cos gamma) (Gegenbauer, index 1 on the 3-sphere) is
+    # the pair's L_AB.  The weights' frequency integrals had started at the mass, where outside a horizon the up
+    # modes reach below it: they summed to 15% of the response.
+    from derive.solve.offcentre import angular_factor
+
+    from test_correlations import detectors_toml
+
+    with open(os.path.join(ROOT, "worked", "tangherlini_5d", "spec.toml")) as handle:
+        text = handle.read().replace('mass = "0"', 'mass = "0.5"')
+    wide = '{ shape = "gaussian", width = "5" }'
+    text = text[:text.index("[detector]")] + '[detector]\nstate = "hartle-hawking"\ncoupling = 0.01\n' + detectors_toml(
+        ("A", "r = 2, chi = pi/2, theta = pi/2, phi = 0", 0.25, wide),
+        ("B", "r = 2, chi = pi/2, theta = pi/2, phi = pi/2", 0.25, wide))
+    path = tmp_path / "array.toml"
+    path.write_text(text)
+    assert main(["correlations", str(path), "--json", "--tolerance", "1e-5", "--quiet"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    weights, errors = np.array(data["multipoles"]["weight"]), np.array(data["multipoles"]["error"])
+    single = data["detectors"]["A"]
+    assert abs(weights.sum() - single["probability"]) <= errors.sum() + single["error"] + 1e-9 * single["probability"]
+    (pair,) = data["pairs"]
+    series = sum(w * angular_factor(l, 3, 0.0) for l, w in enumerate(weights))
+    assert abs(series - pair["L"][0]) <= errors.sum() + pair["error"]["L"] + 1e-9 * abs(pair["L"][0])

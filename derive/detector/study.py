@@ -113,24 +113,7 @@ def proper_density(problem, tolerance, r0: float = 0.0, state: str = "vacuum", p
         if state == "vacuum":
             raise Unsupported("outside a horizon 'vacuum' is ambiguous: set [detector] state to 'boulware', "
                               "'hartle-hawking' or 'unruh'")
-        from derive.solve.bound import is_ads
-
-        from derive.solve.cosmological import has_cosmological_horizon
-
-        # a reflecting AdS boundary has no well and no continuum; between a black hole's and a cosmological
-        # horizon V falls to zero at both ends, so nothing is trapped below the mass: no resonances there either;
-        # nor where the potential rises from the horizon to the mass with no well beyond its barrier (a 4+1 black
-        # hole's repulsive inverse-square tail: m mu^2 < 3/4), and the density below the mass is smooth
-        if (problem.mass != 0.0 and not is_ads(problem) and not has_cosmological_horizon(problem)
-                and traps_below_threshold(problem)):
-            well = ("the Coulomb-like well of a 3+1 black hole, infinitely many" if has_coulomb_tail(problem)
-                    else "wherever the potential has a well")
-            raise Unsupported("a massive field outside a horizon has quasi-bound resonances below the mass (" + well
-                              + "; widths can be many orders below their frequency), which the frequency "
-                              "quadrature of the response would not resolve, and their share is not built: "
-                              + missing_resonances(problem) + ". The response is not computed; derive spectrum "
-                              "gives the density at any frequency (and lists the resonances of a Coulomb-like "
-                              "well)")
+        refuse_trapped_resonances(problem)
 
         def density_at(nu):
             result = _exterior(problem, sqrt_f0 * np.asarray(nu), r0, tolerance, progress)
@@ -332,6 +315,28 @@ def structure_panel(problem, sqrt_f0: float, r0: float, panel=None):
     if bound is None:
         return panel
     return bound if panel is None else min(panel, bound)
+
+
+def refuse_trapped_resonances(problem) -> None:
+    """Unsupported, naming what is missing, for a massive field outside a horizon whose potential can trap waves
+    below the mass (quasi-bound resonances, too narrow for any frequency quadrature; their share is not built)."""
+    from derive.solve.bound import is_ads
+    from derive.solve.cosmological import has_cosmological_horizon
+
+    # a reflecting AdS boundary has no well and no continuum; between a black hole's and a cosmological
+    # horizon V falls to zero at both ends, so nothing is trapped below the mass: no resonances there either;
+    # nor where the potential rises from the horizon to the mass with no well beyond its barrier (a 4+1 black
+    # hole's repulsive inverse-square tail: m mu^2 < 3/4), and the density below the mass is smooth
+    if (problem.mass != 0.0 and not is_ads(problem) and not has_cosmological_horizon(problem)
+            and traps_below_threshold(problem)):
+        well = ("the Coulomb-like well of a 3+1 black hole, infinitely many" if has_coulomb_tail(problem)
+                else "wherever the potential has a well")
+        raise Unsupported("a massive field outside a horizon has quasi-bound resonances below the mass (" + well
+                          + "; widths can be many orders below their frequency), which the frequency "
+                          "quadrature of the response would not resolve, and their share is not built: "
+                          + missing_resonances(problem) + ". The response is not computed; derive spectrum "
+                          "gives the density at any frequency (and lists the resonances of a Coulomb-like "
+                          "well)")
 
 
 def frequency_threshold(problem, sqrt_f0: float) -> float:
