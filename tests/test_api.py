@@ -20,6 +20,18 @@ def test_load_takes_overrides_as_keywords():
     assert derive.load(SHELL, {"M": 0.2}, R=2.0).parameters["R"].value == 2.0
 
 
+@pytest.mark.parametrize("overrides, key", [({"M": "heavy"}, "parameters.M.value"), ({"M": True}, "parameters.M.value"),
+                                            ({"M": [0.1]}, "parameters.M.value"), ({"Mass": 0.1}, "parameters.Mass")])
+def test_bad_overrides_are_input_errors_naming_the_parameter(overrides, key):
+    # bad input from a notebook: a SpecError (exit 2 on the command line) naming the key, never a bare
+    # ValueError or TypeError from float()
+    from derive.errors import SpecError
+
+    with pytest.raises(SpecError) as caught:
+        derive.load(SHELL, **overrides)
+    assert caught.value.key == key and "override of parameter" in str(caught.value)
+
+
 def test_spectrum_result_is_what_the_command_prints(capsys):
     st = derive.load(SHELL)
     result = st.spectrum([0.5, 2.0], tolerance=1e-10)

@@ -188,6 +188,22 @@ def _plain_text(reader, value, key: str, limit: int) -> str:
     return value
 
 
+def _override_number(value) -> float | None:
+    """A parameter override as a float: a real number (not a bool) or a string that reads as one; else None."""
+    import numbers
+
+    if isinstance(value, bool):
+        return None
+    if isinstance(value, numbers.Real):
+        return float(value)
+    if isinstance(value, str):
+        try:
+            return float(value)
+        except ValueError:
+            return None
+    return None
+
+
 def from_mapping(data: Mapping[str, Any], path: str = "<spec>", overrides: Mapping[str, float] | None = None,
                  raw: bytes | None = None) -> Spacetime:
     """Build a Spacetime from an already parsed TOML mapping (see :func:`load`)."""
@@ -246,9 +262,14 @@ def from_mapping(data: Mapping[str, Any], path: str = "<spec>", overrides: Mappi
         if name not in parameters:
             close = suggest(name, parameters)
             hint = f"; did you mean '{close}'?" if close else ""
-            raise SpecError(f"--set {name}: no such parameter{hint}", file=path, key=f"parameters.{name}")
+            raise SpecError(f"override of parameter {name!r}: no such parameter{hint}", file=path,
+                            key=f"parameters.{name}")
+        number = _override_number(value)
+        if number is None:
+            raise SpecError(f"override of parameter {name!r}: expected a number, got {value!r}", file=path,
+                            key=f"parameters.{name}.value")
         p = parameters[name]
-        parameters[name] = Parameter(name, p.symbol, float(value), p.assumptions)
+        parameters[name] = Parameter(name, p.symbol, number, p.assumptions)
     for p in parameters.values():
         if p.value is not None:
             _check_value(reader, p)
