@@ -28,9 +28,9 @@ def _overrides(pairs) -> dict[str, float]:
 
 
 def _load(args):
-    from derive import load
+    from derive.spec.loader import load
 
-    return load(args.spec, _overrides(args.set))
+    return load(args.spec, _overrides(args.set), origin="--set")
 
 
 def _emit_json(data) -> None:

@@ -117,7 +117,8 @@ class _Reader:
         return value
 
 
-def load(path: str | os.PathLike, overrides: Mapping[str, float] | None = None) -> Spacetime:
+def load(path: str | os.PathLike, overrides: Mapping[str, float] | None = None,
+         origin: str = "override of parameter") -> Spacetime:
     """Read a spec file.
 
     Parameters
@@ -126,6 +127,8 @@ def load(path: str | os.PathLike, overrides: Mapping[str, float] | None = None) 
         The TOML spec file (format 1).
     overrides : mapping of str to float, optional
         Parameter values that replace those in the file (``--set NAME=VALUE``).
+    origin : str
+        How a bad override is named in the message ("--set" on the command line).
     """
     path = os.fspath(path)
     reader = _Reader(path)
@@ -154,7 +157,7 @@ def load(path: str | os.PathLike, overrides: Mapping[str, float] | None = None) 
         reader.fail(f"not valid TOML: {exc}")
     except (RecursionError, MemoryError):
         reader.fail(f"the TOML is nested too deeply (the limit is {MAX_NESTING} levels)")
-    return from_mapping(data, path=path, overrides=overrides, raw=raw)
+    return from_mapping(data, path=path, overrides=overrides, raw=raw, origin=origin)
 
 
 def _nesting(value, key: str = "") -> tuple[int, str]:
@@ -205,7 +208,7 @@ def _override_number(value) -> float | None:
 
 
 def from_mapping(data: Mapping[str, Any], path: str = "<spec>", overrides: Mapping[str, float] | None = None,
-                 raw: bytes | None = None) -> Spacetime:
+                 raw: bytes | None = None, origin: str = "override of parameter") -> Spacetime:
     """Build a Spacetime from an already parsed TOML mapping (see :func:`load`)."""
     reader = _Reader(path)
     depth, deepest = _nesting(data)
@@ -262,11 +265,10 @@ def from_mapping(data: Mapping[str, Any], path: str = "<spec>", overrides: Mappi
         if name not in parameters:
             close = suggest(name, parameters)
             hint = f"; did you mean '{close}'?" if close else ""
-            raise SpecError(f"override of parameter {name!r}: no such parameter{hint}", file=path,
-                            key=f"parameters.{name}")
+            raise SpecError(f"{origin} {name}: no such parameter{hint}", file=path, key=f"parameters.{name}")
         number = _override_number(value)
         if number is None:
-            raise SpecError(f"override of parameter {name!r}: expected a number, got {value!r}", file=path,
+            raise SpecError(f"{origin} {name}: expected a number, got {value!r}", file=path,
                             key=f"parameters.{name}.value")
         p = parameters[name]
         parameters[name] = Parameter(name, p.symbol, number, p.assumptions)
