@@ -1,4 +1,5 @@
-"""Shared fixtures: an isolated disk cache for every test session and a spec-file writer."""
+"""Shared fixtures: an isolated disk cache for every test session, mpmath at its default precision in every test,
+and a spec-file writer."""
 
 import os
 import textwrap
@@ -11,6 +12,18 @@ def _isolated_cache(tmp_path_factory):
     if "DERIVE_CACHE_DIR" not in os.environ:
         os.environ["DERIVE_CACHE_DIR"] = str(tmp_path_factory.mktemp("derive-cache"))
     yield
+
+
+@pytest.fixture(autouse=True)
+def _mpmath_precision():
+    """Every test starts at mpmath's default precision and leaves it so: a test that raised mp.dps and did not
+    restore it made every later test in the same worker run its mpmath at that precision (the sin4 kernel test
+    took 58 s instead of 7 after the AdS tests' 25 digits)."""
+    import mpmath
+
+    mpmath.mp.dps = 15
+    yield
+    mpmath.mp.dps = 15
 
 
 @pytest.fixture
