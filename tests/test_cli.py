@@ -103,3 +103,15 @@ def test_full_derivation_with_shells_and_field_compiles(capsys, tmp_path, exampl
     assert "Second junction condition" in text and "Modes across" in text
     ok, log, pdf = compile_pdf(text)
     assert ok, log
+
+
+def test_a_value_not_reached_is_printed_as_such():
+    # a response value the computation could not reach is null in JSON; the terminal table says so (it had ended
+    # in an internal error formatting None)
+    from derive.report.summary import response_summary
+
+    data = {"switching": {"shape": "gaussian", "width": 1.0, "duration": 10.0, "tail": 1e-12}, "at": 0.0,
+            "state": "vacuum", "gaps": [0.0, 1.0], "response": [0.09, None], "error": [1e-12, None],
+            "locality": {"duration": 10.0, "round_trip": float("inf"), "local": True}, "notes": []}
+    text = response_summary("a test", data)
+    assert "not reached" in text and "9.000000000000000e-02" in text

@@ -23,6 +23,7 @@ from derive.codegen.verify import (TOLERANCE, Verification, check_twin, conditio
                                    reference_values, relative_errors)
 from derive.errors import AccuracyError, InputError
 from derive.fields.radial import L_SYMBOL, OMEGA
+from derive.geometry.checks import tame_exponentials
 
 POINTS = 200
 
@@ -88,41 +89,6 @@ def rationalise_differences(expr):
         numerator = sp.factor(sp.cancel(sp.expand(rest * rest) - square))
         return numerator / (rest - t)
     return visit(sp.S(expr))
-
-
-def tame_exponentials(expr, r, values, far: float = 1e6):
-    """exp(g(r)) with g growing (g > 1 at r = ``far`` at the spec's values) written through z = exp(-g0): with
-    every exponential a rational power of one, the expression is rational in z and is cancelled to positive
-    powers of z, which underflow gracefully far out where exp(g) overflows (e^(r^2)/(e^(r^2) - a) becomes
-    1/(1 - a e^(-r^2)), finite at every r).  Exact; the expression unchanged where its exponentials are not of
-    that kind, or where the rewriting would take more than a few seconds."""
-    from derive.geometry.checks import bounded
-
-    expr = sp.S(expr)
-    exps = [e for e in expr.atoms(sp.exp) if e.args[0].has(r)]
-    if not exps:
-        return expr
-
-    def at_far(g):
-        value = sp.N(g.subs(values).subs(r, far), 15)
-        return float(value) if value.is_number and value.is_real else None
-
-    growing = [e for e in exps if (at_far(e.args[0]) or 0.0) > 1.0]
-    if not growing:
-        return expr
-    unit = growing[0].args[0]
-    powers = {}
-    for e in exps:
-        ratio = sp.simplify(e.args[0] / unit)
-        if not ratio.is_Rational:
-            return expr
-        powers[e] = ratio
-    z = sp.Dummy("z", positive=True)
-
-    def rewrite():
-        rational = expr.xreplace({e: z ** (-k) for e, k in powers.items()})
-        return sp.cancel(sp.together(rational)).xreplace({z: sp.exp(-unit)})
-    return bounded(rewrite, expr, seconds=5.0)
 
 
 def radial_bounds(region, values) -> tuple[float, float | None]:
@@ -278,6 +244,7 @@ class KernelSet:
             if k.atoms(sp.core.function.AppliedUndef) or k.has(sp.Derivative):
                 continue
             domain = {"region": name, "r": None}
+            k = tame_exponentials(k, st.coordinates[1], self.values)
             out.append(self._entry(k, tuple(st.coordinates) + params, f"kretschmann_{_identifier(name)}",
                                    "kretschmann", name, "region", domain))
         names = [e.name for e in out]

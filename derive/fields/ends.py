@@ -16,7 +16,7 @@ from __future__ import annotations
 import sympy as sp
 
 from derive.fields.radial import L_SYMBOL, OMEGA
-from derive.geometry.checks import bounded
+from derive.geometry.checks import beyond_all_orders, bounded
 
 SERIES_ORDER = 2   # shown and exported; the solver continues the recursion numerically
 TIDY_SECONDS = 5.0
@@ -288,9 +288,12 @@ def _infinity(field, V, p=None, q=None) -> dict:
         if lead.is_positive and p is not None:
             end.update(ads_boundary_series(p, q, r))
         return end
+    # exponentially small terms (e^(-r^2) r^k) vanish to every order in 1/r: the series sees the rest (sympy's
+    # series at an essential singularity fails, and a Gaussian lump's tail had been left "unknown")
+    V_power, f_power = (beyond_all_orders(e, r, field.values) for e in (V, f))
     try:
-        expansion = sp.series(V.subs(r, 1 / z), z, 0, 3).removeO()
-        f_expansion = sp.series(f.subs(r, 1 / z), z, 0, 2).removeO()
+        expansion = sp.series(V_power.subs(r, 1 / z), z, 0, 3).removeO()
+        f_expansion = sp.series(f_power.subs(r, 1 / z), z, 0, 2).removeO()
     except Exception:   # sympy could not expand: say so rather than guess
         return {"kind": "infinity", "tail": "unknown"}
     V0, V1, V2 = (_tidy(expansion.coeff(z, k)) for k in range(3))

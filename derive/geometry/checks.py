@@ -116,6 +116,57 @@ def bounded(function, fallback, seconds: float = 10.0):
         return fallback
 
 
+def tame_exponentials(expr, r, values, far: float = 1e6):
+    """exp(g(r)) with g growing (g > 1 at r = ``far`` at the spec's values) written through z = exp(-g0): the
+    exponentials fall into classes of rational multiples of one argument g0 each (exp(r^2) and exp(-2 r^2) in
+    one, exp(r) in another), each class gets its own z, and the expression, rational in the z's, is cancelled
+    to positive powers of them, which underflow gracefully far out where exp(g) overflows
+    (e^(r^2)/(e^(r^2) - a) becomes 1/(1 - a e^(-r^2)), finite at every r).  Exact; the expression unchanged where
+    it has no growing exponential, or where the rewriting would take more than a few seconds."""
+    expr = sp.S(expr)
+    exps = [e for e in expr.atoms(sp.exp) if e.args[0].has(r)]
+
+    def at_far(g):
+        value = sp.N(g.subs(values).subs(r, far), 15)
+        return float(value) if value.is_number and value.is_real else None
+
+    classes = []                          # [first growing argument, {exp: its ratio to it}] per class
+    for e in exps:
+        if (at_far(e.args[0]) or 0.0) > 1.0 and not any(sp.simplify(e.args[0] / c[0]).is_Rational for c in classes):
+            classes.append([e.args[0], {}])
+    if not classes:
+        return expr
+    for e in exps:
+        for c in classes:
+            ratio = sp.simplify(e.args[0] / c[0])
+            if ratio.is_Rational:
+                c[1][e] = ratio
+                break
+    # each class's unit g0: its first argument times the gcd of the ratios, so that every member is an integer
+    # power of z = exp(-g0) (a fractional power would keep cancel from seeing the common factors)
+    steps = [abs(sp.gcd_list(list(c[1].values()))) for c in classes]
+    units = [c[0] * step for c, step in zip(classes, steps)]
+    zs = [sp.Dummy(f"z{k}", positive=True) for k in range(len(units))]
+    replacements = {e: z ** (-(ratio / step)) for c, step, z in zip(classes, steps, zs) for e, ratio in c[1].items()}
+
+    def rewrite():
+        rational = sp.cancel(sp.together(expr.xreplace(replacements)))
+        return rational.xreplace({z: sp.exp(-unit) for z, unit in zip(zs, units)})
+    return bounded(rewrite, expr, seconds=5.0)
+
+
+def beyond_all_orders(expr, r, values, far: float = 1e6):
+    """``expr`` (its growing exponentials tamed) with every exponential that decays at large r set to zero: the
+    part that an asymptotic power series in 1/r sees (e^(-r^2) r^k vanishes to every order)."""
+    expr = tame_exponentials(expr, r, values, far)
+
+    def decays(e):
+        value = sp.N(e.args[0].subs(values).subs(r, far), 15)
+        return e.args[0].has(r) and value.is_number and value.is_real and float(value) < -1.0
+    power = expr.replace(lambda e: isinstance(e, sp.exp) and decays(e), lambda e: sp.Integer(0))
+    return expr if power.has(sp.nan, sp.zoo, sp.oo, -sp.oo) else power
+
+
 def simplify_checked(expr, values: dict):
     """A shorter form of ``expr`` that takes square roots of squares as positive, accepted only if it agrees
     with ``expr`` at 30 digits at the spec's parameter values (so the sign assumption is checked, not made)."""

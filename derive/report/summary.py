@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import math
+
 import sympy as sp
 
 
@@ -178,6 +180,14 @@ def field_summary(spacetime, data) -> str:
     return "\n".join(lines)
 
 
+def _shown(value, spec: str, width: int = 0) -> str:
+    """A number as ``spec``, or "not reached" (right-aligned to ``width``) where there is none (a value the
+    computation could not reach is written as null in JSON)."""
+    if value is None or not math.isfinite(value):
+        return f"{'not reached':>{width}}"
+    return format(value, spec)
+
+
 def response_summary(title: str, data: dict) -> str:
     s = data["switching"]
     size = (f"width {s['width']:g}" if s.get("support") is None
@@ -190,7 +200,7 @@ def response_summary(title: str, data: dict) -> str:
         header += f" {'F_ref':>20} {'rel. difference':>16} {'error':>9} {'runs to tell apart':>20}"
     lines.append(header)
     for i, gap in enumerate(data["gaps"]):
-        row = f"{gap:8.4g} {data['response'][i]:22.15e} {data['error'][i]:9.1e}"
+        row = f"{gap:8.4g} {_shown(data['response'][i], '22.15e', 22)} {_shown(data['error'][i], '9.1e', 9)}"
         if reference:
             trials = (data["trials_to_distinguish"] or [None] * len(data["gaps"]))[i]
             bound = (data.get("trials_lower_bound") or [None] * len(data["gaps"]))[i]
@@ -202,7 +212,7 @@ def response_summary(title: str, data: dict) -> str:
     if "states" in data:
         lines.append(f"the three states (local Tolman temperature {data['local_temperature']:.6g}):")
         for name, value in data["states"].items():
-            lines.append(f"  {name:>15}: " + ", ".join(f"{f:.6e} +- {e:.1e}"
+            lines.append(f"  {name:>15}: " + ", ".join(f"{_shown(f, '.6e')} +- {_shown(e, '.1e')}"
                                                          for f, e in zip(value["response"], value["error"])))
     teff = data.get("effective_temperature") or {}
     shown = [f"{g:g}: {v:.8g} +- {e:.1e}" for g, v, e in zip(teff.get("gap", []), teff.get("value", []),
