@@ -442,6 +442,15 @@ def cmd_scan(args) -> int:
     result = run_scan(spacetime, vary, args.out, tolerance, args.executor, workers, args.scheduler)
     print(f"scan of {result['points']} points: {result['computed']} computed now, {result['reused']} already "
           f"done; wrote {result['csv']}")
+    not_ok = result["not_ok"]
+    if not_ok:     # every point is written; the exit code says that some are not numbers derive stands behind
+        from derive.errors import AccuracyError, InputError
+
+        listed = "; ".join(f"{len(v)} {kind} (point {v[0][0]}: {v[0][1]})" for kind, v in not_ok.items())
+        message = f"{result['csv']} holds every point, the status column says which are not ok: {listed}"
+        if "refused" in not_ok or "error" in not_ok:
+            raise InputError(message, key="--vary")
+        raise AccuracyError(message, {"tolerance": tolerance})
     return 0
 
 

@@ -83,7 +83,7 @@ def scan_point(spec_path: str, overrides: dict, tolerance: float) -> dict:
                     raise AccuracyError(result.message)
             except NotSupported as exc:
                 row["response_skipped"] = str(exc)
-        row["status"] = "ok"
+        row["status"] = f"refused: {row['response_skipped']}" if "response_skipped" in row else "ok"
     except AccuracyError as exc:
         row["status"] = f"accuracy not reached: {exc}"
     except DeriveError as exc:
@@ -146,8 +146,15 @@ def run_scan(spacetime, vary, out: str, tolerance: float = 1e-10, executor: str 
         _run_local(jobs, spacetime.path, tolerance, workers, record)
     csv_path = _write_csv(out, points, points_dir)
     _write_plot(out, vary, points, points_dir)
+    statuses = {}        # the points whose status is not "ok", by kind: accuracy, refused, error
+    for row in _rows(points, points_dir):
+        status = str(row["result"].get("status", "ok"))
+        if status != "ok":
+            kind = ("accuracy" if status.startswith("accuracy") else "refused" if status.startswith("refused")
+                    else "error")
+            statuses.setdefault(kind, []).append((row["index"], status))
     return {"points": len(points), "computed": len(missing), "reused": len(points) - len(missing),
-            "csv": csv_path, "run": run_id}
+            "csv": csv_path, "run": run_id, "not_ok": statuses}
 
 
 def _point_file(points_dir, index) -> str:
@@ -259,14 +266,17 @@ def _write_plot(out, vary, points, points_dir):
     figure, axis = plt.subplots(figsize=(7.2, 4.4))
     x = [row["parameters"][name] for row in rows]
     for index, key in enumerate(keys):       # every gap (the colours cycle; the legend sits outside)
-        y = [row["result"].get(key) for row in rows]
-        e = [row["result"].get(key + "_error") or 0.0 for row in rows]
-        if all(v is not None for v in y):
-            axis.errorbar(x, y, yerr=e, fmt="o", ms=3, label=_legend(key), color=f"C{index % 10}",
+        # the points that have the value (one not ok, or from another part of the grid, has none)
+        kept = [(xi, row["result"].get(key), row["result"].get(key + "_error") or 0.0)
+                for xi, row in zip(x, rows) if row["result"].get(key) is not None]
+        if kept:
+            xs, y, e = zip(*kept)
+            axis.errorbar(xs, y, yerr=e, fmt="o", ms=3, label=_legend(key), color=f"C{index % 10}",
                           ls="-" if index < 10 else "--")
     axis.set_xlabel(f"parameter {name}")
     axis.set_ylabel(_axis_label(keys))
-    axis.legend(fontsize=7, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)
+    if axis.get_legend_handles_labels()[0]:
+        axis.legend(fontsize=7, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)
     axis.set_title(f"derive scan over {name}: {len(rows)} points (error bars: derive's estimates)", fontsize=9)
     figure.tight_layout()
     write_atomic(os.path.join(out, "scan.png"), _png(figure))

@@ -84,3 +84,17 @@ def test_scan_on_a_dask_local_cluster(tmp_path):
     assert result["computed"] == 4
     assert [int(r["index"]) for r in rows(tmp_path / "scan")] == [0, 1, 2, 3]
     assert all(r["status"] == "ok" for r in rows(tmp_path / "scan"))
+
+
+def test_a_scan_with_points_that_are_not_ok_says_so_in_its_exit_code(tmp_path, capsys):
+    # every point is written, and the exit code is no longer 0 when some are not numbers derive stands behind:
+    # 2 for a point that is bad input (M < 0 against the spec's positive M), naming it (it exited 0)
+    from derive.cli import main
+
+    spec = tmp_path / "spec.toml"
+    spec.write_text(SPEC)
+    out = tmp_path / "scan"
+    assert main(["scan", str(spec), "--vary", "M=0.1,-0.1", "--out", str(out), "--workers", "1"]) == 2
+    assert "1 error (point 1:" in capsys.readouterr().err
+    table = rows(out)
+    assert [r["status"] for r in table][0] == "ok" and table[1]["status"].startswith("error")
