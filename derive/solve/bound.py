@@ -472,12 +472,15 @@ def _amplitudes(problem, l, omegas, steps, radii, precision=1e-12):
     out = np.zeros((len(omegas), len(radii)))
     signs, stencil_error = np.ones(len(omegas)), np.zeros(len(omegas))
     dimension = problem.dimension - 2
+    highest = float(np.max(omegas)) if len(omegas) else 0.0
     for i, omega in enumerate(omegas):
         r_m = _well_bottom(problem, l, omega)
         # the layout for a frequency a little above the level (a far radius that suits its stencil), kept below
         # the threshold (a level of a geometric series lies within 1e-8 of it)
-        top = omega * (1 + 1e-6) if is_ads(problem) else min(omega * (1 + 1e-6),
-                                                              omega + 0.1 * (continuum_threshold(problem) - omega))
+        # (in AdS one top for every level of the list: the boundary radius, and with it every piece but the one cut
+        # at r_m, is then the same for all, and their grids are built once rather than per level)
+        top = highest * (1 + 1e-6) if is_ads(problem) else min(omega * (1 + 1e-6),
+                                                                omega + 0.1 * (continuum_threshold(problem) - omega))
         layout = _layout(problem, l, top, tuple(radii) + (r_m,))
         # the stencil's step: D/u_dec(r_m) varies on the scale of the level spacing (pi over the well's tortoise
         # extent in AdS), and 1e-3 of it balances rounding (eps/h) against truncation (h^4) near 1e-12; below a mass
