@@ -229,7 +229,7 @@ def test_kernels_need_parameter_values(write_spec):
 def test_exponentials_of_several_multiples_are_tamed_together(write_spec):
     # f = 1 - a r^2/(e^(r^2) + 1): V holds e^(r^2), e^(2 r^2) and e^(3 r^2); all are written as integer powers of
     # e^(-r^2) whichever comes first (a first pick of e^(3 r^2) had left fractional powers that cancel could not
-    # combine, and the tail at infinity came out nan for some hash seeds).  The tail is centrifugal (the
+    # combine, and the tail at infinity came out nan in some orders of set iteration).  The tail is centrifugal (the
     # exponentials vanish to every order in 1/r) and the kernels stay finite far out; reference: mpmath at 30
     # digits of dr*/dr = 1/f (f = h)
     st = derive.load(write_spec(LUMP.replace("a*r**2*exp(-r**2)", "a*r**2/(exp(r**2) + 1)")))

@@ -190,12 +190,13 @@ class KernelSet:
             for name, original in problem.regions.items():
                 region = original.factored   # horizons divided out of f and h (derive/fields/horizons.py)
                 r = region.r
+                # (V and dr*/dr come tamed from the field stage; f, h and r* stand as the spec and sympy wrote them)
                 tame = (lambda e, r=r: tame_exponentials(e, r, self.values))
                 domain = {"region": name, "r": self._radial_domain(original)}
                 tag = _identifier(name)
-                out.append(self._entry(tame(region.potential), (r, L_SYMBOL, OMEGA) + params, f"potential_{tag}",
+                out.append(self._entry(region.potential, (r, L_SYMBOL, OMEGA) + params, f"potential_{tag}",
                                        "potential", name, "region", domain))
-                out.append(self._entry(tame(region.dtortoise_dr), (r,) + params, f"dtortoise_dr_{tag}",
+                out.append(self._entry(region.dtortoise_dr, (r,) + params, f"dtortoise_dr_{tag}",
                                        "dtortoise_dr", name, "region", domain))
                 if region.tortoise is not None:
                     out.append(self._entry(tame(region.tortoise), (r,) + params, f"tortoise_{tag}", "tortoise", name,

@@ -23,7 +23,7 @@ from functools import cached_property
 import sympy as sp
 
 from derive.errors import GeometryError
-from derive.geometry.checks import vanishes
+from derive.geometry.checks import tame_exponentials, vanishes
 from derive.geometry.static_form import static_form
 
 #: Symbols the field stage introduces (they stay symbols in potentials and matrices).
@@ -268,11 +268,13 @@ class RegionField:
             if not vanishes(expr, values, points):
                 raise GeometryError(f"region '{self.name}': the radial equation did not reduce to Schrodinger "
                                     f"form (coefficient of {label} is off by {expr})")
-        return _tidy(OMEGA ** 2 - c0)
+        return tame_exponentials(_tidy(OMEGA ** 2 - c0), r, self.values)
 
     @cached_property
     def dtortoise_dr(self):
-        return _tidy(1 / self.F)
+        # (growing exponentials written through decaying ones, for the document, the ends and the kernels alike:
+        # sympy's e^(r^2)/(e^(r^2) - a) overflows where the march still runs)
+        return tame_exponentials(_tidy(1 / self.F), self.r, self.values)
 
     @cached_property
     def tortoise(self):

@@ -116,6 +116,12 @@ def bounded(function, fallback, seconds: float = 10.0):
         return fallback
 
 
+def _far_value(g, r, values, far: float) -> float:
+    """g at r = ``far`` and the spec's values as a float (0 where it is not a real number there)."""
+    value = sp.N(g.subs(values).subs(r, far), 15)
+    return float(value) if value.is_number and value.is_real else 0.0
+
+
 def tame_exponentials(expr, r, values, far: float = 1e6):
     """exp(g(r)) with g growing (g > 1 at r = ``far`` at the spec's values) written through z = exp(-g0): the
     exponentials fall into classes of rational multiples of one argument g0 each (exp(r^2) and exp(-2 r^2) in
@@ -125,14 +131,10 @@ def tame_exponentials(expr, r, values, far: float = 1e6):
     it has no growing exponential, or where the rewriting would take more than a few seconds."""
     expr = sp.S(expr)
     exps = [e for e in expr.atoms(sp.exp) if e.args[0].has(r)]
-
-    def at_far(g):
-        value = sp.N(g.subs(values).subs(r, far), 15)
-        return float(value) if value.is_number and value.is_real else None
-
     classes = []                          # [first growing argument, {exp: its ratio to it}] per class
     for e in exps:
-        if (at_far(e.args[0]) or 0.0) > 1.0 and not any(sp.simplify(e.args[0] / c[0]).is_Rational for c in classes):
+        if _far_value(e.args[0], r, values, far) > 1.0 and not any(sp.simplify(e.args[0] / c[0]).is_Rational
+                                                                   for c in classes):
             classes.append([e.args[0], {}])
     if not classes:
         return expr
@@ -159,11 +161,8 @@ def beyond_all_orders(expr, r, values, far: float = 1e6):
     """``expr`` (its growing exponentials tamed) with every exponential that decays at large r set to zero: the
     part that an asymptotic power series in 1/r sees (e^(-r^2) r^k vanishes to every order)."""
     expr = tame_exponentials(expr, r, values, far)
-
-    def decays(e):
-        value = sp.N(e.args[0].subs(values).subs(r, far), 15)
-        return e.args[0].has(r) and value.is_number and value.is_real and float(value) < -1.0
-    power = expr.replace(lambda e: isinstance(e, sp.exp) and decays(e), lambda e: sp.Integer(0))
+    power = expr.replace(lambda e: isinstance(e, sp.exp) and e.args[0].has(r)
+                         and _far_value(e.args[0], r, values, far) < -1.0, lambda e: sp.Integer(0))
     return expr if power.has(sp.nan, sp.zoo, sp.oo, -sp.oo) else power
 
 
