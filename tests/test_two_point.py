@@ -263,7 +263,7 @@ def test_high_l_terms_are_finite_on_the_coarsest_grid():
     omegas = np.array([40.0, 80.0])
     series = problem.regions[0].centre_series
     for l in (30, 45):
-        coarse, _ = _term_values(problem, l, omegas, (0.5, 0.5), 1.0, 32, series, (0.5, 80.0))
-        fine, _ = _term_values(problem, l, omegas, (0.5, 0.5), 1.0, 512, series, (0.5, 80.0))
+        coarse, _, _ = _term_values(problem, l, omegas, (0.5, 0.5), 1.0, 32, series, (0.5, 80.0))
+        fine, _, _ = _term_values(problem, l, omegas, (0.5, 0.5), 1.0, 512, series, (0.5, 80.0))
         assert np.all(np.isfinite(coarse))
         np.testing.assert_allclose(coarse, fine, rtol=0.25)

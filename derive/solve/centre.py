@@ -308,10 +308,23 @@ def far_amplitude2(region, state, omegas, radius, l: int = 0):
     (dr*/dr at 0)^2/(4 pi^2 a^2 k); massless, k_inf = omega.  w = u' + g u with g = -V'/(4 k^2) (' = d/dr*): the
     corrected Liouville-Green split of the horizon's far end (horizon.py), whose amplitude error is of order
     V''/k^4 rather than V'/k^3 (it matters on a Coulomb-like tail near the mass, where k is small)."""
+    G = far_form_matrix(region, omegas, radius, l)
+    return np.einsum("ni,nij,nj->n", state, G, state)
+
+
+def far_form_matrix(region, omegas, radius, l: int = 0) -> np.ndarray:
+    """The matrix G (n, 2, 2) of :func:`far_amplitude2` as a quadratic form of the state (u, du/dr*):
+    a^2 k = s^T G s, G = sqrt(q) [[1 + g^2/q, -g/q], [-g/q, 1/q]] with g = dV/(4 q)."""
+    omegas = np.asarray(omegas, dtype=float)
     V, dV = far_potential(region, l, radius)
     q = omegas ** 2 - V
-    w = state[:, 1] - dV / (4 * q) * state[:, 0]
-    return (state[:, 0] ** 2 + w ** 2 / q) * np.sqrt(q)
+    g = dV / (4 * q)
+    root = np.sqrt(q)
+    G = np.empty((len(omegas), 2, 2))
+    G[:, 0, 0] = root * (1 + g * g / q)
+    G[:, 0, 1] = G[:, 1, 0] = -root * g / q
+    G[:, 1, 1] = root / q
+    return G
 
 
 def minkowski_density(omegas) -> np.ndarray:

@@ -153,13 +153,15 @@ def interface_matrices(interface, l, omegas) -> np.ndarray:
 
 
 def march(problem, l, omegas, pieces, state, log_scale=None, marks=(), outer: bool = False,
-          multiple: int = 1) -> Marched:
+          multiple: int = 1, cross_end: bool = False) -> Marched:
     """Carry ``state`` (n, 2) with ``log_scale`` across ``pieces`` for the angular label l at every omega.
 
     After the last piece of a region, unless it is the last piece of the march, the transfer matrix of the
     interface at that region's upper end (if there is one) is applied.  ``marks`` are piece positions: the state
     is recorded before the piece at each (a mark equal to len(pieces) records the end); with ``outer`` the
-    propagator from each mark to the end is kept too (pieces and interfaces from the mark on)."""
+    propagator from each mark to the end is kept too (pieces and interfaces from the mark on).  With ``cross_end``
+    the interface at the upper end of the last piece's region is applied too (a march that stops at an interface
+    and is continued beyond it by other means)."""
     omegas = np.asarray(omegas, dtype=float)
     n = len(omegas)
     state = np.array(state)
@@ -191,7 +193,8 @@ def march(problem, l, omegas, pieces, state, log_scale=None, marks=(), outer: bo
         if outer:
             accumulate(matrix, scale, position)
         region = problem.regions[piece.region]
-        crossing = position + 1 < len(pieces) and pieces[position + 1].region != piece.region
+        crossing = (pieces[position + 1].region != piece.region if position + 1 < len(pieces)
+                    else cross_end)
         if crossing and region.name in interfaces:
             transfer = interface_matrices(interfaces[region.name], l, omegas)
             state = np.einsum("nij,nj->ni", transfer, state)

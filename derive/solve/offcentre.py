@@ -25,6 +25,14 @@ classical reach omega r*_max are below a hundredth of the tolerance of the scale
 kept counts as the truncation error.  Checks: in flat space the diagonal is omega/(4 pi^2) at every r0 and the
 off-diagonal sin(omega d)/(4 pi^2 d) with d the distance (Gegenbauer's addition theorem, DLMF section 10.60).
 
+Beyond the outermost region's start (or the farther point, if it lies there) each multipole's flux far away is
+a quadratic form of its state, the same for every point inside (derive.solve.farform): where the form is smooth
+in omega (omega^2 >= 2 max V beyond it) it is interpolated from a few dozen frequency nodes per l instead of
+marched at every frequency, built once per l on both cores before the frequencies are split (for the l that
+enough frequencies sum: FORM_WORTH), and each term's form error is counted and held to its share of the term's
+tolerance (FORM_SHARE, ALONE_SHARE); elsewhere the march goes on to the far radius.  At r = R/2 of the static
+shell this halves the response's cost (benchmarks/targets.py prints both paths).
+
 Supported: a regular centre, asymptotically flat, massless or massive (the continuum above the mass).
 """
 
@@ -34,15 +42,22 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from derive.parallel import split_map
 from derive.solve.centre import (FAR, DensityResult, Unsupported, check_supported, continuum_threshold,
                                  coulomb_far_radius, far_amplitude2, harmonic_weight, merge, tortoise_distance)
 from derive.solve.cosmological import flux_at_horizon, has_cosmological_horizon, matching_radius
+from derive.solve.farform import far_form, remember
 from derive.solve.flat import closed_form_interior, regular_solution, start_outside
 from derive.solve.march import Piece, centre_start, march
 from derive.solve.propagation import first_spans, outer_pieces
-from derive.solve.summation import l_sum, on_both_cores, refine
+from derive.solve.summation import SPLIT_FROM, TERM_SHARE, l_sum, on_both_cores, refine
 
 MAX_L = 400
+FAR_FORM = True      # False marches every frequency to the far radius (benchmarks/targets.py compares the two)
+FORM_WORTH = 100     # frequencies expected to sum an l for which its far form is built ...
+QUIET = 10           # ... counting those with a reach of l - QUIET or more
+FORM_SHARE = 0.5     # the far form's share of an l-term's relative tolerance (the march inside it the rest) ...
+ALONE_SHARE = 0.9    # ... and where nothing is marched inside it (a flat interior in closed form up to it)
 
 
 def angular_factor(l: int, n: int, cos_gamma: float) -> float:
@@ -133,33 +148,72 @@ def _pieces(problem, l, radii, steps, lowest, highest):
     return pieces, at, r_s, far
 
 
-def _log_u_at(problem, l, omegas, radii, steps, series, fixed):
+def _log_u_at(problem, l, omegas, radii, steps, series, fixed, accuracy=None):
     """(log|u_l(r)| - log A_l, sign of u_l(r)) at every radius of ``radii`` (positive, increasing), each of
-    shape (len(radii), len(omegas)), and log A_l (u_l normalised arbitrarily; the ratio is what matters).  ``fixed`` =
-    (lowest, highest) frequency of the whole set: the grid is the same for every subset."""
+    shape (len(radii), len(omegas)), log A_l (u_l normalised arbitrarily; the ratio is what matters) and the
+    relative error of A_l^2 that the far form adds (zero where the march reaches the far radius).  ``fixed`` =
+    (lowest, highest) frequency of the whole set: the grid is the same for every subset.  With ``accuracy``, the
+    far form (derive.solve.farform) replaces the march beyond the outermost region's start (or the outer radius,
+    if it lies there) at the frequencies it covers."""
     multiple = max(1, steps // 16)
     pieces, at, r_s, far = _pieces(problem, l, radii, 16, *fixed)
+    form, split = _far_form(problem, l, radii, pieces, far, fixed, accuracy)
+    inner = pieces[:split]
     closed = _closed_interior(problem, l, omegas, radii, series)
     if closed is None:
         state, log_scale = centre_start(problem, l, omegas, r_s, series)
-        marched = march(problem, l, omegas, pieces, state, log_scale, marks=at, multiple=multiple)
+        marched = march(problem, l, omegas, inner, state, log_scale, marks=at, multiple=multiple,
+                        cross_end=split < len(pieces))
         recorded = marched.marks
     else:    # the flat first region in closed form: radii inside it exact, the march from its interface on
         (state, log_scale), inside = closed
         skip = sum(1 for piece in pieces if piece.region == 0)
         outside = [k - skip for k, r in zip(at, radii) if r >= problem.regions[0].upper]
-        marched = march(problem, l, omegas, pieces[skip:], state, log_scale, marks=outside, multiple=multiple)
+        marched = march(problem, l, omegas, inner[skip:], state, log_scale, marks=outside, multiple=multiple,
+                        cross_end=split < len(pieces))
         recorded = inside + list(marched.marks)
     log_u = np.array([np.log(np.abs(u[:, 0])) + lg for u, lg in recorded])
     sign = np.array([np.sign(u[:, 0]) for u, _ in recorded])
     state, log_scale = marched.state, marched.log_scale
+    n = len(omegas)
+    log_amplitude, form_error = np.zeros(n), np.zeros(n)
+    covered = form.covers(omegas) if form is not None else np.zeros(n, dtype=bool)
+    if np.any(covered):
+        log_flux, form_error[covered] = form.log_flux(omegas[covered], state[covered])
+        log_amplitude[covered] = 0.5 * log_flux + log_scale[covered]
+    rest = np.nonzero(~covered)[0]
+    if len(rest):
+        w = omegas[rest]
+        beyond = march(problem, l, w, pieces[split:], state[rest], log_scale[rest], multiple=multiple)
+        end, end_scale = beyond.state, beyond.log_scale
+        if has_cosmological_horizon(problem):
+            log_flux, _ = flux_at_horizon(problem, l, w, end, far, 16 * multiple, check=False)
+            log_amplitude[rest] = 0.5 * log_flux + end_scale
+        else:   # the flux a^2 k through the corrected Liouville-Green split at the far radius (centre.py)
+            log_amplitude[rest] = 0.5 * np.log(far_amplitude2(problem.regions[-1], end, w, far, l)) + end_scale
+    return log_u - log_amplitude, sign, log_amplitude, form_error
+
+
+def _form_share(problem, pair) -> float:
+    """The far form's share of an l-term's relative tolerance: nearly all of it where no march precedes it (the
+    flat interior in closed form reaches the outermost region and holds both points), half otherwise."""
+    alone = (closed_form_interior(problem) and len(problem.regions) == 2
+             and max(pair) <= problem.regions[0].upper)
+    return ALONE_SHARE if alone else FORM_SHARE
+
+
+def _far_form(problem, l, radii, pieces, far, fixed, accuracy):
+    """(the far form beyond the outermost region's start or the outer radius, whichever is farther, or None; the
+    position of the first piece beyond it, len(pieces) without a form)."""
     last = problem.regions[-1]
-    if has_cosmological_horizon(problem):
-        log_flux, _ = flux_at_horizon(problem, l, omegas, state, far, 16 * multiple, check=False)
-        return log_u - (0.5 * log_flux + log_scale), sign, 0.5 * log_flux + log_scale
-    # the flux a^2 k through the corrected Liouville-Green split at the far radius (centre.py)
-    log_amplitude = 0.5 * np.log(far_amplitude2(last, state, omegas, far, l)) + log_scale
-    return log_u - log_amplitude, sign, log_amplitude
+    if accuracy is None or last.upper is not None or has_cosmological_horizon(problem):
+        return None, len(pieces)
+    radius = max(last.lower, radii[-1])
+    split = next((i for i, piece in enumerate(pieces)
+                  if piece.region == len(problem.regions) - 1 and piece.a >= radius), None)
+    if split is None or split == 0:
+        return None, len(pieces)
+    return far_form(problem, l, pieces[split].a, far, fixed[0], fixed[1], accuracy), split
 
 
 def _closed_interior(problem, l, omegas, radii, series):
@@ -185,13 +239,17 @@ def _centre_log_u(problem, omegas, series):
     return np.log(np.abs(a0)), np.sign(a0)
 
 
-def _term_values(problem, l, omegas, pair, cos_gamma, steps, series, fixed):
+def _term_values(problem, l, omegas, pair, cos_gamma, steps, series, fixed, accuracy=None, limit=None):
     """The l-term of the two-point function between the radii ``pair`` (r1 <= r2; r1 may be 0, the centre, where
-    only l = 0 is asked for) and its size h_l (U_l(r1)^2 + U_l(r2)^2)/2 (see the module docstring)."""
+    only l = 0 is asked for), its size h_l (U_l(r1)^2 + U_l(r2)^2)/2 (see the module docstring) and the relative
+    error of both that the far form adds (``accuracy``: see :func:`_log_u_at`).  ``limit(omegas, sizes)``: the
+    absolute error the form may add to each term; where it would add more, the term is marched to the far radius
+    instead."""
     n = problem.dimension - 2
     radii = tuple(sorted({r for r in pair if r > 0})) or (problem.length_scale,)
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-        log_u, sign, log_amplitude = _log_u_at(problem, l, omegas, radii, steps, series, fixed)
+        log_u, sign, log_amplitude, form_error = _log_u_at(problem, l, omegas, radii, steps, series, fixed,
+                                                           accuracy)
         logs, signs = [], []
         for r in pair:
             if r > 0:
@@ -205,18 +263,25 @@ def _term_values(problem, l, omegas, pair, cos_gamma, steps, series, fixed):
         weight = harmonic_weight(l, n) / np.pi
         value = weight * angular_factor(l, n, cos_gamma) * signs[0] * signs[1] * np.exp(logs[0] + logs[1])
         size = weight * (np.exp(2 * logs[0]) + np.exp(2 * logs[1])) / 2
-        return value, size
+    if limit is not None:
+        over = np.nonzero(~(form_error * size <= limit(omegas, size)))[0]
+        if len(over):
+            value[over], size[over], form_error[over] = _term_values(problem, l, omegas[over], pair, cos_gamma,
+                                                                     steps, series, fixed)
+    return value, size, form_error
 
 
-def _term(problem, l, omegas, pair, cos_gamma, series, tolerance, floor, fixed, steps=32, max_steps=8192):
+def _term(problem, l, omegas, pair, cos_gamma, series, tolerance, floor, fixed, steps=32, max_steps=8192,
+          form=None):
     """The l-term between the radii ``pair``, its size and its error, refined per frequency (see the module
     docstring).
 
     ``tolerance`` may be an array (one per frequency); ``floor`` is the size of the sum so far; ``fixed`` =
     (lowest, highest) frequency of the whole set, so that the grids do not depend on which frequencies are still
     summing; ``steps`` the first step count, one for all or one per frequency (32 times a power of two: the
-    frequencies that start alike are refined together).  Returns also the step count at which each frequency
-    converged (its next l starts near it)."""
+    frequencies that start alike are refined together); ``form`` the far form's accuracy, False for none, None
+    to decide here.  Returns also the step count at which each frequency converged (its next l starts near
+    it)."""
     n = len(omegas)
     starts = np.broadcast_to(np.asarray(steps, dtype=int), (n,))
     tolerance = np.broadcast_to(np.asarray(tolerance, dtype=float), (n,))
@@ -226,16 +291,33 @@ def _term(problem, l, omegas, pair, cos_gamma, series, tolerance, floor, fixed, 
         for start in np.unique(starts):
             index = np.nonzero(starts == start)[0]
             part = _term(problem, l, omegas[index], pair, cos_gamma, series, tolerance[index], floor[index], fixed,
-                         int(start), max_steps)
+                         int(start), max_steps, form)
             for whole, piece in zip(out, part):
                 whole[index] = piece
         return out
+    # the far form (derive.solve.farform) gets a share of the term's tolerance (of its size or of the floor,
+    # whichever is larger), the march inside it the rest; the form's error is counted where it is used
+    share = _form_share(problem, pair)
+    if form is None:     # a form is worth building for enough frequencies (the l-sums decide in _summed)
+        form = share * float(np.min(tolerance)) if n >= FORM_WORTH else False
+    accuracy = float(form) if n and FAR_FORM and form else None
+    form_errors = {}
+    allowed = {x: (t, f) for x, t, f in zip(omegas.tolist(), tolerance.tolist(), floor.tolist())}
+
+    def limit(w, size):
+        t, f = np.array([allowed[x] for x in w.tolist()]).T
+        return share * t * np.maximum(size, f)
+
     def values(w, count):
-        value, size = _term_values(problem, l, w, pair, cos_gamma, count, series, fixed)
+        value, size, form_error = _term_values(problem, l, w, pair, cos_gamma, count, series, fixed, accuracy,
+                                               limit)
+        form_errors.update(zip(w.tolist(), form_error.tolist()))
         return (value,), (size,)
 
-    (value,), (size,), (error,), converged = refine(values, omegas, tolerance, floor, int(starts[0]) if n else 32,
-                                                    max_steps)
+    march_share = tolerance * (1 - share) if accuracy is not None else tolerance
+    (value,), (size,), (error,), converged = refine(
+        values, omegas, march_share, floor, int(starts[0]) if n else 32, max_steps,
+        rounding=lambda w: np.array([form_errors.get(x, 0.0) for x in w.tolist()]))
     return value, size, error, converged
 
 
@@ -252,12 +334,43 @@ def _summed(problem, omegas, pair, cos_gamma, tolerance, series, threshold, prog
     """The l-sum for every frequency above the threshold, on both cores: (value, size, error, l reached)."""
     fixed = (float(np.min(np.sqrt(omegas ** 2 - threshold ** 2))), float(np.max(omegas)))
     distance = tortoise_distance(problem, 0.0, max(pair))
+    # a far form costs about FORM_WORTH frequencies' marches: it is built for the l that at least that many
+    # frequencies are expected to sum (those whose reach is within QUIET of l)
+    # (their accuracy: the form's share of the terms' tolerance, derive.solve.summation.l_sum)
+    reach = omegas * distance
+    single = pair[0] == 0
+    accuracy = _form_share(problem, pair) * (tolerance / (4 + np.max(reach)) if single else TERM_SHARE * tolerance)
+    top = 0 if single else min(int(np.max(reach)) + QUIET, MAX_L)
+    forms = {l: float(accuracy) for l in range(top + 1) if np.count_nonzero(reach >= l - QUIET) >= FORM_WORTH}
+    if FAR_FORM and len(omegas) >= SPLIT_FROM and forms:
+        _far_forms_first(problem, pair, fixed, forms)
     parts = on_both_cores(_l_sum, len(omegas), lambda index, first: (
-        problem, omegas[index], pair, cos_gamma, tolerance, series, fixed, distance, progress if first else None))
+        problem, omegas[index], pair, cos_gamma, tolerance, series, fixed, distance, forms,
+        progress if first else None))
     value, size, error = np.zeros(len(omegas)), np.zeros(len(omegas)), np.zeros(len(omegas))
     for index, part in parts:
         value[index], size[index], error[index] = part[:3]
     return value, size, error, max(part[3] for _, part in parts)
+
+
+def _far_forms_first(problem, pair, fixed, forms):
+    """Build the far forms {l: accuracy} on both cores before the frequencies are split in two halves (each half
+    would otherwise build every one of them); they are kept (derive.solve.farform) where the halves' worker
+    processes find them."""
+    radii = tuple(sorted({r for r in pair if r > 0})) or (problem.length_scale,)
+
+    def build(labels):
+        built = []
+        for l in labels:
+            pieces, _, _, far = _pieces(problem, l, radii, 16, *fixed)
+            form, _ = _far_form(problem, l, radii, pieces, far, fixed, forms[l])
+            built.append(form)
+        return built
+    labels = sorted(forms)
+    for built in split_map(build, [(labels[0::2],), (labels[1::2],)]):
+        for form in built:
+            if form is not None:
+                remember(problem, form)
 
 
 def density_off_centre(problem, omegas, r0: float, tolerance: float = 1e-10, series=None,
@@ -266,8 +379,8 @@ def density_off_centre(problem, omegas, r0: float, tolerance: float = 1e-10, ser
     diagonal of the two-point function (:func:`two_point`).
 
     Each frequency sums its own l: its reach omega r0* (the tortoise distance from the centre) sets how many
-    terms count, its terms are refined to tolerance/(4 + reach) of its sum, and it stops after three quiet terms
-    beyond its reach, while the others go on.  Each frequency's next l starts at half the step count where its
+    terms count and the error each term may carry (derive.solve.summation.l_sum), and it stops after three quiet
+    terms beyond its reach, while the others go on.  Each frequency's next l starts at half the step count where its
     last term converged (nested grids: a start that is high only means finer levels are compared)."""
     if not r0 > 0:
         raise Unsupported("the point must lie off the centre (r0 > 0); at r0 = 0 use the centre density")
@@ -304,7 +417,7 @@ def two_point(problem, omegas, r1: float, r2: float, cos_gamma: float, tolerance
     return TwoPointResult(omegas, value, error, size, (r1, r2), float(cos_gamma), tolerance, l_max)
 
 
-def _l_sum(problem, omegas, pair, cos_gamma, tolerance, series, fixed, distance, progress=None):
+def _l_sum(problem, omegas, pair, cos_gamma, tolerance, series, fixed, distance, forms, progress=None):
     """The sum over l for each frequency (derive.solve.summation.l_sum): (value, size, error, the largest l
     reached).  With the centre as one point only l = 0 is summed (the others vanish there).  Each frequency's
     next l starts at half the step count where its last term converged: 32 times a power of two (never a mean
@@ -313,7 +426,7 @@ def _l_sum(problem, omegas, pair, cos_gamma, tolerance, series, fixed, distance,
 
     def term(l, summing, share, floor):
         value, size, error, converged = _term(problem, l, omegas[summing], pair, cos_gamma, series, share, floor,
-                                              fixed, steps=steps[summing])
+                                              fixed, steps=steps[summing], form=forms.get(l, False))
         steps[summing] = np.maximum(32, converged // 2)
         return (value,), (size,), (error,)
 

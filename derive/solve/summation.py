@@ -13,9 +13,13 @@ drop out; the rest go on to 8N, 16N, ...  A term may have several parts (the in 
 acceptance test on their summed sizes.
 
 The sum over l (:func:`l_sum`).  Each frequency sums its own l: its reach (omega times the tortoise distance of
-the farther point: about reach + 1 terms count) sets its share of the tolerance, tolerance/(4 + reach), and it
-stops after three successive terms beyond its reach whose size is below a hundredth of the tolerance of the sum
-so far; the size of the last term kept is added to the error (the first neglected terms are smaller).
+the farther point: about reach + 1 terms count) sets the error each term may carry, half the tolerance of the
+larger of the term's size and the sum so far over (4 + reach); summed over the 4 + reach terms or so that a
+frequency takes, that is at most the tolerance of the sum (half for the sizes, half for the sums so far).  The
+early terms, with a small sum so far, are held to their own size (they were held to 1/(4 + reach) of it: 60 times
+tighter than needed at the reach of 56 of a detector at r = R/2 of the static shell).  A frequency stops after
+three successive terms beyond its reach whose size is below a hundredth of the tolerance of the sum so far; the
+size of the last term kept is added to the error (the first neglected terms are smaller).
 
 A term's size bounds |term| and equals it on the diagonal (one point): acceptance, tolerances and the stopping
 rule refer to sizes, because an off-diagonal sum may cancel to far below its terms.
@@ -27,6 +31,7 @@ import numpy as np
 
 from derive.parallel import split_map
 
+TERM_SHARE = 0.5    # an l-term's relative tolerance, as a share of the sum's (see l_sum)
 SPLIT_FROM = 64     # frequencies from which a set is split in two halves (one per core)
 
 
@@ -101,9 +106,10 @@ def l_sum(term, n: int, tolerance: float, reach, max_l: int, progress=None, sing
     """The sum over l for each of n frequencies (see the module docstring).
 
     ``term(l, summing, share, floor)`` returns (values, sizes, errors), tuples per part, for the frequencies
-    ``summing`` (indices), each to the relative ``share`` of its tolerance with ``floor`` the size of its sum so
-    far.  ``single``: only l = 0 (a point at a regular centre, where the other l vanish).  Returns (values,
-    sizes, errors) per part and the largest l reached; raises ``Unsupported`` past ``max_l``."""
+    ``summing`` (indices), each to the relative tolerance ``share`` of the larger of its size and ``floor`` (the
+    sum so far over 4 + reach).  ``single``: only l = 0 (a point at a regular centre, where the other l
+    vanish).  Returns (values, sizes, errors) per part and the largest l reached; raises ``Unsupported`` past
+    ``max_l``."""
     from derive.solve.centre import Unsupported
 
     reach = np.asarray(reach, dtype=float)
@@ -111,8 +117,13 @@ def l_sum(term, n: int, tolerance: float, reach, max_l: int, progress=None, sing
     quiet = np.zeros(n, dtype=int)
     summing = np.arange(n)
     for l in range(max_l + 1):
-        floor = sum(s[summing] for s in size) if size is not None else np.zeros(len(summing))
-        values, sizes, errors = term(l, summing, tolerance / (4 + reach[summing]), floor)
+        so_far = sum(s[summing] for s in size) if size is not None else np.zeros(len(summing))
+        if single:    # one term (as before the shares below: its refinement next to a mass threshold, where the
+            # tail converges erratically, needs the margin)
+            values, sizes, errors = term(l, summing, tolerance / (4 + reach[summing]), so_far)
+        else:
+            values, sizes, errors = term(l, summing, np.full(len(summing), TERM_SHARE * tolerance),
+                                         so_far / (4 + reach[summing]))
         if total is None:
             total = tuple(np.zeros(n, dtype=np.result_type(v, float)) for v in values)
             size = tuple(np.zeros(n) for _ in values)
