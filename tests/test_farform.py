@@ -101,7 +101,10 @@ def test_density_off_centre_with_and_without_the_form(monkeypatch):
     # form agrees with the one marched to the far radius at every l, within their errors.
     problem = problem_of(DUST)
     omegas = np.linspace(2.0, 30.0, 12)
+    monkeypatch.setattr(offcentre, "FORM_WORTH", 4)     # forms for these few frequencies too
+    farform._FORMS.clear()
     with_form = offcentre.density_off_centre(problem, omegas, 0.5, 1e-9)
+    assert farform._FORMS
     monkeypatch.setattr(offcentre, "FAR_FORM", False)
     without = offcentre.density_off_centre(problem, omegas, 0.5, 1e-9)
     assert with_form.ok and without.ok

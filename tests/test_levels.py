@@ -157,6 +157,7 @@ def test_an_array_with_bound_levels_decomposes_into_multipoles(tmp_path, capsys)
     assert abs(sum(multipoles["weight"]) - L_AA) <= sum(multipoles["error"]) + data["detectors"]["A"]["error"]
 
 
+@pytest.mark.slow
 def test_two_detectors_with_bound_levels(tmp_path, capsys):
     """derive correlations for a massive field around the shell (A at the centre, B at R/2): the levels enter L_AB
     and M (JSON bound_levels per pair: l = 0 only, a detector being at the centre), the pair obeys

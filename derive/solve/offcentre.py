@@ -46,7 +46,7 @@ from derive.parallel import split_map
 from derive.solve.centre import (FAR, DensityResult, Unsupported, check_supported, continuum_threshold,
                                  coulomb_far_radius, far_amplitude2, harmonic_weight, merge, tortoise_distance)
 from derive.solve.cosmological import flux_at_horizon, has_cosmological_horizon, matching_radius
-from derive.solve.farform import far_form, remember
+from derive.solve.farform import allowed_from, far_form, remember
 from derive.solve.flat import closed_form_interior, regular_solution, start_outside
 from derive.solve.march import Piece, centre_start, march
 from derive.solve.propagation import first_spans, outer_pieces
@@ -204,15 +204,18 @@ def _form_share(problem, pair) -> float:
 
 def _far_form(problem, l, radii, pieces, far, fixed, accuracy):
     """(the far form beyond the outermost region's start or the outer radius, whichever is farther, or None; the
-    position of the first piece beyond it, len(pieces) without a form)."""
+    position of the first piece beyond it, len(pieces) where no form can be: the last region bounded or ending
+    at a cosmological horizon).  With ``accuracy`` None, no form is built and the position is still given."""
     last = problem.regions[-1]
-    if accuracy is None or last.upper is not None or has_cosmological_horizon(problem):
+    if last.upper is not None or has_cosmological_horizon(problem):
         return None, len(pieces)
     radius = max(last.lower, radii[-1])
     split = next((i for i, piece in enumerate(pieces)
                   if piece.region == len(problem.regions) - 1 and piece.a >= radius), None)
     if split is None or split == 0:
         return None, len(pieces)
+    if accuracy is None:
+        return None, split
     return far_form(problem, l, pieces[split].a, far, fixed[0], fixed[1], accuracy), split
 
 
@@ -334,15 +337,8 @@ def _summed(problem, omegas, pair, cos_gamma, tolerance, series, threshold, prog
     """The l-sum for every frequency above the threshold, on both cores: (value, size, error, l reached)."""
     fixed = (float(np.min(np.sqrt(omegas ** 2 - threshold ** 2))), float(np.max(omegas)))
     distance = tortoise_distance(problem, 0.0, max(pair))
-    # a far form costs about FORM_WORTH frequencies' marches: it is built for the l that at least that many
-    # frequencies are expected to sum (those whose reach is within QUIET of l)
-    # (their accuracy: the form's share of the terms' tolerance, derive.solve.summation.l_sum)
-    reach = omegas * distance
-    single = pair[0] == 0
-    accuracy = _form_share(problem, pair) * (tolerance / (4 + np.max(reach)) if single else TERM_SHARE * tolerance)
-    top = 0 if single else min(int(np.max(reach)) + QUIET, MAX_L)
-    forms = {l: float(accuracy) for l in range(top + 1) if np.count_nonzero(reach >= l - QUIET) >= FORM_WORTH}
-    if FAR_FORM and len(omegas) >= SPLIT_FROM and forms:
+    forms = _worth_a_form(problem, omegas, pair, tolerance, fixed, distance) if FAR_FORM else {}
+    if len(omegas) >= SPLIT_FROM and forms:
         _far_forms_first(problem, pair, fixed, forms)
     parts = on_both_cores(_l_sum, len(omegas), lambda index, first: (
         problem, omegas[index], pair, cos_gamma, tolerance, series, fixed, distance, forms,
@@ -351,6 +347,29 @@ def _summed(problem, omegas, pair, cos_gamma, tolerance, series, threshold, prog
     for index, part in parts:
         value[index], size[index], error[index] = part[:3]
     return value, size, error, max(part[3] for _, part in parts)
+
+
+def _worth_a_form(problem, omegas, pair, tolerance, fixed, distance) -> dict:
+    """{l: the accuracy of its far form} for the l whose form is worth building: a form costs about FORM_WORTH
+    frequencies' marches, so it is built for the l that at least that many frequencies it covers are expected
+    to sum (those whose reach is within QUIET of l).  The accuracy is the form's share of the terms' tolerance
+    (derive.solve.summation.l_sum: a sum of one term, at the centre, keeps the old share)."""
+    reach = omegas * distance
+    single = pair[0] == 0
+    accuracy = _form_share(problem, pair) * (tolerance / (4 + np.max(reach)) if single else TERM_SHARE * tolerance)
+    radii = tuple(sorted({r for r in pair if r > 0})) or (problem.length_scale,)
+    forms = {}
+    for l in range(1 if single else min(int(np.max(reach)) + QUIET, MAX_L) + 1):
+        summing = reach >= l - QUIET
+        if np.count_nonzero(summing) < FORM_WORTH:
+            continue
+        pieces, _, _, far = _pieces(problem, l, radii, 16, *fixed)
+        _, split = _far_form(problem, l, radii, pieces, far, fixed, None)
+        if split < len(pieces):
+            low = allowed_from(problem, l, pieces[split].a, far)
+            if np.count_nonzero(summing & (omegas >= low)) >= FORM_WORTH:
+                forms[l] = float(accuracy)
+    return forms
 
 
 def _far_forms_first(problem, pair, fixed, forms):
