@@ -63,9 +63,10 @@ def spectrum(spacetime, omega, at: float | None = None, l: int = 0, tolerance: f
         From :func:`derive.load`.
     omega : array-like of float, or str "FROM:TO:COUNT" / "a,b,c"
         Positive frequencies of the spec's time coordinate.
-    at : float, optional
-        The radius of the point (None or 0: the centre, only l = 0; else summed over l).  Around a horizon,
-        without ``at`` only the scattering of ``l`` (greybody factors) is computed.
+    at : float or str, optional
+        The radius of the point, or the point as a spec writes it ("r = R/2"; only its radius counts: the
+        spacetime is static and spherical).  None or 0: the centre, only l = 0; else summed over l.  Around a
+        horizon, without ``at`` only the scattering of ``l`` (greybody factors) is computed.
     l : int
         The angular label at the centre (the only nonzero one there is 0) and of the scattering and bound
         states.
@@ -76,6 +77,10 @@ def spectrum(spacetime, omega, at: float | None = None, l: int = 0, tolerance: f
     from derive.solve.centre import Unsupported
 
     omegas = _frequencies(omega)
+    if isinstance(at, str):     # a point as a spec writes it
+        from derive.spec.positions import parse_position
+
+        at = parse_position(spacetime, at, key="at").radius
     if at is not None and not (isinstance(at, (int, float)) and math.isfinite(at) and at >= 0):
         raise InputError(f"at = {at}: expected a radius >= 0", key="--at")
     if not isinstance(l, (int, np.integer)) or l < 0:

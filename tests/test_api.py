@@ -126,6 +126,11 @@ def test_ratio_to_minkowski_compares_at_equal_proper_frequency():
     assert np.all(result.ratio_to_minkowski_error < 1e-9)
     off = st.spectrum([30.0], at=0.5, tolerance=1e-8)
     np.testing.assert_allclose(off.ratio_to_minkowski, 1.0, atol=1e-2)
+    # the point may be written as a spec writes it (only its radius counts); a bad one names the key
+    written = st.spectrum([30.0], at="r = R/2, theta = pi/3", tolerance=1e-8)
+    np.testing.assert_array_equal(written.density, off.density)
+    with pytest.raises(derive.InputError, match="at"):
+        st.spectrum([30.0], at="r = -R")
     # without the shell the ratio is one at every frequency
     flat = derive.load(SHELL, M=1e-9).spectrum([0.3, 3.0], tolerance=1e-10)
     np.testing.assert_allclose(flat.ratio_to_minkowski, 1.0, rtol=1e-8)
