@@ -109,3 +109,20 @@ def test_density_off_centre_with_and_without_the_form(monkeypatch):
     without = offcentre.density_off_centre(problem, omegas, 0.5, 1e-9)
     assert with_form.ok and without.ok
     assert np.all(np.abs(with_form.density - without.density) <= with_form.error + without.error)
+
+
+def test_worst_state_bound_against_a_search():
+    # The bound on the relative error of s^T Q s for entry errors dQ over all states, against a dense search over
+    # the unit circle (common practice: the generalized eigenvalue of a pair of 2x2 forms).
+    rng = np.random.default_rng(7)
+    for _ in range(20):
+        q00, q11 = rng.uniform(0.2, 2.0, 2)
+        q01 = rng.uniform(-0.9, 0.9) * np.sqrt(q00 * q11)
+        d = rng.uniform(0, 1e-3, 3)
+        angles = np.linspace(0, np.pi, 20001)
+        u, v = np.cos(angles), np.sin(angles)
+        ratio = (d[0] * u * u + 2 * d[1] * np.abs(u * v) + d[2] * v * v) / (q00 * u * u + 2 * q01 * u * v
+                                                                             + q11 * v * v)
+        bound = farform._worst(d[None, :], np.array([[q00, q01, q11]]))[0]
+        assert np.max(ratio) <= bound * (1 + 1e-9)
+        assert np.max(ratio) >= 0.5 * bound       # and not loose by much

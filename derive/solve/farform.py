@@ -32,11 +32,11 @@ the interval.  For a state s~ the relative error of a^2 k is then at most
     sum_ij |s~_i| dq_ij |s~_j| / s~^T q s~,
 
 which :meth:`FarForm.log_flux` returns with each value.  An interval is accepted when the interpolation part alone
-is within half the accuracy for every state (the largest root of det(|dq| - mu q) = 0); the caller checks each
-state's whole error against what its term may carry and marches where it is exceeded.  An interval that fails
-on 65 nodes is halved (a few times at most, within a budget of nodes); one whose nodes cannot reach the accuracy
-is left to the direct march at once.  Checked against closed forms (flat space: Riccati-Bessel functions via
-mpmath) and against the march it replaces in tests/test_farform.py.
+is within half the accuracy for every state (a generalized eigenvalue of the two forms, :func:`_worst`); the
+caller checks each state's whole error against what its term may carry and marches where it is exceeded.  An
+interval that fails on 65 nodes is halved (a few times at most, within a budget of nodes); one whose nodes
+cannot reach the accuracy is left to the direct march at once.  Checked against closed forms (flat space:
+Riccati-Bessel functions via mpmath) and against the march it replaces in tests/test_farform.py.
 """
 
 from __future__ import annotations
@@ -90,13 +90,15 @@ def _form_values(problem, l, omegas, radius, far, count, farther=False):
 
 
 def _worst(delta, values):
-    """The largest relative change of s^T Q s over states s for entry changes |delta| (m, 3) at Q = values (m, 3):
-    the largest root mu of det(|dQ| - mu Q) = 0 (inf where Q is not positive definite)."""
+    """The largest relative error sum |s_i| dQ_ij |s_j| / s^T Q s over states s, for entry errors |delta| (m, 3)
+    at Q = values (m, 3): with s' = |s| the numerator is s'^T dQ s' and the denominator at least s'^T Q' s', Q'
+    the form with its off-diagonal entry -|q01|, so the largest root mu of det(dQ - mu Q') = 0 bounds it (inf
+    where Q is not positive definite)."""
     q00, q01, q11 = values.T
     d00, d01, d11 = np.abs(delta).T
     det = q00 * q11 - q01 * q01
-    # det(D - mu Q) = mu^2 det Q - mu (d00 q11 + d11 q00 - 2 d01 q01) + det D
-    b = d00 * q11 + d11 * q00 - 2 * d01 * q01
+    # det(D - mu Q') = mu^2 det Q - mu (d00 q11 + d11 q00 + 2 d01 |q01|) + det D
+    b = d00 * q11 + d11 * q00 + 2 * d01 * np.abs(q01)
     c = d00 * d11 - d01 * d01
     with np.errstate(divide="ignore", invalid="ignore"):
         mu = (b + np.sqrt(np.maximum(b * b - 4 * det * c, 0.0))) / (2 * det)
