@@ -53,7 +53,7 @@ from derive.solve.propagation import first_spans, outer_pieces
 from derive.solve.summation import SPLIT_FROM, TERM_SHARE, l_sum, on_both_cores, refine
 
 MAX_L = 400
-FAR_FORM = True      # False marches every frequency to the far radius (benchmarks/targets.py compares the two)
+FAR_FORM = True
 FORM_WORTH = 100     # frequencies expected to sum an l for which its far form is built ...
 QUIET = 10           # ... counting those with a reach of l - QUIET or more
 FORM_SHARE = 0.5     # the far form's share of an l-term's relative tolerance (the march inside it the rest) ...
@@ -275,16 +275,17 @@ def _term_values(problem, l, omegas, pair, cos_gamma, steps, series, fixed, accu
 
 
 def _term(problem, l, omegas, pair, cos_gamma, series, tolerance, floor, fixed, steps=32, max_steps=8192,
-          form=None):
+          form=False):
     """The l-term between the radii ``pair``, its size and its error, refined per frequency (see the module
     docstring).
 
     ``tolerance`` may be an array (one per frequency); ``floor`` is the size of the sum so far; ``fixed`` =
     (lowest, highest) frequency of the whole set, so that the grids do not depend on which frequencies are still
     summing; ``steps`` the first step count, one for all or one per frequency (32 times a power of two: the
-    frequencies that start alike are refined together); ``form`` the far form's accuracy, False for none, None
-    to decide here.  Returns also the step count at which each frequency converged (its next l starts near
-    it)."""
+    frequencies that start alike are refined together); ``form`` the far form's accuracy, or False for none (the
+    l-sums decide: :func:`_worth_a_form`; one multipole alone is marched: its forms, built l by l on one core,
+    cost more than they saved for an array's multipoles, 20 s against 13 s).  Returns also the step count at
+    which each frequency converged (its next l starts near it)."""
     n = len(omegas)
     starts = np.broadcast_to(np.asarray(steps, dtype=int), (n,))
     tolerance = np.broadcast_to(np.asarray(tolerance, dtype=float), (n,))
@@ -301,8 +302,6 @@ def _term(problem, l, omegas, pair, cos_gamma, series, tolerance, floor, fixed, 
     # the far form (derive.solve.farform) gets a share of the term's tolerance (of its size or of the floor,
     # whichever is larger), the march inside it the rest; the form's error is counted where it is used
     share = _form_share(problem, pair)
-    if form is None:     # a form is worth building for enough frequencies (the l-sums decide in _summed)
-        form = share * float(np.min(tolerance)) if n >= FORM_WORTH else False
     accuracy = float(form) if n and FAR_FORM and form else None
     form_errors = {}
     allowed = {x: (t, f) for x, t, f in zip(omegas.tolist(), tolerance.tolist(), floor.tolist())}
@@ -352,14 +351,17 @@ def _summed(problem, omegas, pair, cos_gamma, tolerance, series, threshold, prog
 def _worth_a_form(problem, omegas, pair, tolerance, fixed, distance) -> dict:
     """{l: the accuracy of its far form} for the l whose form is worth building: a form costs about FORM_WORTH
     frequencies' marches, so it is built for the l that at least that many frequencies it covers are expected
-    to sum (those whose reach is within QUIET of l).  The accuracy is the form's share of the terms' tolerance
-    (derive.solve.summation.l_sum: a sum of one term, at the centre, keeps the old share)."""
+    to sum (those whose reach is within QUIET of l).  None for a sum of one term (one point at the centre): its
+    one form, held to the old share of a one-term sum (derive.solve.summation.l_sum), cost more than the marches
+    it saved (a 4+1 pair next to a mass threshold: 16.5 s against 13.5 s).  The accuracy is the form's share of
+    the terms' tolerance."""
+    if pair[0] == 0:
+        return {}
     reach = omegas * distance
-    single = pair[0] == 0
-    accuracy = _form_share(problem, pair) * (tolerance / (4 + np.max(reach)) if single else TERM_SHARE * tolerance)
+    accuracy = _form_share(problem, pair) * TERM_SHARE * tolerance
     radii = tuple(sorted({r for r in pair if r > 0})) or (problem.length_scale,)
     forms = {}
-    for l in range(1 if single else min(int(np.max(reach)) + QUIET, MAX_L) + 1):
+    for l in range(min(int(np.max(reach)) + QUIET, MAX_L) + 1):
         summing = reach >= l - QUIET
         if np.count_nonzero(summing) < FORM_WORTH:
             continue
