@@ -13,6 +13,7 @@ serve is refused with :class:`~derive.errors.InputError` (exit 2), naming why.
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping
 from dataclasses import replace
 
 import numpy as np
@@ -63,10 +64,10 @@ def spectrum(spacetime, omega, at: float | None = None, l: int = 0, tolerance: f
         From :func:`derive.load`.
     omega : array-like of float, or str "FROM:TO:COUNT" / "a,b,c"
         Positive frequencies of the spec's time coordinate.
-    at : float or str, optional
-        The radius of the point, or the point as a spec writes it ("r = R/2"; only its radius counts: the
-        spacetime is static and spherical).  None or 0: the centre, only l = 0; else summed over l.  Around a
-        horizon, without ``at`` only the scattering of ``l`` (greybody factors) is computed.
+    at : float, str or mapping, optional
+        The radius of the point, or the point as a spec writes it ("r = R/2", or {"r": 0.5}; only its radius
+        counts: the spacetime is static and spherical).  None or 0: the centre, only l = 0; else summed over l.
+        Around a horizon, without ``at`` only the scattering of ``l`` (greybody factors) is computed.
     l : int
         The angular label at the centre (the only nonzero one there is 0) and of the scattering and bound
         states.
@@ -77,10 +78,12 @@ def spectrum(spacetime, omega, at: float | None = None, l: int = 0, tolerance: f
     from derive.solve.centre import Unsupported
 
     omegas = _frequencies(omega)
-    if isinstance(at, str):     # a point as a spec writes it
+    if isinstance(at, (str, Mapping)):     # a point as a spec writes it, or {coordinate: value}, as two_point's
         from derive.spec.positions import parse_position
 
         at = parse_position(spacetime, at, key="at").radius
+    elif isinstance(at, (np.integer, np.floating)) and not isinstance(at, bool):
+        at = float(at)
     if at is not None and not (isinstance(at, (int, float)) and math.isfinite(at) and at >= 0):
         raise InputError(f"at = {at}: expected a radius >= 0", key="--at")
     if not isinstance(l, (int, np.integer)) or l < 0:

@@ -129,6 +129,8 @@ def test_ratio_to_minkowski_compares_at_equal_proper_frequency():
     # the point may be written as a spec writes it (only its radius counts); a bad one names the key
     written = st.spectrum([30.0], at="r = R/2, theta = pi/3", tolerance=1e-8)
     np.testing.assert_array_equal(written.density, off.density)
+    mapped = st.spectrum([30.0], at={"r": np.float32(0.5)}, tolerance=1e-8)
+    np.testing.assert_array_equal(mapped.density, off.density)
     with pytest.raises(derive.InputError, match="at"):
         st.spectrum([30.0], at="r = -R")
     # without the shell the ratio is one at every frequency
