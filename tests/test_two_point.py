@@ -86,6 +86,54 @@ def test_flat_two_point_in_other_dimensions(write_spec, dimension):
     np.testing.assert_allclose(result.value, exact, rtol=0, atol=2e-9 * float(np.max(result.scale)))
 
 
+SWEEP = np.geomspace(0.05, 30.0, 120)    # frequencies of the error-bar checks below
+
+
+def test_each_terms_error_bar_covers_its_true_error_in_flat_space(write_spec):
+    # In flat 3+1 space the l-term of the density at r is (2l+1) omega j_l(omega r)^2/(4 pi^2) (the regular
+    # solution is the Riccati-Bessel function, DLMF 10.47 and 10.49; scipy's spherical_jn), summing to
+    # omega/(4 pi^2) (DLMF 10.60.2).  Every term is refined as the l-sum refines it (half the tolerance, of its
+    # size or of the sum so far over 4 + reach) and its error bar compared with its true error.  The refinement's
+    # error estimate is a heuristic (successive extrapolations; derive.solve.summation): it may understate at a
+    # rare frequency, never by much.  Measured with the estimate from the last change alone: 109 of 2880 terms
+    # understated, up to 1700-fold, 15 beyond their tolerance; with the earlier change counted as well: 1, 2.5-fold.
+    from scipy.special import spherical_jn
+
+    from derive.solve.offcentre import _term
+
+    problem = problem_of(write_spec(FLAT))
+    series = problem.regions[0].centre_series
+    fixed = (float(SWEEP[0]), float(SWEEP[-1]))
+    tolerance = 1e-9
+    ratios, over = [], 0
+    for r in (0.3, 1.0, 3.0):
+        floor = SWEEP / (4 * np.pi ** 2) / (4 + SWEEP * r)
+        for l in range(8):
+            value, _, error, _ = _term(problem, l, SWEEP, (r, r), 1.0, series, tolerance / 2, floor, fixed)
+            exact = (2 * l + 1) * SWEEP * spherical_jn(l, SWEEP * r) ** 2 / (4 * np.pi ** 2)
+            ratios.append(np.abs(value - exact) / error)
+            over += int(np.sum(np.abs(value - exact) > tolerance / 2 * np.maximum(exact, floor)))
+    ratios = np.concatenate(ratios)
+    assert over == 0
+    assert np.count_nonzero(ratios > 1) <= 3 and np.max(ratios) < 4
+
+
+@pytest.mark.parametrize("r0", [1.0, 3.0])
+def test_the_densitys_error_bar_covers_its_true_error_in_flat_space(write_spec, r0):
+    # The l-summed density at r0 is omega/(4 pi^2) (the addition theorem, DLMF 10.60.2; Birrell & Davies 1982
+    # ch. 3): at each of 64 frequencies up to 1.5 its error bar covers the true error.  With the refinement's
+    # error from the last change of the extrapolations alone it did not at two (r0 = 3, omega = 0.15 and 0.18,
+    # 1.5- and 2.9-fold; over 120 frequencies up to 30 and r0 = 0.3, 1, 3: at 5 of 360, up to 3.3-fold).
+    from derive.solve.offcentre import density_off_centre
+
+    omegas = SWEEP[SWEEP <= 1.5]
+    result = density_off_centre(problem_of(write_spec(FLAT)), omegas, r0, tolerance=1e-9)
+    exact = omegas / (4 * np.pi ** 2)
+    assert result.ok, result.message()
+    assert np.all(np.abs(result.density - exact) <= result.error)
+    assert np.all(result.error <= 1e-9 * exact)
+
+
 def test_centre_to_point_inside_a_shell_is_the_interior_standing_wave():
     # Inside the static shell the metric is flat with the clock rate alpha = sqrt(1 - 2M/R) (first junction
     # condition); only l = 0 reaches the centre and its interior solution is u = sin(omega r/alpha) exactly, so

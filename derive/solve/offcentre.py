@@ -16,12 +16,12 @@ W(omega; r0, r0, 0) = sum_l h_l U_l(r0)^2.  At the centre only l = 0 survives (u
 Logarithmic scales are carried throughout (u ~ r^{l+1} underflows for large l), and the march records u at every
 requested radius (it passes through them, crossing interfaces on the way).  Each term is refined frequency by
 frequency on nested grids (N, 2N, 4N steps in every piece), extrapolated (Richardson, fourth order) and accepted
-when the extrapolations of two successive pairs agree to the tolerance of the term's size or of the sum so far,
-whichever is larger.  A term's size is h_l (U_l(r1)^2 + U_l(r2)^2)/2, which bounds |term| (and equals it on the
-diagonal); summed over l it is the mean of the two points' densities, (W(r1, r1) + W(r2, r2))/2, the scale
-against which the tolerance of an off-diagonal value is measured (an off-diagonal value can be much smaller
-than the scale, or zero, where its terms cancel).  The sum stops when three successive terms beyond the
-classical reach omega r*_max are below a hundredth of the tolerance of the scale, and the size of the last term
+when the last two changes of the extrapolations (derive.solve.summation.refine) meet the tolerance of the term's
+size or of the sum so far, whichever is larger.  A term's size is h_l (U_l(r1)^2 + U_l(r2)^2)/2, which bounds
+|term| (and equals it on the diagonal); summed over l it is the mean of the two points' densities, (W(r1, r1) +
+W(r2, r2))/2, the scale against which the tolerance of an off-diagonal value is measured (an off-diagonal value can
+be much smaller than the scale, or zero, where its terms cancel).  The sum stops when three successive terms beyond
+the classical reach omega r*_max are below a hundredth of the tolerance of the scale, and the size of the last term
 kept counts as the truncation error.  Checks: in flat space the diagonal is omega/(4 pi^2) at every r0 and the
 off-diagonal sin(omega d)/(4 pi^2 d) with d the distance (Gegenbauer's addition theorem, DLMF section 10.60).
 

@@ -1,16 +1,29 @@
 """The two loops every two-point function runs: refinement with extrapolation of one l-term, and the sum over l.
 
 Refinement (:func:`refine`).  The march's grids are nested (derive.solve.march: a base layout whose step counts
-are multiplied), so the grids of N, 2N and 4N steps refine each other node for node and the fourth-order error
-falls cleanly as N^-4.  Each pair extrapolates (Richardson): e(2N) = v(2N) + (v(2N) - v(N))/15.  A frequency is
-accepted when the extrapolations of two successive pairs agree, |e(4N) - e(2N)|, to its tolerance of the term's
-size or of ``floor`` (the size of the sum so far: tiny terms need only absolute accuracy), whichever is larger;
-the value returned is e(4N) and its error |e(4N) - e(2N)| (the error of the less refined extrapolation, so
-conservative: 5-10x measured), plus, for each *alternative* (the same grid with one piece moved: an earlier
-series start, a farther end), its change from the plain grid, plus a rounding floor.  With alternatives a
-frequency is accepted only when every source of error counted meets its tolerance.  Frequencies that are done
-drop out; the rest go on to 8N, 16N, ...  A term may have several parts (the in and up modes) that share one
-acceptance test on their summed sizes.
+are multiplied), so the grids of N, 2N and 4N steps refine each other node for node and the error falls roughly
+as N^-4.  Each pair extrapolates (Richardson): e(2N) = v(2N) + (v(2N) - v(N))/15.  The error of e(4N) is taken as
+the larger of the last change of the extrapolations, |e(4N) - e(2N)|, and the one before over FALL = 16,
+|e(2N) - e(N)|/16 (the first pass computes N/2 too, for e(N)); a frequency is accepted when it meets its
+tolerance of the term's size or of ``floor`` (the size of the sum so far: tiny terms need only absolute
+accuracy), whichever is larger.  The value returned is e(4N), its error that estimate plus, for each
+*alternative* (the same grid with one piece moved: an earlier series start, a farther end), its change from the
+plain grid, plus a rounding floor.
+
+Why two changes.  The ratio of the raw errors per doubling is not a constant 16 on these grids: it varies
+between about 12 and 26, and an error can even stall over one doubling (its coefficients oscillate with the
+step's phase omega h, and two contributions of opposite sign can cancel at one N).  So two successive
+extrapolations can agree by accident, far closer than either is to the limit.  The last change alone (the previous rule)
+understated the true error of 109 of 2880 flat-space terms at 1e-9 (l = 0..7 at three radii
+against spherical Bessel functions), up to 1700-fold, and a density's error bar up to 3.3-fold (flat space, the
+addition theorem).  The earlier change over 16 assumes only that an extrapolated value's error falls 16-fold
+over two doublings (a fourth-order scheme's nominal fall is 256-fold); with it, 1-4 of the 2880 terms were
+understated, by at most 2.5-fold, and no density's error bar (tests/test_two_point.py).  It costs 1.2-1.4x the
+marches of the last-change rule (benchmarks/targets.py at r = R/2 of the static shell).
+
+With alternatives a frequency is accepted only when every source of error counted meets its tolerance.
+Frequencies that are done drop out; the rest go on to 8N, 16N, ...  A term may have several parts (the in and
+up modes) that share one acceptance test on their summed sizes.
 
 The sum over l (:func:`l_sum`).  Each frequency sums its own l: its reach (omega times the tortoise distance of
 the farther point: about reach + 1 terms count) sets the error each term may carry, half the tolerance of the
@@ -33,6 +46,7 @@ from derive.parallel import split_map
 
 TERM_SHARE = 0.5    # an l-term's relative tolerance, as a share of the sum's (see l_sum)
 SPLIT_FROM = 64     # frequencies from which a set is split in two halves (one per core)
+FALL = 16           # the least fall of an extrapolated value's error over two doublings (see refine)
 
 
 def rounding_floor(steps: int) -> float:
@@ -53,9 +67,13 @@ def refine(values, omegas, tolerance, floor, count: int = 32, max_steps: int = 8
     n = len(omegas)
     tolerance = np.broadcast_to(np.asarray(tolerance, dtype=float), (n,))
     floor = np.broadcast_to(np.asarray(floor, dtype=float), (n,))
+    half, _ = values(omegas, count // 2)     # for the change before the first (see the module docstring)
     coarse, _ = values(omegas, count)
     fine, _ = values(omegas, 2 * count)
     parts = range(len(coarse))
+    with np.errstate(invalid="ignore", over="ignore"):
+        before = [fine[p] + (fine[p] - coarse[p]) / 15 for p in parts]
+        earlier = [np.abs(before[p] - coarse[p] - (coarse[p] - half[p]) / 15) for p in parts]
     value = tuple(np.zeros(n, dtype=np.result_type(c, float)) for c in coarse)
     size = tuple(np.zeros(n) for _ in parts)
     error = tuple(np.zeros(n) for _ in parts)
@@ -64,9 +82,9 @@ def refine(values, omegas, tolerance, floor, count: int = 32, max_steps: int = 8
     while len(active):
         finest, finest_size = values(omegas[active], 4 * count)
         with np.errstate(invalid="ignore", over="ignore"):
-            before = [fine[p] + (fine[p] - coarse[p]) / 15 for p in parts]
             after = [finest[p] + (finest[p] - fine[p]) / 15 for p in parts]
-            change = [np.abs(after[p] - before[p]) for p in parts]
+            step = [np.abs(after[p] - before[p]) for p in parts]
+            change = [np.maximum(step[p], earlier[p] / FALL) for p in parts]
             sizes = [np.maximum(finest_size[p], np.abs(after[p])) for p in parts]
             scale = np.maximum(sum(sizes), floor[active])
             done = sum(change) <= tolerance[active] * scale
@@ -98,6 +116,8 @@ def refine(values, omegas, tolerance, floor, count: int = 32, max_steps: int = 8
         active = active[~done]
         coarse = tuple(part[~done] for part in fine)
         fine = tuple(part[~done] for part in finest)
+        before = [part[~done] for part in after]
+        earlier = [part[~done] for part in step]
         count *= 2
     return value, size, error, converged
 
