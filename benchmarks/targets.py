@@ -40,12 +40,14 @@ def _detector_at(position: str):
 
 
 def _fresh():
-    """Empty the solver's in-memory stores (propagators, grids, far forms) so that no run reuses another's work."""
-    from derive.solve import farform, propagation
+    """Empty the solver's in-memory stores (propagators, grids, far forms, closed-form interiors) so that no run
+    reuses another's work."""
+    from derive.solve import farform, offcentre, propagation
 
     propagation._PROPAGATORS.clear()
     propagation._GRIDS.clear()
     farform._FORMS.clear()
+    offcentre._INTERIORS.clear()
 
 
 def _timed(st, tolerance):

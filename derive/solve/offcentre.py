@@ -219,17 +219,38 @@ def _far_form(problem, l, radii, pieces, far, fixed, accuracy):
     return far_form(problem, l, pieces[split].a, far, fixed[0], fixed[1], accuracy), split
 
 
+_INTERIORS: dict = {}      # (id(problem), l, radii, id(series)) -> (problem, series, {omega: its closed-form rows})
+_INTERIOR_LIMIT = 2048
+
+
 def _closed_interior(problem, l, omegas, radii, series):
     """With a flat first region (derive.solve.flat): ((state, log scale) just beyond its interface, [(state, log
-    scale) at each radius of ``radii`` inside it]); else None."""
+    scale) at each radius of ``radii`` inside it]); else None.  The values do not depend on the grid, so each
+    frequency's are kept for the refinement's later grids (every level of a term asks again); entries are checked
+    to belong to the same problem and series objects."""
     if not closed_form_interior(problem):
         return None
     inner = [r for r in radii if r < problem.regions[0].upper]
-    start = start_outside(problem, l, omegas, series)
-    values = regular_solution(problem, l, omegas, inner, series) if inner else ([], [])
-    if start is None or values is None:
-        return None
-    return start, list(zip(*values))
+    key = (id(problem), int(l), tuple(inner), id(series))
+    hit = _INTERIORS.get(key)
+    if hit is None or hit[0] is not problem or hit[1] is not series:
+        if len(_INTERIORS) >= _INTERIOR_LIMIT:
+            _INTERIORS.clear()
+        hit = _INTERIORS[key] = (problem, series, {})
+    table = hit[2]
+    missing = np.array([w for w in omegas.tolist() if w not in table])
+    if len(missing):
+        start = start_outside(problem, l, missing, series)
+        values = regular_solution(problem, l, missing, inner, series) if inner else ([], [])
+        if start is None or values is None:
+            return None
+        for i, w in enumerate(missing.tolist()):
+            table[w] = (start[0][i], start[1][i], [(state[i], log[i]) for state, log in zip(*values)])
+    rows = [table[w] for w in omegas.tolist()]
+    start = (np.array([row[0] for row in rows]).reshape(len(rows), 2), np.array([row[1] for row in rows]))
+    inside = [(np.array([row[2][k][0] for row in rows]).reshape(len(rows), 2),
+               np.array([row[2][k][1] for row in rows])) for k in range(len(inner))]
+    return start, inside
 
 
 def _centre_log_u(problem, omegas, series):
