@@ -155,11 +155,11 @@ def centre_density(problem, omegas, tolerance: float = 1e-10, steps: int = DEFAU
 
     The density is computed on grids of N and 2N steps per region; the error estimate is their difference or
     the difference before it (N/2 and N) over FALL = 16, whichever is larger, plus the tail error, and N is
-    doubled until it meets ``tolerance`` or ``max_steps`` is reached.  (The last difference alone can fall below
-    the true error by accident where the error stalls for one doubling: measured over 200 frequencies of the
-    static and the charged shell at 1e-8, 15 understated up to 580-fold and three beyond the tolerance; see
-    derive.solve.summation.)  The result
-    says whether the tolerance was met (``ok``) and, if not, where it fell short (``message``)."""
+    doubled until it meets ``tolerance`` or ``max_steps`` is reached.  (The last difference alone can fall
+    below the true error by accident where the error stalls for one doubling: measured over 200 frequencies of
+    the static and the charged shell at 1e-8, 15 understated up to 580-fold and three beyond the tolerance; see
+    derive.solve.summation.)  The result says whether the tolerance was met (``ok``) and, if not, where it fell
+    short (``message``)."""
     check_supported(problem, any_dimension=True)
     if problem.dimension != 4 and problem.regions[0].centre_series is None:
         raise Unsupported("the centre's series kernel is needed to start the solution in D != 4")

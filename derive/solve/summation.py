@@ -10,16 +10,16 @@ accuracy), whichever is larger.  The value returned is e(4N), its error that est
 *alternative* (the same grid with one piece moved: an earlier series start, a farther end), its change from the
 plain grid, plus a rounding floor.
 
-Why two changes.  The ratio of the raw errors per doubling is not a constant 16 on these grids: it varies
-between about 12 and 26, and an error can even stall over one doubling (its coefficients oscillate with the
-step's phase omega h, and two contributions of opposite sign can cancel at one N).  So two successive
-extrapolations can agree by accident, far closer than either is to the limit.  The last change alone (the previous rule)
-understated the true error of 109 of 2880 flat-space terms at 1e-9 (l = 0..7 at three radii
-against spherical Bessel functions), up to 1700-fold, and a density's error bar up to 3.3-fold (flat space, the
-addition theorem).  The earlier change over 16 assumes only that an extrapolated value's error falls 16-fold
-over two doublings (a fourth-order scheme's nominal fall is 256-fold); with it, 1-4 of the 2880 terms were
-understated, by at most 2.5-fold, and no density's error bar (tests/test_two_point.py).  It costs 1.2-1.4x the
-marches of the last-change rule (benchmarks/targets.py at r = R/2 of the static shell).
+Why two changes.  The ratio of the raw errors per doubling is not a constant 16 on these grids: it varies between
+about 12 and 26, and an error can even stall over one doubling (its coefficients oscillate with the step's phase
+omega h, and two contributions of opposite sign can cancel at one N).  So two successive extrapolations can agree
+by accident, far closer than either is to the limit.  The last change alone (the previous rule) understated the
+true error of 109 of 2880 flat-space terms at 1e-9 (l = 0..7 at three radii against spherical Bessel functions), up
+to 1700-fold, and a density's error bar up to 3.3-fold (flat space, the addition theorem).  The earlier change over
+16 assumes only that an extrapolated value's error falls 16-fold over two doublings (a fourth-order scheme's
+nominal fall is 256-fold); with it, 1-4 of the 2880 terms were understated, by at most 2.5-fold, and no density's
+error bar (tests/test_two_point.py).  It costs 1.2-1.4x the marches of the last-change rule (benchmarks/targets.py
+at r = R/2 of the static shell).
 
 With alternatives a frequency is accepted only when every source of error counted meets its tolerance.
 Frequencies that are done drop out; the rest go on to 8N, 16N, ...  A term may have several parts (the in and
