@@ -24,7 +24,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from derive.solve.propagation import first_spans, outer_pieces
-from derive.solve.summation import FALL, rounding_floor
+from derive.solve.summation import rounding_floor, settled
 
 DEFAULT_STEPS = 48
 FAR = 1.0e6          # far radius in units of the problem's length scale
@@ -211,9 +211,9 @@ def centre_density(problem, omegas, tolerance: float = 1e-10, steps: int = DEFAU
     while len(active):
         fine = _run(problem, omegas[active], 2 * count)
         change = np.abs(fine[0] - coarse[0])
-        settled = np.maximum(change, earlier if two_changes else earlier / FALL)
+        error_of_grids = settled(change, earlier, 1.0) if two_changes else settled(change, earlier)
         earlier = change
-        estimate = settled + (fine[2] + rounding_floor(2 * count)) * np.abs(fine[0])
+        estimate = error_of_grids + (fine[2] + rounding_floor(2 * count)) * np.abs(fine[0])
         density[active], error[active] = fine[0], estimate
         amplitude[active], propagation[active], tail[active] = np.sqrt(fine[1]), change / np.abs(fine[0]), fine[2]
         done = estimate <= tolerance * np.abs(fine[0])

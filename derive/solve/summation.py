@@ -49,6 +49,13 @@ SPLIT_FROM = 64     # frequencies from which a set is split in two halves (one p
 FALL = 16           # the least fall of an extrapolated value's error over two doublings (see refine)
 
 
+def settled(last, earlier, fall: float = FALL):
+    """The error taken from two successive changes of a refined value: the last, or the one before over ``fall``
+    (the least fall of the error assumed over the doubling between them), whichever is larger (see the module
+    docstring).  Used by :func:`refine` and by the centre density's loop."""
+    return np.maximum(last, earlier / fall)
+
+
 def rounding_floor(steps: int) -> float:
     """Relative rounding error of a product of about 2*steps 2x2 matrices per region in double precision:
     bounded by 8 * steps * eps, and never taken below 1e-12 (what the far-field phase, omega r* ~ 1e8,
@@ -84,7 +91,7 @@ def refine(values, omegas, tolerance, floor, count: int = 32, max_steps: int = 8
         with np.errstate(invalid="ignore", over="ignore"):
             after = [finest[p] + (finest[p] - fine[p]) / 15 for p in parts]
             step = [np.abs(after[p] - before[p]) for p in parts]
-            change = [np.maximum(step[p], earlier[p] / FALL) for p in parts]
+            change = [settled(step[p], earlier[p]) for p in parts]
             sizes = [np.maximum(finest_size[p], np.abs(after[p])) for p in parts]
             scale = np.maximum(sum(sizes), floor[active])
             done = sum(change) <= tolerance[active] * scale
