@@ -27,7 +27,11 @@ Errors.  Each node is refined until the changes of its three entries sum to half
 read-off's tail (the flux read four times farther out) counted.  On each interval the interpolants on n and
 (n + 1)/2 nested nodes are compared on a check grid eight times finer; the largest difference of each entry (the
 error of the coarser one: conservative) plus the nodes' largest errors bound the entries' errors dq anywhere on
-the interval.  For a state s~ the relative error of a^2 k is then at most
+the interval.  Where the finer interpolant's own Chebyshev coefficients show it resolved (:func:`chebyshev_tail`:
+the tail of its coefficients, times TAIL = 10, is a tenth of the nested spread or less), that estimate replaces
+the spread as its interpolation error, and no finer set is needed (measured outside the static shell at 4.5e-11:
+the 33-node interpolants of l = 0..30 differ from the 65-node ones by at most 0.57 of it; 33 nodes instead of 65
+for l <= 18).  For a state s~ the relative error of a^2 k is then at most
 
     sum_ij |s~_i| dq_ij |s~_j| / s~^T q s~,
 
@@ -56,11 +60,23 @@ DEPTH = 4             # halvings of the first interval at most
 BUDGET = 200          # nodes per form at most (each costs about what one frequency's direct march does)
 CHECKS = 8            # check points per node on the check grid
 FLOOR = 2e-12         # no form is asked for more than this relative accuracy (double-precision marches)
+TAIL = 10             # the safety factor on the Chebyshev tail's estimate of an interpolant's error
 
 
 def lobatto(a: float, b: float, n: int) -> np.ndarray:
     """n Chebyshev-Lobatto points on [a, b], increasing (the set for n nests in the set for 2n - 1)."""
     return (a + b) / 2 - (b - a) / 2 * np.cos(np.pi * np.arange(n) / (n - 1))
+
+
+def chebyshev_tail(values) -> np.ndarray:
+    """Twice the sum of the last max(3, n/8) Chebyshev coefficients of the interpolant through ``values`` (n, m)
+    at n Chebyshev-Lobatto points, per column: an estimate of its error where the coefficients decay
+    geometrically (the interpolation error is at most twice the sum of the coefficients beyond the degree; common
+    practice, L. N. Trefethen, Approximation Theory and Approximation Practice (2013), ch. 4 and 8)."""
+    n = len(values)
+    x = -np.cos(np.pi * np.arange(n) / (n - 1))
+    coefficients = np.polynomial.chebyshev.chebfit(x, values, n - 1)
+    return 2 * np.sum(np.abs(coefficients[-max(3, n // 8):]), axis=0)
 
 
 def allowed_from(problem, l: int, radius: float, far: float) -> float:
@@ -207,8 +223,13 @@ def build(problem, l: int, radius: float, far: float, low: float, high: float, a
             check = np.linspace(a, b, CHECKS * n)
             fine = BarycentricInterpolator(nodes, values)(check)
             spread = np.max(np.abs(fine - BarycentricInterpolator(*coarse)(check)), axis=0)
-            if float(np.max(_worst(np.broadcast_to(spread, fine.shape), fine))) <= accuracy / 2:
-                accepted = _Interval(lo, hi, nodes, values, spread + np.max(errors, axis=0))
+            # the finer interpolant's own error from its Chebyshev coefficients' tail, where the coefficients show
+            # it resolved (that estimate a tenth of the nested spread or less): then it need not be checked against
+            # a finer set (see the module docstring)
+            tail = TAIL * chebyshev_tail(values)
+            own = tail if np.all(tail <= spread / 10) else spread
+            if float(np.max(_worst(np.broadcast_to(own, fine.shape), fine))) <= accuracy / 2:
+                accepted = _Interval(lo, hi, nodes, values, own + np.max(errors, axis=0))
                 break
         if accepted is not None:
             form.intervals.append(accepted)
