@@ -74,8 +74,7 @@ def chebyshev_tail(values) -> np.ndarray:
     geometrically (the interpolation error is at most twice the sum of the coefficients beyond the degree; common
     practice, L. N. Trefethen, Approximation Theory and Approximation Practice (2013), ch. 4 and 8)."""
     n = len(values)
-    x = -np.cos(np.pi * np.arange(n) / (n - 1))
-    coefficients = np.polynomial.chebyshev.chebfit(x, values, n - 1)
+    coefficients = np.polynomial.chebyshev.chebfit(lobatto(-1.0, 1.0, n), values, n - 1)
     return 2 * np.sum(np.abs(coefficients[-max(3, n // 8):]), axis=0)
 
 

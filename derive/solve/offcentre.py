@@ -194,12 +194,16 @@ def _log_u_at(problem, l, omegas, radii, steps, series, fixed, accuracy=None):
     return log_u - log_amplitude, sign, log_amplitude, form_error
 
 
-def _form_share(problem, pair) -> float:
-    """The far form's share of an l-term's relative tolerance: nearly all of it where no march precedes it (the
-    flat interior in closed form reaches the outermost region and holds both points), half otherwise."""
-    alone = (closed_form_interior(problem) and len(problem.regions) == 2
-             and max(pair) <= problem.regions[0].upper)
-    return ALONE_SHARE if alone else FORM_SHARE
+def _form_share(problem, pair, fixed) -> float:
+    """The far form's share of an l-term's relative tolerance: nearly all of it where nothing is marched before it
+    (the layout has no piece between the flat interior, in closed form, and the form's radius), half otherwise."""
+    if not closed_form_interior(problem):
+        return FORM_SHARE
+    radii = tuple(sorted({r for r in pair if r > 0})) or (problem.length_scale,)
+    pieces, _, _, far = _pieces(problem, 0, radii, 16, *fixed)
+    _, split = _far_form(problem, 0, radii, pieces, far, fixed, None)
+    skip = sum(1 for piece in pieces if piece.region == 0)
+    return ALONE_SHARE if split == skip < len(pieces) else FORM_SHARE
 
 
 def _far_form(problem, l, radii, pieces, far, fixed, accuracy):
@@ -322,7 +326,7 @@ def _term(problem, l, omegas, pair, cos_gamma, series, tolerance, floor, fixed, 
         return out
     # the far form (derive.solve.farform) gets a share of the term's tolerance (of its size or of the floor,
     # whichever is larger), the march inside it the rest; the form's error is counted where it is used
-    share = _form_share(problem, pair)
+    share = _form_share(problem, pair, fixed)
     accuracy = float(form) if n and FAR_FORM and form else None
     form_errors = {}
     allowed = {x: (t, f) for x, t, f in zip(omegas.tolist(), tolerance.tolist(), floor.tolist())}
@@ -379,7 +383,7 @@ def _worth_a_form(problem, omegas, pair, tolerance, fixed, distance) -> dict:
     if pair[0] == 0:
         return {}
     reach = omegas * distance
-    accuracy = _form_share(problem, pair) * TERM_SHARE * tolerance
+    accuracy = _form_share(problem, pair, fixed) * TERM_SHARE * tolerance
     radii = tuple(sorted({r for r in pair if r > 0})) or (problem.length_scale,)
     forms = {}
     for l in range(min(int(np.max(reach)) + QUIET, MAX_L) + 1):
